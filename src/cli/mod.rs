@@ -1,0 +1,67 @@
+//! Flag definitions and dispatch. Exit codes: 0 success, 1 nothing found (lookup misses only),
+//! 2 error.
+
+mod dump;
+mod extract;
+mod inspect;
+mod lookup;
+mod pack;
+mod prune;
+mod synth;
+
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+/// Build, prune, pack and query phrase tables for phrase-based machine translation.
+#[derive(Parser)]
+#[command(name = "baler", version, about, propagate_version = true)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Extract and score phrase pairs from word-aligned parallel text.
+    Extract(extract::Args),
+    /// Remove noisy phrase pairs (significance test, top-k, thresholds).
+    Prune(prune::Args),
+    /// Pack an interchange TSV table into a memory-mappable .bale file.
+    Pack(pack::Args),
+    /// Print the options of source phrases as interchange TSV.
+    Lookup(lookup::Args),
+    /// Write a whole packed table back as interchange TSV.
+    Dump(dump::Args),
+    /// Show the sections, sizes and metadata of a packed table.
+    Inspect(inspect::Args),
+    /// Generate a large synthetic phrase table for benchmarks.
+    Synth(synth::Args),
+}
+
+/// Parses the command line, runs it, and maps the outcome to an exit code.
+pub fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Extract(a) => extract::run(a),
+        Command::Prune(a) => prune::run(a),
+        Command::Pack(a) => pack::run(a),
+        Command::Lookup(a) => lookup::run(a),
+        Command::Dump(a) => dump::run(a),
+        Command::Inspect(a) => inspect::run(a),
+        Command::Synth(a) => synth::run(a),
+    };
+    match result {
+        Ok(code) => code,
+        Err(e) if e.is_broken_pipe() => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("baler: error: {e}");
+            ExitCode::from(2)
+        }
+    }
+}
+
+/// Parses a size flag such as `--memory 256M`.
+pub(crate) fn size_arg(text: &str) -> Result<u64, String> {
+    baler::files::parse_size(text).map_err(|e| e.to_string())
+}

@@ -1,0 +1,12 @@
+//! `baler prune` (to be written).
+
+use std::process::ExitCode;
+
+#[derive(clap::Args)]
+pub struct Args {}
+
+pub fn run(_args: Args) -> baler::Result<ExitCode> {
+    Err(baler::Error::Unsupported(
+        "`baler prune` is not built yet".into(),
+    ))
+}

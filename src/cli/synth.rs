@@ -1,0 +1,12 @@
+//! `baler synth` (to be written).
+
+use std::process::ExitCode;
+
+#[derive(clap::Args)]
+pub struct Args {}
+
+pub fn run(_args: Args) -> baler::Result<ExitCode> {
+    Err(baler::Error::Unsupported(
+        "`baler synth` is not built yet".into(),
+    ))
+}

@@ -1,0 +1,1 @@
+//! Phrase-pair extraction from word-aligned parallel text (to be written).

@@ -1,0 +1,236 @@
+//! Opening inputs and writing outputs safely.
+//!
+//! Inputs whose names end in `.gz` or `.zst` are decompressed on the fly and `-` means standard
+//! input. Outputs are written to a temporary file in the destination directory and renamed into
+//! place only by [`Output::commit`], so a failed run never leaves a partial file behind; `-`
+//! means standard output. Outputs ending in `.gz` or `.zst` are compressed.
+
+use std::fs::File;
+use std::io::{self, BufRead, BufReader, BufWriter, Read, Write};
+use std::path::{Path, PathBuf};
+
+use crate::error::{Error, Result};
+
+/// The name used for standard input and standard output.
+pub const STDIO: &str = "-";
+
+/// Opens `path` for buffered reading, decompressing `.gz` and `.zst` transparently.
+///
+/// # Examples
+/// ```
+/// use std::io::{BufRead, Write};
+/// let dir = tempfile::tempdir().unwrap();
+/// let path = dir.path().join("words.txt.gz");
+/// let mut gz = flate2::write::GzEncoder::new(std::fs::File::create(&path).unwrap(),
+///                                            flate2::Compression::default());
+/// gz.write_all(b"harbour\n").unwrap();
+/// gz.finish().unwrap();
+/// let lines: Vec<String> = baler::files::open_input(&path).unwrap().lines()
+///     .map(|l| l.unwrap()).collect();
+/// assert_eq!(lines, ["harbour"]);
+/// ```
+pub fn open_input(path: &Path) -> Result<Box<dyn BufRead + Send>> {
+    let raw: Box<dyn Read + Send> = if path.as_os_str() == STDIO {
+        Box::new(io::stdin())
+    } else {
+        Box::new(File::open(path).map_err(|e| Error::io(path, "opening", e))?)
+    };
+    let name = path.to_string_lossy();
+    let reader: Box<dyn BufRead + Send> = if name.ends_with(".gz") {
+        Box::new(BufReader::with_capacity(
+            1 << 16,
+            flate2::read::MultiGzDecoder::new(raw),
+        ))
+    } else if name.ends_with(".zst") {
+        let decoder =
+            zstd::stream::read::Decoder::new(raw).map_err(|e| Error::io(path, "opening", e))?;
+        Box::new(BufReader::with_capacity(1 << 16, decoder))
+    } else {
+        Box::new(BufReader::with_capacity(1 << 16, raw))
+    };
+    Ok(reader)
+}
+
+/// Reads one line (without its `\n` or `\r\n`) into `buf`; returns false at end of input.
+///
+/// Errors name the file and the line being read.
+pub fn read_line(
+    input: &mut dyn BufRead,
+    buf: &mut String,
+    file: &str,
+    line_no: u64,
+) -> Result<bool> {
+    buf.clear();
+    match input.read_line(buf) {
+        Ok(0) => Ok(false),
+        Ok(_) => {
+            if buf.ends_with('\n') {
+                buf.pop();
+                if buf.ends_with('\r') {
+                    buf.pop();
+                }
+            }
+            Ok(true)
+        }
+        Err(e) if e.kind() == io::ErrorKind::InvalidData => {
+            Err(Error::input(file, line_no, "not valid UTF-8"))
+        }
+        Err(e) => Err(Error::input(file, line_no, format!("read failed: {e}"))),
+    }
+}
+
+enum Sink {
+    Plain(BufWriter<File>),
+    Gzip(flate2::write::GzEncoder<BufWriter<File>>),
+    Zstd(zstd::stream::write::Encoder<'static, BufWriter<File>>),
+    Stdout(BufWriter<io::Stdout>),
+}
+
+/// An output file that appears under its final name only once complete.
+///
+/// # Examples
+/// ```
+/// use std::io::Write;
+/// let dir = tempfile::tempdir().unwrap();
+/// let path = dir.path().join("out.tsv");
+/// let mut out = baler::files::Output::create(&path).unwrap();
+/// writeln!(out, "source\ttarget").unwrap();
+/// assert!(!path.exists());          // still a temporary file
+/// out.commit().unwrap();
+/// assert_eq!(std::fs::read_to_string(&path).unwrap(), "source\ttarget\n");
+/// ```
+pub struct Output {
+    path: PathBuf,
+    sink: Option<Sink>,
+    temp: Option<tempfile::TempPath>,
+}
+
+impl Output {
+    /// Creates a temporary file beside `path` (or wraps standard output for `-`).
+    pub fn create(path: &Path) -> Result<Output> {
+        if path.as_os_str() == STDIO {
+            return Ok(Output {
+                path: path.to_path_buf(),
+                sink: Some(Sink::Stdout(BufWriter::with_capacity(
+                    1 << 16,
+                    io::stdout(),
+                ))),
+                temp: None,
+            });
+        }
+        let dir = match path.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p,
+            _ => Path::new("."),
+        };
+        let named = tempfile::Builder::new()
+            .prefix(".baler-partial-")
+            .tempfile_in(dir)
+            .map_err(|e| Error::io(path, "creating", e))?;
+        let (file, temp) = named.into_parts();
+        let buffered = BufWriter::with_capacity(1 << 16, file);
+        let name = path.to_string_lossy();
+        let sink = if name.ends_with(".gz") {
+            Sink::Gzip(flate2::write::GzEncoder::new(
+                buffered,
+                flate2::Compression::new(6),
+            ))
+        } else if name.ends_with(".zst") {
+            let mut enc = zstd::stream::write::Encoder::new(buffered, 3)
+                .map_err(|e| Error::io(path, "creating", e))?;
+            enc.include_checksum(true)
+                .map_err(|e| Error::io(path, "creating", e))?;
+            Sink::Zstd(enc)
+        } else {
+            Sink::Plain(buffered)
+        };
+        Ok(Output {
+            path: path.to_path_buf(),
+            sink: Some(sink),
+            temp: Some(temp),
+        })
+    }
+
+    /// The final path of this output.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// Finishes compression, flushes, and renames the temporary file into place.
+    pub fn commit(mut self) -> Result<()> {
+        let path = self.path.clone();
+        let err = |e| Error::io(&path, "writing", e);
+        let file = match self.sink.take().expect("sink present until commit") {
+            Sink::Stdout(mut w) => return w.flush().map_err(err),
+            Sink::Plain(w) => w.into_inner().map_err(|e| e.into_error()).map_err(err)?,
+            Sink::Gzip(w) => w
+                .finish()
+                .map_err(err)?
+                .into_inner()
+                .map_err(|e| e.into_error())
+                .map_err(err)?,
+            Sink::Zstd(w) => w
+                .finish()
+                .map_err(err)?
+                .into_inner()
+                .map_err(|e| e.into_error())
+                .map_err(err)?,
+        };
+        file.sync_all().map_err(err)?;
+        drop(file);
+        let temp = self.temp.take().expect("temporary path present for files");
+        temp.persist(&path)
+            .map_err(|e| Error::io(&path, "renaming into place", e.error))?;
+        Ok(())
+    }
+
+    fn sink(&mut self) -> &mut dyn Write {
+        match self.sink.as_mut().expect("sink present until commit") {
+            Sink::Plain(w) => w,
+            Sink::Gzip(w) => w,
+            Sink::Zstd(w) => w,
+            Sink::Stdout(w) => w,
+        }
+    }
+}
+
+impl Write for Output {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        self.sink().write(buf)
+    }
+    fn write_all(&mut self, buf: &[u8]) -> io::Result<()> {
+        self.sink().write_all(buf)
+    }
+    fn flush(&mut self) -> io::Result<()> {
+        self.sink().flush()
+    }
+}
+
+/// Parses a byte size such as `256M`, `4G`, `1.5G`, `64K` or `1000000` (powers of 1024).
+///
+/// # Examples
+/// ```
+/// assert_eq!(baler::files::parse_size("256M").unwrap(), 256 << 20);
+/// assert_eq!(baler::files::parse_size("4g").unwrap(), 4 << 30);
+/// assert!(baler::files::parse_size("lots").is_err());
+/// ```
+pub fn parse_size(text: &str) -> Result<u64> {
+    let t = text.trim();
+    let bad = || Error::invalid("size", format!("{text:?} is not a size like 512M or 4G"));
+    let (number, unit) = match t.char_indices().find(|(_, c)| c.is_ascii_alphabetic()) {
+        Some((i, _)) => (&t[..i], t[i..].to_ascii_lowercase()),
+        None => (t, String::new()),
+    };
+    let scale: u64 = match unit.trim_end_matches("ib").trim_end_matches('b') {
+        "" => 1,
+        "k" => 1 << 10,
+        "m" => 1 << 20,
+        "g" => 1 << 30,
+        "t" => 1 << 40,
+        _ => return Err(bad()),
+    };
+    let value: f64 = number.trim().parse().map_err(|_| bad())?;
+    if !value.is_finite() || value < 0.0 {
+        return Err(bad());
+    }
+    Ok((value * scale as f64) as u64)
+}

@@ -1,0 +1,1 @@
+//! Layout and constants of the packed `.bale` format (being written).

@@ -1,0 +1,38 @@
+//! baler: extract, prune, pack and query phrase tables for phrase-based machine translation.
+//!
+//! The pipeline after word alignment, one module per stage:
+//!
+//! * [`table`]: the tab-separated interchange format every stage reads and writes.
+//! * [`extract`]: phrase pairs consistent with a word alignment, with relative-frequency and
+//!   lexical scores and the sentence-level counts pruning needs.
+//! * [`prune`]: significance testing (Fisher's exact test), top-k and threshold filters.
+//! * [`pack`]: the compact binary format; [`Table`] reads it from a memory map.
+//!
+//! ```
+//! # fn main() -> baler::Result<()> {
+//! let dir = tempfile::tempdir().unwrap();
+//! let tsv = "source\ttarget\tp_t_given_s\nel muelle\tthe pier\t0.75\nel muelle\tthe quay\t0.25\n";
+//! let packed = dir.path().join("harbour.bale");
+//! baler::pack::pack_tsv(tsv.as_bytes(), "harbour.tsv", &packed, &baler::pack::PackOptions::default())?;
+//! let table = baler::Table::open(&packed)?;
+//! let options: Vec<String> = table.lookup("el muelle")?.iter().map(|o| o.target().to_string()).collect();
+//! assert_eq!(options, ["the pier", "the quay"]);
+//! # Ok(()) }
+//! ```
+#![deny(missing_docs)]
+
+pub mod error;
+pub mod extract;
+pub mod files;
+pub mod format;
+mod mmap;
+pub mod pack;
+pub mod prune;
+pub mod quantize;
+pub mod read;
+pub mod sort;
+pub mod synth;
+pub mod table;
+
+pub use error::{Error, Result};
+pub use read::Table;

@@ -1,0 +1,1 @@
+//! Memory-mapping (being written).

@@ -1,0 +1,1 @@
+//! Pruning filters over source-grouped phrase pairs (to be written).

@@ -1,0 +1,1 @@
+//! Score quantization codebooks (being written).

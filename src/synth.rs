@@ -1,0 +1,1 @@
+//! Synthetic phrase tables of realistic shape, for benchmarks (to be written).

@@ -1,0 +1,1 @@
+//! Integration tests: the command line and the library's public API.
