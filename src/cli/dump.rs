@@ -1,12 +1,30 @@
-//! `baler dump` (being written).
+//! `baler dump`: a packed table back to interchange TSV.
 
+use std::path::PathBuf;
 use std::process::ExitCode;
 
-#[derive(clap::Args)]
-pub struct Args {}
+use baler::files::Output;
+use baler::table::TsvWriter;
+use baler::Error;
 
-pub fn run(_args: Args) -> baler::Result<ExitCode> {
-    Err(baler::Error::Unsupported(
-        "`baler dump` is not built yet".into(),
-    ))
+/// Arguments of `baler dump`.
+#[derive(clap::Args)]
+pub struct Args {
+    /// The packed table.
+    table: PathBuf,
+    /// Where to write the TSV (`-`: standard output; `.gz`/`.zst` compress).
+    #[arg(short, long, default_value = "-")]
+    output: PathBuf,
+}
+
+pub fn run(args: Args) -> baler::Result<ExitCode> {
+    let table = baler::Table::open(&args.table)?;
+    let output = Output::create(&args.output)?;
+    let werr = |e| Error::io(&args.output, "writing", e);
+    let mut writer = TsvWriter::new(output, table.header()).map_err(werr)?;
+    for pair in table.pairs_iter() {
+        writer.write_pair(&pair?).map_err(werr)?;
+    }
+    writer.into_inner().commit()?;
+    Ok(ExitCode::SUCCESS)
 }

@@ -1,1 +1,318 @@
-//! Layout and constants of the packed `.bale` format (being written).
+//! Layout and constants of the packed `.bale` format, shared by the writer ([`crate::pack`]) and
+//! the reader ([`crate::read`]). No other module knows byte positions.
+//!
+//! The byte-level specification is `format-spec/bale-format.md`; this module is its executable
+//! form. In short: a 24-byte file header, a section table of 32-byte entries, then the sections,
+//! each starting on an 8-byte boundary. All integers are little-endian.
+
+mod varint;
+
+pub use varint::{read_varint, write_varint, VarintReader};
+
+use byteorder::{ByteOrder, LittleEndian as LE};
+
+/// The first eight bytes of every packed table.
+pub const MAGIC: [u8; 8] = *b"BALER\r\n\x1a";
+
+/// Major format version: readers refuse files with another major version.
+pub const VERSION_MAJOR: u16 = 1;
+
+/// Minor format version: additions that older readers of the same major version may ignore.
+pub const VERSION_MINOR: u16 = 0;
+
+/// Size of the fixed file header.
+pub const FILE_HEADER_LEN: usize = 24;
+
+/// Size of one section-table entry.
+pub const SECTION_ENTRY_LEN: usize = 32;
+
+/// Alignment of section starts.
+pub const SECTION_ALIGN: u64 = 8;
+
+/// Most sections a file may declare (a bound for hostile headers).
+pub const MAX_SECTIONS: u32 = 64;
+
+/// Every target-phrase offset sample covers this many targets.
+pub const TARGET_SAMPLE_INTERVAL: u32 = 16;
+
+/// Score storage modes in the codebook section.
+pub mod score_mode {
+    /// Raw little-endian `f32` per option.
+    pub const F32: u8 = 0;
+    /// Index into a codebook of `f64` values: one byte per option for up to 8 bits, two for more.
+    pub const CODEBOOK: u8 = 1;
+}
+
+/// Block compression modes (recorded in the metadata as text, see [`Compression::name`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Compression {
+    /// Blocks are stored raw.
+    None,
+    /// Every block is one zstd frame (RFC 8878), with the dictionary section if present.
+    Zstd,
+}
+
+impl Compression {
+    /// The name stored in the metadata.
+    pub fn name(self) -> &'static str {
+        match self {
+            Compression::None => "none",
+            Compression::Zstd => "zstd",
+        }
+    }
+
+    /// Parses a stored name.
+    pub fn from_name(name: &str) -> Option<Compression> {
+        match name {
+            "none" => Some(Compression::None),
+            "zstd" => Some(Compression::Zstd),
+            _ => None,
+        }
+    }
+}
+
+/// The kinds of section, by their numeric id in the section table.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+#[repr(u32)]
+pub enum SectionKind {
+    /// JSON metadata: names, counts, options, provenance.
+    Metadata = 1,
+    /// Per-score storage mode and codebook values.
+    Codebooks = 2,
+    /// Target vocabulary: word strings by token id.
+    Vocabulary = 3,
+    /// Deduplicated target phrases as token ids, with sampled offsets.
+    Targets = 4,
+    /// `fst` map from source phrase bytes to source ordinal.
+    SourceIndex = 5,
+    /// Offsets of the option blocks.
+    BlockIndex = 6,
+    /// The option blocks.
+    Options = 7,
+    /// zstd dictionary shared by all blocks (optional).
+    Dictionary = 8,
+}
+
+impl SectionKind {
+    /// Every kind, in the order the writer lays them out.
+    pub const ALL: [SectionKind; 8] = [
+        SectionKind::Metadata,
+        SectionKind::Codebooks,
+        SectionKind::Dictionary,
+        SectionKind::Vocabulary,
+        SectionKind::Targets,
+        SectionKind::BlockIndex,
+        SectionKind::SourceIndex,
+        SectionKind::Options,
+    ];
+
+    /// Looks a kind up by id.
+    pub fn from_id(id: u32) -> Option<SectionKind> {
+        SectionKind::ALL.into_iter().find(|k| *k as u32 == id)
+    }
+
+    /// A readable name for reports.
+    pub fn name(self) -> &'static str {
+        match self {
+            SectionKind::Metadata => "metadata",
+            SectionKind::Codebooks => "codebooks",
+            SectionKind::Vocabulary => "vocabulary",
+            SectionKind::Targets => "targets",
+            SectionKind::SourceIndex => "source-index",
+            SectionKind::BlockIndex => "block-index",
+            SectionKind::Options => "options",
+            SectionKind::Dictionary => "dictionary",
+        }
+    }
+
+    /// Whether [`crate::Table::open`] checks this section's checksum (it is small, independent
+    /// of the number of pairs); the others are checked by `verify`.
+    pub fn checked_at_open(self) -> bool {
+        matches!(
+            self,
+            SectionKind::Metadata | SectionKind::Codebooks | SectionKind::Dictionary
+        )
+    }
+
+    /// Whether every valid file has this section.
+    pub fn required(self) -> bool {
+        !matches!(self, SectionKind::Dictionary)
+    }
+}
+
+/// One entry of the section table.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct SectionEntry {
+    /// Section kind id (see [`SectionKind`]); unknown ids are skipped by readers.
+    pub kind: u32,
+    /// Reserved flags, zero in version 1.0.
+    pub flags: u32,
+    /// Byte offset of the section from the start of the file.
+    pub offset: u64,
+    /// Byte length of the section.
+    pub length: u64,
+    /// CRC-32 (IEEE 802.3, as zlib's `crc32`) of the section bytes.
+    pub crc32: u32,
+}
+
+impl SectionEntry {
+    /// Encodes the entry as its 32 bytes.
+    pub fn encode(&self) -> [u8; SECTION_ENTRY_LEN] {
+        let mut b = [0u8; SECTION_ENTRY_LEN];
+        LE::write_u32(&mut b[0..4], self.kind);
+        LE::write_u32(&mut b[4..8], self.flags);
+        LE::write_u64(&mut b[8..16], self.offset);
+        LE::write_u64(&mut b[16..24], self.length);
+        LE::write_u32(&mut b[24..28], self.crc32);
+        b
+    }
+
+    /// Decodes an entry from exactly 32 bytes.
+    pub fn decode(b: &[u8]) -> SectionEntry {
+        SectionEntry {
+            kind: LE::read_u32(&b[0..4]),
+            flags: LE::read_u32(&b[4..8]),
+            offset: LE::read_u64(&b[8..16]),
+            length: LE::read_u64(&b[16..24]),
+            crc32: LE::read_u32(&b[24..28]),
+        }
+    }
+}
+
+/// The fixed file header.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct FileHeader {
+    /// Major version.
+    pub major: u16,
+    /// Minor version.
+    pub minor: u16,
+    /// Number of section-table entries that follow the header.
+    pub section_count: u32,
+    /// CRC-32 of header bytes 0..16 followed by the whole section table.
+    pub table_crc32: u32,
+}
+
+impl FileHeader {
+    /// Encodes the header (magic included).
+    pub fn encode(&self) -> [u8; FILE_HEADER_LEN] {
+        let mut b = [0u8; FILE_HEADER_LEN];
+        b[0..8].copy_from_slice(&MAGIC);
+        LE::write_u16(&mut b[8..10], self.major);
+        LE::write_u16(&mut b[10..12], self.minor);
+        LE::write_u32(&mut b[12..16], self.section_count);
+        LE::write_u32(&mut b[16..20], self.table_crc32);
+        b
+    }
+
+    /// Decodes the header fields from at least [`FILE_HEADER_LEN`] bytes (magic not checked).
+    pub fn decode(b: &[u8]) -> FileHeader {
+        FileHeader {
+            major: LE::read_u16(&b[8..10]),
+            minor: LE::read_u16(&b[10..12]),
+            section_count: LE::read_u32(&b[12..16]),
+            table_crc32: LE::read_u32(&b[16..20]),
+        }
+    }
+}
+
+/// The checksum over the header's first 16 bytes and the encoded section table.
+pub fn table_checksum(header_prefix: &[u8], table: &[u8]) -> u32 {
+    let mut h = crc32fast::Hasher::new();
+    h.update(&header_prefix[..16]);
+    h.update(table);
+    h.finalize()
+}
+
+/// Bytes of padding needed after `len` bytes to reach [`SECTION_ALIGN`].
+pub fn padding(len: u64) -> u64 {
+    (SECTION_ALIGN - len % SECTION_ALIGN) % SECTION_ALIGN
+}
+
+/// Layout of the codebook section: for each score column a 8-byte entry header
+/// (`mode: u8`, `bits: u8`, `domain: u8`, `reserved: u8`, `entries: u32`) then `entries`
+/// little-endian `f64` values in ascending order.
+pub const CODEBOOK_ENTRY_HEADER_LEN: usize = 8;
+
+/// Quantization domains recorded in the codebook section.
+pub mod domain {
+    /// Centroids were fitted to natural logarithms of the values (all values positive).
+    pub const LOG: u8 = 0;
+    /// Centroids were fitted to the values themselves.
+    pub const LINEAR: u8 = 1;
+}
+
+/// Bytes one option's score code takes in a block, for a column's mode and bits.
+pub fn score_width(mode: u8, bits: u8) -> usize {
+    match (mode, bits) {
+        (score_mode::F32, _) => 4,
+        (_, 0..=8) => 1,
+        _ => 2,
+    }
+}
+
+/// The JSON metadata section (`serde` form).
+#[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Meta {
+    /// Always "baler packed phrase table".
+    pub format: String,
+    /// Number of phrase pairs.
+    pub pairs: u64,
+    /// Number of distinct source phrases.
+    pub sources: u64,
+    /// Number of distinct target phrases.
+    pub targets: u64,
+    /// Number of distinct target words.
+    pub vocabulary: u64,
+    /// Score column names, in stored order.
+    pub scores: Vec<String>,
+    /// Count column names present, in canonical order.
+    pub counts: Vec<String>,
+    /// Whether each option stores its word alignment.
+    pub alignment: bool,
+    /// How the options of a source are ordered.
+    pub option_order: OptionOrder,
+    /// Sources per option block (the last block may hold fewer).
+    pub sources_per_block: u32,
+    /// "zstd" or "none".
+    pub block_compression: String,
+    /// Upper bound on the decompressed size of any block.
+    pub max_block_bytes: u64,
+    /// The `# key=value` lines of the input, in order.
+    pub table_metadata: Vec<(String, String)>,
+    /// How the file was made: tool version, input, options.
+    pub provenance: Vec<(String, String)>,
+    /// Quantization error per score column.
+    pub quantization: Vec<QuantizationReport>,
+}
+
+/// The documented order of options within a source.
+#[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct OptionOrder {
+    /// The score column options are sorted by, descending (its original, unquantized values);
+    /// `None` when the table has no scores.
+    pub by: Option<String>,
+    /// Ties (and tables without scores) are ordered by target phrase bytes, ascending.
+    pub ties: String,
+}
+
+/// Measured quantization error of one score column, in the domain it was fitted in.
+#[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct QuantizationReport {
+    /// Score column name.
+    pub column: String,
+    /// "f32" or "codebook".
+    pub storage: String,
+    /// Bits per code (32 for f32).
+    pub bits: u8,
+    /// "log" or "linear".
+    pub domain: String,
+    /// Codebook entries used.
+    pub entries: u32,
+    /// Root mean square error over every stored value.
+    pub rms_error: f64,
+    /// Largest absolute error over every stored value.
+    pub max_error: f64,
+}
+
+/// The text of [`Meta::format`].
+pub const FORMAT_NAME: &str = "baler packed phrase table";

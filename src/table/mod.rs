@@ -1,9 +1,11 @@
 //! The text interchange format: one phrase pair per line, tab-separated, UTF-8.
 //!
+//! (`→` stands for a tab)
+//!
 //! ```text
 //! # sentence_pairs=3
-//! source	target	alignment	p_t_given_s	count
-//! the ferry	el ferry	0-0 1-1	0.5	2
+//! source→target→alignment→p_t_given_s→count
+//! the ferry→el ferry→0-0 1-1→0.5→2
 //! ```
 //!
 //! * Optional leading metadata lines `# key=value`, kept in order.

@@ -1,0 +1,92 @@
+//! Full verification: every checksum, every record.
+
+use crate::error::Result;
+use crate::format::read_varint;
+
+use super::{guard, options::BlockLayout, Table, VerifyReport};
+
+pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
+    let data = table.data();
+    let mut report = VerifyReport::default();
+    for e in &table.entries {
+        let range = e.offset as usize..(e.offset + e.length) as usize;
+        if crc32fast::hash(&data[range]) != e.crc32 {
+            let name = crate::format::SectionKind::from_id(e.kind).map_or("unknown", |k| k.name());
+            return Err(table.corrupt(format!(
+                "the {name} section (id {}) fails its checksum",
+                e.kind
+            )));
+        }
+        report.sections += 1;
+    }
+    match guard(|| table.index.as_fst().verify()) {
+        Some(Ok(())) => {}
+        _ => return Err(table.corrupt("the source index fails the fst's own checksum")),
+    }
+
+    // Vocabulary: every word readable.
+    let s = &table.sections;
+    for w in 0..s.words {
+        s.word(data, w).map_err(|r| table.corrupt(r))?;
+    }
+    // Targets: decoded in sequence, samples where they belong, nothing left over.
+    let td = s.target_data(data);
+    let mut pos = 0usize;
+    let interval = u64::from(crate::format::TARGET_SAMPLE_INTERVAL);
+    for t in 0..s.targets {
+        if t % interval == 0 && s.target_sample(data, (t / interval) as usize) != pos as u64 {
+            return Err(table.corrupt(format!("target sample {} is misplaced", t / interval)));
+        }
+        let bad = || table.corrupt(format!("target {t} is malformed"));
+        let n = read_varint(td, &mut pos).ok_or_else(bad)?;
+        if n == 0 {
+            return Err(bad());
+        }
+        for _ in 0..n.min(td.len() as u64 + 1) {
+            let w = read_varint(td, &mut pos).ok_or_else(bad)?;
+            if w >= s.words {
+                return Err(
+                    table.corrupt(format!("target {t} uses word {w} outside the vocabulary"))
+                );
+            }
+        }
+        report.targets += 1;
+    }
+    if s.target_sample(data, s.sample_count() - 1) != pos as u64 || pos != td.len() {
+        return Err(table.corrupt("the target data has unexplained trailing bytes"));
+    }
+    // Blocks: every column parses to its end.
+    let mut scratch = Vec::new();
+    for b in 0..s.blocks {
+        let bytes = table.block_bytes(b, &mut scratch)?;
+        let layout = BlockLayout::parse(table, bytes, table.sources_in_block(b))?;
+        layout.check_complete(table, bytes)?;
+        report.blocks += 1;
+    }
+    // Every pair through the index: ordinals in sequence, links inside their phrases.
+    for pair in table.pairs_iter() {
+        let pair = pair?;
+        let (sl, tl) = (
+            pair.source.split(' ').count(),
+            pair.target.split(' ').count(),
+        );
+        if let Some(&(i, j)) = pair
+            .alignment
+            .iter()
+            .find(|&&(i, j)| usize::from(i) >= sl || usize::from(j) >= tl)
+        {
+            return Err(table.corrupt(format!(
+                "the pair ({:?}, {:?}) has link {i}-{j} outside its phrases",
+                pair.source, pair.target
+            )));
+        }
+        report.pairs += 1;
+    }
+    if report.pairs != table.meta.pairs {
+        return Err(table.corrupt(format!(
+            "{} pairs decoded, the metadata says {}",
+            report.pairs, table.meta.pairs
+        )));
+    }
+    Ok(report)
+}
