@@ -1,1 +1,4 @@
 //! Integration tests: the command line and the library's public API.
+
+mod pack;
+mod util;

@@ -1,0 +1,421 @@
+//! Packing, lookup, dump and inspect: round trips, damaged files, command-line behaviour.
+
+use std::collections::BTreeMap;
+
+use baler::pack::{pack_tsv, PackOptions};
+use baler::table::{Header, PhrasePair, TsvWriter};
+use baler::Table;
+use proptest::prelude::*;
+use proptest::strategy::ValueTree;
+
+use crate::util::{baler, baler_ok, s};
+
+/// A random table: schema, metadata and unique (source, target) pairs.
+#[derive(Clone, Debug)]
+struct RandomTable {
+    header: Header,
+    pairs: Vec<PhrasePair>,
+}
+
+impl RandomTable {
+    fn tsv(&self) -> String {
+        let mut w = TsvWriter::new(Vec::new(), &self.header).unwrap();
+        for p in &self.pairs {
+            w.write_pair(p).unwrap();
+        }
+        String::from_utf8(w.into_inner()).unwrap()
+    }
+}
+
+const WORDS: &[&str] = &[
+    "a", "b", "c", "dd", "eé", "f", "gg", "h", "über", "kai", "лес", "x",
+];
+
+fn phrase() -> impl Strategy<Value = String> {
+    prop::collection::vec(prop::sample::select(WORDS), 1..4).prop_map(|w| w.join(" "))
+}
+
+fn random_table() -> impl Strategy<Value = RandomTable> {
+    let schema = (
+        0usize..4,
+        prop::collection::vec(any::<bool>(), 6),
+        any::<bool>(),
+    );
+    (
+        schema,
+        prop::collection::btree_map((phrase(), phrase()), any::<u64>(), 1..120),
+    )
+        .prop_map(|((n_scores, count_mask, alignment), keys)| {
+            let mut header = Header::default();
+            let names = ["p_t_given_s", "p_s_given_t", "lex_t_given_s", "weight"];
+            header.schema.scores = names[..n_scores].iter().map(|s| s.to_string()).collect();
+            header.schema.counts = baler::table::CountColumn::ALL
+                .into_iter()
+                .zip(count_mask)
+                .filter_map(|(c, keep)| keep.then_some(c))
+                .collect();
+            header.schema.alignment = alignment;
+            header.metadata.set("sentence_pairs", "1000");
+            let pairs = keys
+                .into_iter()
+                .map(|((source, target), seed)| {
+                    let sl = source.split(' ').count() as u16;
+                    let tl = target.split(' ').count() as u16;
+                    let mut x = seed;
+                    let mut next = || {
+                        x = x
+                            .wrapping_mul(6364136223846793005)
+                            .wrapping_add(1442695040888963407);
+                        x >> 11
+                    };
+                    let scores = (0..n_scores)
+                        .map(|c| {
+                            let u = (next() % 1_000_000 + 1) as f64 / 1_000_000.0;
+                            if c == 3 {
+                                u * 10.0 - 5.0
+                            } else {
+                                u
+                            }
+                        })
+                        .collect();
+                    let counts = header.schema.counts.iter().map(|_| next() % 5000).collect();
+                    let links = if alignment {
+                        (0..sl)
+                            .map(|i| (i, (next() % u64::from(tl)) as u16))
+                            .collect()
+                    } else {
+                        Vec::new()
+                    };
+                    PhrasePair {
+                        source,
+                        target,
+                        alignment: links,
+                        scores,
+                        counts,
+                    }
+                })
+                .collect();
+            RandomTable { header, pairs }
+        })
+}
+
+fn by_key(pairs: impl IntoIterator<Item = PhrasePair>) -> BTreeMap<(String, String), PhrasePair> {
+    pairs
+        .into_iter()
+        .map(|p| ((p.source.clone(), p.target.clone()), p))
+        .collect()
+}
+
+fn pack(table: &RandomTable, options: &PackOptions) -> (tempfile::TempDir, Table) {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("t.bale");
+    pack_tsv(table.tsv().as_bytes(), "t.tsv", &path, options).unwrap();
+    let packed = Table::open(&path).unwrap();
+    (dir, packed)
+}
+
+/// Round trip: every pair comes back with exact counts and alignment, and scores within the
+/// quantization error the file itself reports.
+fn check_round_trip(table: &RandomTable, options: &PackOptions) {
+    let (_dir, packed) = pack(table, options);
+    assert_eq!(packed.header(), &table.header);
+    let back: Vec<PhrasePair> = packed.pairs_iter().collect::<baler::Result<_>>().unwrap();
+    assert_eq!(back.len(), table.pairs.len());
+    let original = by_key(table.pairs.clone());
+    let quant = &packed.meta().quantization;
+    for p in &back {
+        let o = &original[&(p.source.clone(), p.target.clone())];
+        assert_eq!((&p.alignment, &p.counts), (&o.alignment, &o.counts));
+        for (c, (&got, &want)) in p.scores.iter().zip(&o.scores).enumerate() {
+            match options.bits {
+                None => assert_eq!(got, f64::from(want as f32)),
+                Some(_) => {
+                    let err = if quant[c].domain == "log" {
+                        (got.ln() - want.ln()).abs()
+                    } else {
+                        (got - want).abs()
+                    };
+                    assert!(
+                        err <= quant[c].max_error * (1.0 + 1e-9) + 1e-12,
+                        "{err} > {}",
+                        quant[c].max_error
+                    );
+                }
+            }
+        }
+    }
+    // Every source found by lookup, with options in the documented order.
+    let order = packed
+        .schema()
+        .score_index("p_t_given_s")
+        .or((!packed.schema().scores.is_empty()).then_some(0));
+    let mut sources: Vec<&str> = table.pairs.iter().map(|p| p.source.as_str()).collect();
+    sources.dedup();
+    for source in sources {
+        let options = packed.lookup(source).unwrap();
+        let want: Vec<&PhrasePair> = table.pairs.iter().filter(|p| p.source == source).collect();
+        assert_eq!(options.len(), want.len());
+        if let Some(c) = order {
+            let scores: Vec<f64> = options.iter().map(|o| o.scores()[c]).collect();
+            assert!(scores.windows(2).all(|w| w[0] >= w[1]), "{scores:?}");
+        }
+    }
+    assert!(packed.lookup("zz top").unwrap().is_empty());
+    packed.verify().unwrap();
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 48, ..ProptestConfig::default() })]
+
+    #[test]
+    fn round_trip_quantized(table in random_table(), bits in 1u8..=16, block in 1u32..20) {
+        check_round_trip(&table, &PackOptions { bits: Some(bits), sources_per_block: block, ..Default::default() });
+    }
+
+    #[test]
+    fn round_trip_f32_uncompressed(table in random_table(), block in 1u32..5) {
+        check_round_trip(&table, &PackOptions {
+            bits: None,
+            sources_per_block: block,
+            compression: baler::format::Compression::None,
+            ..Default::default()
+        });
+    }
+
+    /// Spans agree with looking up every sub-phrase one by one.
+    #[test]
+    fn spans_match_single_lookups(table in random_table(), sentence in prop::collection::vec(prop::sample::select(WORDS), 0..12)) {
+        let (_dir, packed) = pack(&table, &PackOptions::default());
+        let spans = packed.spans(&sentence, 3).unwrap();
+        let mut expected = Vec::new();
+        for start in 0..sentence.len() {
+            for end in start + 1..=(start + 3).min(sentence.len()) {
+                let phrase = sentence[start..end].join(" ");
+                let options = packed.lookup(&phrase).unwrap();
+                if !options.is_empty() {
+                    expected.push((start, end, options.iter().map(|o| o.target().to_string()).collect::<Vec<_>>()));
+                }
+            }
+        }
+        let got: Vec<_> = spans.iter().map(|s| (s.start, s.end, s.options.iter().map(|o| o.target().to_string()).collect::<Vec<_>>())).collect();
+        prop_assert_eq!(got, expected);
+    }
+}
+
+/// A table with every kind of column, packed into several small blocks.
+fn sample_file() -> (tempfile::TempDir, std::path::PathBuf, Vec<u8>) {
+    let mut runner = proptest::test_runner::TestRunner::deterministic();
+    let mut table = random_table().new_tree(&mut runner).unwrap().current();
+    while table.pairs.len() < 60
+        || table.header.schema.scores.is_empty()
+        || !table.header.schema.alignment
+    {
+        table = random_table().new_tree(&mut runner).unwrap().current();
+    }
+    table.header.schema.counts = baler::table::CountColumn::ALL.to_vec();
+    for p in &mut table.pairs {
+        p.counts = vec![3, 4, 5, 1, 2, 2];
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("sample.bale");
+    let options = PackOptions {
+        sources_per_block: 3,
+        dictionary_bytes: 0,
+        ..Default::default()
+    };
+    pack_tsv(table.tsv().as_bytes(), "t.tsv", &path, &options).unwrap();
+    let bytes = std::fs::read(&path).unwrap();
+    (dir, path, bytes)
+}
+
+/// Everything a reader does with a file; must return (Ok or Err), never panic or hang.
+fn exercise(bytes: Vec<u8>) -> Result<(), String> {
+    let table = Table::from_bytes(bytes).map_err(|e| e.to_string())?;
+    let mut first_error = None;
+    for pair in table.pairs_iter() {
+        if let Err(e) = pair {
+            first_error.get_or_insert(e.to_string());
+            break;
+        }
+    }
+    for phrase in WORDS.iter().chain(["a b", "b c d", "лес x"].iter()) {
+        if let Err(e) = table.lookup(phrase) {
+            first_error.get_or_insert(e.to_string());
+        }
+    }
+    if let Err(e) = table.spans(WORDS, 4) {
+        first_error.get_or_insert(e.to_string());
+    }
+    let verified = table.verify().map_err(|e| e.to_string());
+    match (first_error, verified) {
+        (_, Err(e)) => Err(e),
+        (Some(e), Ok(_)) => panic!("verify passed but a read failed: {e}"),
+        (None, Ok(_)) => Ok(()),
+    }
+}
+
+/// The bytes covered by a checksum: header fields, section table, and every section.
+fn checksummed(bytes: &[u8], position: usize) -> bool {
+    if position < 16 {
+        return true;
+    }
+    let table = Table::from_bytes(bytes.to_vec()).unwrap();
+    let entries = baler::format::FILE_HEADER_LEN
+        + table.section_sizes().len() * baler::format::SECTION_ENTRY_LEN;
+    (baler::format::FILE_HEADER_LEN..entries).contains(&position)
+        || table
+            .section_sizes()
+            .iter()
+            .any(|s| (s.offset as usize..(s.offset + s.length) as usize).contains(&position))
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 400, ..ProptestConfig::default() })]
+
+    /// Mutated files: reported, never a panic; any change to checksummed bytes is detected.
+    #[test]
+    fn damaged_files_are_reported(position in any::<prop::sample::Index>(), flip in 1u8..=255) {
+        let (_dir, _path, original) = sample_file();
+        let mut bytes = original.clone();
+        let i = position.index(bytes.len());
+        bytes[i] ^= flip;
+        let outcome = exercise(bytes);
+        if checksummed(&original, i) {
+            prop_assert!(outcome.is_err(), "a change at byte {} went unnoticed", i);
+        }
+    }
+
+    /// Truncated files are reported at open.
+    #[test]
+    fn truncated_files_are_reported(cut in any::<prop::sample::Index>()) {
+        let (_dir, _path, original) = sample_file();
+        let n = cut.index(original.len());
+        prop_assert!(Table::from_bytes(original[..n].to_vec()).is_err());
+    }
+}
+
+#[test]
+fn undamaged_sample_passes_every_check() {
+    let (_dir, _path, bytes) = sample_file();
+    exercise(bytes).unwrap();
+}
+
+#[test]
+fn table_is_send_and_sync() {
+    fn assert_send_sync<T: Send + Sync>() {}
+    assert_send_sync::<Table>();
+}
+
+#[test]
+fn cli_pack_lookup_dump_inspect() {
+    let dir = tempfile::tempdir().unwrap();
+    let tsv = dir.path().join("t.tsv");
+    // Unsorted input with metadata, alignment and counts.
+    std::fs::write(
+        &tsv,
+        "# sentence_pairs=40\nsource\ttarget\talignment\tp_t_given_s\tcount\n\
+         la nave\tthe ship\t0-0 1-1\t0.25\t1\nel barco\tthe boat\t0-0 1-1\t0.5\t2\n\
+         el barco\tthe ship\t0-0 1-1\t0.5\t2\nla nave\tthe vessel\t0-0 1-1\t0.75\t3\n",
+    )
+    .unwrap();
+    let bale = dir.path().join("t.bale");
+    baler_ok(&["pack", s(&tsv), "-o", s(&bale), "-q"]);
+    let dumped = baler_ok(&["dump", s(&bale)]);
+    assert_eq!(
+        dumped,
+        "# sentence_pairs=40\nsource\ttarget\talignment\tp_t_given_s\tcount\n\
+         el barco\tthe boat\t0-0 1-1\t0.5\t2\nel barco\tthe ship\t0-0 1-1\t0.5\t2\n\
+         la nave\tthe vessel\t0-0 1-1\t0.75\t3\nla nave\tthe ship\t0-0 1-1\t0.25\t1\n"
+    );
+    let out = baler(&["lookup", s(&bale), "la nave", "el mar"], None);
+    assert_eq!(out.status.code(), Some(0));
+    let stdout = String::from_utf8(out.stdout).unwrap();
+    assert_eq!(stdout.lines().count(), 4, "{stdout}"); // metadata, header, two options
+    assert!(
+        stdout
+            .lines()
+            .nth(2)
+            .unwrap()
+            .starts_with("la nave\tthe vessel\t"),
+        "{stdout}"
+    );
+    assert!(String::from_utf8_lossy(&out.stderr).contains("1 of 2 phrases not in the table"));
+    let out = baler(&["lookup", s(&bale)], Some("el mar\n"));
+    assert_eq!(out.status.code(), Some(1));
+    let out = baler(&["lookup", s(&bale)], Some("el barco\n"));
+    assert_eq!(String::from_utf8(out.stdout).unwrap().lines().count(), 4);
+    let report = baler_ok(&["inspect", "--verify", s(&bale)]);
+    assert!(report.contains("pairs      4"), "{report}");
+    assert!(report.contains("all good"), "{report}");
+    // Dump to a file: same text; compressed by extension.
+    let back = dir.path().join("back.tsv.zst");
+    baler_ok(&["dump", s(&bale), "-o", s(&back)]);
+    let text = std::io::read_to_string(baler::files::open_input(&back).unwrap()).unwrap();
+    assert_eq!(text, dumped);
+}
+
+#[test]
+fn cli_errors_name_file_and_line_and_leave_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let tsv = dir.path().join("bad.tsv");
+    let bale = dir.path().join("bad.bale");
+    std::fs::write(&tsv, "source\ttarget\tp\na\tb\t0.5\nc\td\tnope\n").unwrap();
+    let out = baler(&["pack", s(&tsv), "-o", s(&bale), "-q"], None);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("bad.tsv:3:") && err.contains("not a number"),
+        "{err}"
+    );
+    assert!(!bale.exists());
+    assert_eq!(
+        std::fs::read_dir(dir.path()).unwrap().count(),
+        1,
+        "a temporary file was left behind"
+    );
+
+    std::fs::write(
+        &tsv,
+        "source\ttarget\tp\na\tb\t0.5\nc\td\t0.1\na\tb\t0.25\n",
+    )
+    .unwrap();
+    let out = baler(&["pack", s(&tsv), "-o", s(&bale), "-q"], None);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("bad.tsv:4:") && err.contains("appears twice (lines 2 and 4)"),
+        "{err}"
+    );
+
+    let out = baler(&["pack", s(&tsv), "-o", s(&bale), "--bits", "17"], None);
+    assert_eq!(out.status.code(), Some(2));
+
+    std::fs::write(&bale, b"not a table at all").unwrap();
+    let out = baler(&["dump", s(&bale)], None);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("not a baler table"));
+}
+
+#[test]
+fn packing_is_deterministic_and_sort_spills_agree() {
+    let mut runner = proptest::test_runner::TestRunner::deterministic();
+    let table = (0..20)
+        .map(|_| random_table().new_tree(&mut runner).unwrap().current())
+        .max_by_key(|t| t.pairs.len())
+        .unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let mut files = Vec::new();
+    for (i, (memory, threads)) in [(1u64 << 30, 1), (1, 2), (4096, 0)].into_iter().enumerate() {
+        let path = dir.path().join(format!("{i}.bale"));
+        let options = PackOptions {
+            memory,
+            threads,
+            ..Default::default()
+        };
+        pack_tsv(table.tsv().as_bytes(), "t.tsv", &path, &options).unwrap();
+        files.push(std::fs::read(&path).unwrap());
+    }
+    assert!(
+        files.windows(2).all(|w| w[0] == w[1]),
+        "output depends on memory budget or threads"
+    );
+}
