@@ -38,6 +38,16 @@ pub struct ExternalSorter {
     parent: Option<PathBuf>,
     runs: Vec<PathBuf>,
     spilled_bytes: u64,
+    in_order: bool,
+}
+
+/// The first eight key bytes as a big-endian number (shorter keys padded with zeros), which
+/// orders like the bytes themselves up to ties.
+fn prefix(key: &[u8]) -> u64 {
+    let mut b = [0u8; 8];
+    let n = key.len().min(8);
+    b[..n].copy_from_slice(&key[..n]);
+    u64::from_be_bytes(b)
 }
 
 impl ExternalSorter {
@@ -52,12 +62,18 @@ impl ExternalSorter {
             parent: temp_parent,
             runs: Vec::new(),
             spilled_bytes: 0,
+            in_order: true,
         })
     }
 
     /// Adds one record.
     pub fn push(&mut self, key: &[u8], value: &[u8]) -> Result<()> {
         let start = self.arena.len();
+        if self.in_order {
+            if let Some(&(last, klen, _)) = self.index.last() {
+                self.in_order = self.arena[last..last + klen as usize] <= *key;
+            }
+        }
         self.arena.extend_from_slice(key);
         self.arena.extend_from_slice(value);
         self.index
@@ -84,9 +100,25 @@ impl ExternalSorter {
     }
 
     fn sort_in_memory(&mut self) {
+        if self.in_order {
+            return; // pushed in key order already (the common case for pipeline outputs)
+        }
         let arena = &self.arena;
-        self.index
-            .sort_by(|a, b| arena[a.0..a.0 + a.1 as usize].cmp(&arena[b.0..b.0 + b.1 as usize]));
+        // Compare an 8-byte big-endian key prefix first, then the whole key, then the arena
+        // position, which keeps equal keys in push order without a stable sort's buffer.
+        let mut keyed: Vec<(u64, usize, u32, u32)> = self
+            .index
+            .iter()
+            .map(|&(start, klen, vlen)| (prefix(&arena[start..start + klen as usize]), start, klen, vlen))
+            .collect();
+        keyed.sort_unstable_by(|a, b| {
+            a.0.cmp(&b.0)
+                .then_with(|| arena[a.1..a.1 + a.2 as usize].cmp(&arena[b.1..b.1 + b.2 as usize]))
+                .then(a.1.cmp(&b.1))
+        });
+        self.index.clear();
+        self.index.extend(keyed.into_iter().map(|(_, start, klen, vlen)| (start, klen, vlen)));
+        self.in_order = true;
     }
 
     fn spill(&mut self) -> Result<()> {
@@ -125,6 +157,7 @@ impl ExternalSorter {
         self.runs.push(path);
         self.arena.clear();
         self.index.clear();
+        self.in_order = true;
         Ok(())
     }
 
@@ -153,9 +186,11 @@ impl ExternalSorter {
             current: None,
             _dir: self.dir.take(),
         };
-        for i in 0..merged.sources.len() {
-            merged.heads.push((Vec::new(), Vec::new()));
-            merged.advance(i)?;
+        if merged.sources.len() > 1 {
+            for i in 0..merged.sources.len() {
+                merged.heads.push((Vec::new(), Vec::new()));
+                merged.advance(i)?;
+            }
         }
         Ok(merged)
     }
@@ -251,6 +286,18 @@ impl SortedRecords {
     /// The next record in key order, or `None` at the end. The slices are valid until the next
     /// call.
     pub fn next_record(&mut self) -> Result<Option<(&[u8], &[u8])>> {
+        if self.sources.len() == 1 {
+            // Everything fitted in memory: read the sorted arena directly, no heap, no copies.
+            let Source::Memory { arena, index, next } = &mut self.sources[0] else {
+                unreachable!("a single source is the in-memory one");
+            };
+            let Some(&(start, klen, vlen)) = index.get(*next) else {
+                return Ok(None);
+            };
+            *next += 1;
+            let (k, v) = arena[start..start + (klen + vlen) as usize].split_at(klen as usize);
+            return Ok(Some((k, v)));
+        }
         let Some(top) = self.heap.pop() else {
             return Ok(None);
         };

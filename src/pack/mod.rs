@@ -15,7 +15,7 @@
 
 mod blocks;
 
-use std::collections::HashMap;
+use rustc_hash::FxHashMap as HashMap;
 use std::fs::File;
 use std::io::{BufRead, BufReader, BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
@@ -254,7 +254,7 @@ where
     // Pass 1: sort, count targets, sample scores.
     let sort_budget = (options.memory as usize / 2).max(1 << 20);
     let mut sorter = ExternalSorter::new(sort_budget, options.temp_dir.clone())?;
-    let mut target_counts: HashMap<String, u64> = HashMap::new();
+    let mut target_counts: HashMap<String, u64> = HashMap::default();
     let mut reservoirs: Vec<Reservoir> = (0..n_scores)
         .map(|_| Reservoir::new(DEFAULT_SAMPLE_SIZE))
         .collect();
@@ -606,7 +606,7 @@ fn write_file(out: &Path, parts: &[(SectionKind, Part)]) -> Result<(Vec<(Section
 /// Numbers the words of the targets by frequency (each target weighted by the options using it);
 /// returns the vocabulary section and the word ids.
 fn build_vocabulary(targets: &[(String, u64)]) -> (Vec<u8>, HashMap<&str, u32>) {
-    let mut freq: HashMap<&str, u64> = HashMap::new();
+    let mut freq: HashMap<&str, u64> = HashMap::default();
     for (t, c) in targets {
         for w in t.split(' ') {
             *freq.entry(w).or_insert(0) += c;

@@ -350,6 +350,28 @@ impl Table {
         Ok(spans)
     }
 
+    /// Every source phrase in byte order (read from the index alone, no blocks decoded).
+    pub fn source_phrases(&self) -> impl Iterator<Item = Result<String>> + '_ {
+        use fst::Streamer;
+        let mut stream = self.index.stream();
+        let mut left = self.meta.sources;
+        let mut failed = false;
+        std::iter::from_fn(move || {
+            if failed || left == 0 {
+                return None;
+            }
+            left -= 1;
+            let next = guard(|| stream.next().map(|(k, _)| k.to_vec()));
+            let item = match next {
+                Some(Some(key)) => String::from_utf8(key).map_err(|_| self.corrupt("a source phrase is not UTF-8")),
+                Some(None) => Err(self.corrupt("the source index ends early")),
+                None => Err(self.damaged_index()),
+            };
+            failed = item.is_err();
+            Some(item)
+        })
+    }
+
     /// Every pair in source byte order, options in stored order, scores as quantized values.
     pub fn pairs_iter(&self) -> PairIter<'_> {
         PairIter::new(self)
