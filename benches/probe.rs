@@ -32,9 +32,15 @@ fn splitmix(state: &mut u64) -> u64 {
 }
 
 fn main() {
-    let args: Vec<String> = std::env::args().skip(1).filter(|a| a != "--bench").collect();
+    let args: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| a != "--bench")
+        .collect();
     let (table_path, tsv_path) = (Path::new(&args[0]), Path::new(&args[1]));
-    let lookups: usize = args.get(2).and_then(|v| v.parse().ok()).unwrap_or(1_000_000);
+    let lookups: usize = args
+        .get(2)
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(1_000_000);
 
     let rss_start = rss_anon_kib();
     let mut opens = Vec::new();
@@ -49,16 +55,24 @@ fn main() {
 
     // Queries: 100 000 sources spread over the table (every k-th in byte order), shuffled.
     let step = (table.sources() / 100_000).max(1) as usize;
-    let distinct: Vec<String> = table.source_phrases().step_by(step).map(|s| s.unwrap()).collect();
+    let distinct: Vec<String> = table
+        .source_phrases()
+        .step_by(step)
+        .map(|s| s.unwrap())
+        .collect();
     let mut state = 42u64;
-    let order: Vec<u32> = (0..lookups).map(|_| (splitmix(&mut state) % distinct.len() as u64) as u32).collect();
+    let order: Vec<u32> = (0..lookups)
+        .map(|_| (splitmix(&mut state) % distinct.len() as u64) as u32)
+        .collect();
     let rss_queries = rss_anon_kib();
 
     let mut options = Options::default();
     let t = Instant::now();
     let mut touched = 0usize;
     for &i in &order {
-        table.lookup_into(&distinct[i as usize], &mut options).unwrap();
+        table
+            .lookup_into(&distinct[i as usize], &mut options)
+            .unwrap();
         for o in options.iter() {
             touched += o.target().len() + o.scores().len();
         }

@@ -28,12 +28,15 @@ fn benches(c: &mut Criterion) {
             || tempfile::tempdir().unwrap(),
             |dir| {
                 let out = dir.path().join("t.bale");
-                baler::pack::pack_pairs(&header, pairs.iter().cloned().map(Ok), &out, &options).unwrap();
+                baler::pack::pack_pairs(&header, pairs.iter().cloned().map(Ok), &out, &options)
+                    .unwrap();
             },
             BatchSize::PerIteration,
         )
     });
-    g.bench_function("hashmap_build", |b| b.iter(|| black_box(common::baseline(&pairs)).len()));
+    g.bench_function("hashmap_build", |b| {
+        b.iter(|| black_box(common::baseline(&pairs)).len())
+    });
     g.finish();
 
     let mut sources: Vec<String> = pairs.iter().map(|p| p.source.clone()).collect();
@@ -70,7 +73,10 @@ fn benches(c: &mut Criterion) {
     }
 
     let sentences = common::sentences(&pairs, 200, 25);
-    let sentences: Vec<Vec<&str>> = sentences.iter().map(|s| s.iter().map(String::as_str).collect()).collect();
+    let sentences: Vec<Vec<&str>> = sentences
+        .iter()
+        .map(|s| s.iter().map(String::as_str).collect())
+        .collect();
     let mut g = c.benchmark_group("spans_25_tokens");
     g.throughput(Throughput::Elements(sentences.len() as u64));
     g.bench_function("baler", |b| {
@@ -97,7 +103,9 @@ fn benches(c: &mut Criterion) {
     g.finish();
 
     let mut g = c.benchmark_group("open");
-    g.bench_function("baler", |b| b.iter(|| black_box(Table::open(&path).unwrap()).pairs()));
+    g.bench_function("baler", |b| {
+        b.iter(|| black_box(Table::open(&path).unwrap()).pairs())
+    });
     g.finish();
 }
 

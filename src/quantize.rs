@@ -32,6 +32,8 @@ pub struct Codebook {
     centres: Vec<f64>,
     values: Vec<f64>,
     midpoints: Vec<f64>,
+    /// The values are the column's distinct values themselves (no rounding at all).
+    exact: bool,
 }
 
 impl Codebook {
@@ -53,13 +55,19 @@ impl Codebook {
             }
         }
         let k = 1usize << bits;
-        if points.len() <= k {
+        // Negative zero is stored as zero (it would otherwise share a code with zero).
+        let mut values: Vec<f64> = samples.iter().map(|&v| v + 0.0).collect();
+        values.sort_by(f64::total_cmp);
+        values.dedup();
+        if values.len() <= k {
             // Few distinct values: store them exactly (not as exp(ln(v)), which may differ in
-            // the last bit).
-            let mut values: Vec<f64> = samples.to_vec();
-            values.sort_by(f64::total_cmp);
-            values.dedup();
-            return Codebook::from_values(domain, values);
+            // the last bit), and encode by exact search in the values themselves.
+            if values.is_empty() {
+                values.push(0.0); // an empty column still has a one-entry codebook
+            }
+            let mut book = Codebook::from_values(domain, values);
+            book.exact = true;
+            return book;
         }
         Codebook::from_centres(domain, lloyd(&points, k))
     }
@@ -81,6 +89,7 @@ impl Codebook {
             centres,
             values,
             midpoints,
+            exact: false,
         }
     }
 
@@ -93,6 +102,7 @@ impl Codebook {
             centres,
             values,
             midpoints,
+            exact: false,
         }
     }
 
@@ -118,6 +128,13 @@ impl Codebook {
 
     /// The code of the centre nearest to `value` in the fitted domain.
     pub fn encode(&self, value: f64) -> u16 {
+        if self.exact {
+            let value = value + 0.0;
+            let i = self.values.partition_point(|&v| v < value);
+            let nearer_below = i == self.values.len()
+                || (i > 0 && value - self.values[i - 1] <= self.values[i] - value);
+            return if nearer_below { i - 1 } else { i } as u16;
+        }
         let x = to_domain(self.domain, value);
         self.midpoints.partition_point(|&m| m < x) as u16
     }

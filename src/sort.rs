@@ -109,7 +109,14 @@ impl ExternalSorter {
         let mut keyed: Vec<(u64, usize, u32, u32)> = self
             .index
             .iter()
-            .map(|&(start, klen, vlen)| (prefix(&arena[start..start + klen as usize]), start, klen, vlen))
+            .map(|&(start, klen, vlen)| {
+                (
+                    prefix(&arena[start..start + klen as usize]),
+                    start,
+                    klen,
+                    vlen,
+                )
+            })
             .collect();
         keyed.sort_unstable_by(|a, b| {
             a.0.cmp(&b.0)
@@ -117,7 +124,11 @@ impl ExternalSorter {
                 .then(a.1.cmp(&b.1))
         });
         self.index.clear();
-        self.index.extend(keyed.into_iter().map(|(_, start, klen, vlen)| (start, klen, vlen)));
+        self.index.extend(
+            keyed
+                .into_iter()
+                .map(|(_, start, klen, vlen)| (start, klen, vlen)),
+        );
         self.in_order = true;
     }
 

@@ -15,12 +15,19 @@ pub type Baseline = HashMap<String, Vec<(String, Vec<f32>)>>;
 
 /// Pairs to generate: `BALER_BENCH_PAIRS` or 200 000.
 pub fn bench_pairs() -> u64 {
-    std::env::var("BALER_BENCH_PAIRS").ok().and_then(|v| v.parse().ok()).unwrap_or(200_000)
+    std::env::var("BALER_BENCH_PAIRS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(200_000)
 }
 
 /// A generated table (four scores, no counts or alignment).
 pub fn generate(pairs: u64) -> (Header, Vec<PhrasePair>) {
-    let mut generator = Generator::new(&SynthOptions { pairs, ..Default::default() }).expect("valid options");
+    let mut generator = Generator::new(&SynthOptions {
+        pairs,
+        ..Default::default()
+    })
+    .expect("valid options");
     let header = generator.header();
     let mut out = Vec::with_capacity(pairs as usize);
     let mut pair = PhrasePair::default();
@@ -35,7 +42,9 @@ pub fn baseline(pairs: &[PhrasePair]) -> Baseline {
     let mut map: Baseline = HashMap::new();
     for p in pairs {
         let scores = p.scores.iter().map(|&s| s as f32).collect();
-        map.entry(p.source.clone()).or_default().push((p.target.clone(), scores));
+        map.entry(p.source.clone())
+            .or_default()
+            .push((p.target.clone(), scores));
     }
     for options in map.values_mut() {
         options.sort_by(|a, b| b.1[0].total_cmp(&a.1[0]).then_with(|| a.0.cmp(&b.0)));
@@ -44,7 +53,11 @@ pub fn baseline(pairs: &[PhrasePair]) -> Baseline {
 }
 
 /// Packs the table with default options into a temporary directory.
-pub fn pack(header: &Header, pairs: &[PhrasePair], options: &baler::pack::PackOptions) -> (tempfile::TempDir, PathBuf) {
+pub fn pack(
+    header: &Header,
+    pairs: &[PhrasePair],
+    options: &baler::pack::PackOptions,
+) -> (tempfile::TempDir, PathBuf) {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("bench.bale");
     baler::pack::pack_pairs(header, pairs.iter().cloned().map(Ok), &path, options).unwrap();
@@ -61,7 +74,9 @@ pub fn shuffled<T: Clone>(items: &[T], n: usize, seed: u64) -> Vec<T> {
         z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
         z ^ (z >> 31)
     };
-    (0..n).map(|_| items[(next() % items.len() as u64) as usize].clone()).collect()
+    (0..n)
+        .map(|_| items[(next() % items.len() as u64) as usize].clone())
+        .collect()
 }
 
 /// Sentences of `len` tokens built from the words of source phrases, so spans hit often.
@@ -74,12 +89,24 @@ pub fn sentences(pairs: &[PhrasePair], count: usize, len: usize) -> Vec<Vec<Stri
     let picks = shuffled(&sources, count * len, 7);
     picks
         .chunks(len)
-        .map(|chunk| chunk.iter().flat_map(|s| s.split(' ')).take(len).map(str::to_string).collect())
+        .map(|chunk| {
+            chunk
+                .iter()
+                .flat_map(|s| s.split(' '))
+                .take(len)
+                .map(str::to_string)
+                .collect()
+        })
         .collect()
 }
 
 /// The baseline's version of `Table::spans`: every sub-phrase up to `max_len` looked up.
-pub fn baseline_spans<'a>(map: &'a Baseline, tokens: &[&str], max_len: usize, key: &mut String) -> usize {
+pub fn baseline_spans<'a>(
+    map: &'a Baseline,
+    tokens: &[&str],
+    max_len: usize,
+    key: &mut String,
+) -> usize {
     let mut found = 0;
     for start in 0..tokens.len() {
         key.clear();

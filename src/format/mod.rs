@@ -32,8 +32,8 @@ pub const SECTION_ALIGN: u64 = 8;
 /// Most sections a file may declare (a bound for hostile headers).
 pub const MAX_SECTIONS: u32 = 64;
 
-/// Every target-phrase offset sample covers this many targets.
-pub const TARGET_SAMPLE_INTERVAL: u32 = 16;
+/// The largest raw (decompressed) option block writers produce and readers accept.
+pub const MAX_BLOCK_BYTES: u64 = 256 << 20;
 
 /// Score storage modes in the codebook section.
 pub mod score_mode {
@@ -81,7 +81,7 @@ pub enum SectionKind {
     Codebooks = 2,
     /// Target vocabulary: word strings by token id.
     Vocabulary = 3,
-    /// Deduplicated target phrases as token ids, with sampled offsets.
+    /// Deduplicated target phrases as token ids, referenced by byte offset.
     Targets = 4,
     /// `fst` map from source phrase bytes to source ordinal.
     SourceIndex = 5,

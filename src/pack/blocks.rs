@@ -2,7 +2,7 @@
 //!
 //! A raw block holds, for the sources it covers in ordinal order: one varint option count per
 //! source; then per score column the codes of every option (fixed width); then one varint
-//! target id per option; then (if stored) per option a varint link count and varint `i`, `j` per
+//! target reference (byte offset of the target's record in the target data) per option; then (if stored) per option a varint link count and varint `i`, `j` per
 //! link; then (if stored) per count column one varint per option.
 
 use std::fs::File;
@@ -18,7 +18,7 @@ use super::PackOptions;
 /// One option as the packer holds it before encoding.
 pub(super) struct PackedOption {
     pub target: Vec<u8>,
-    pub target_id: u32,
+    pub target_ref: u64,
     pub scores: Vec<f64>,
     pub alignment: Vec<(u16, u16)>,
     pub counts: Vec<u64>,
@@ -31,7 +31,7 @@ pub(super) struct BlockBuilder {
     sources: u32,
     option_counts: Vec<u8>,
     scores: Vec<Vec<u8>>,
-    target_ids: Vec<u8>,
+    target_refs: Vec<u8>,
     links: Vec<u8>,
     counts: Vec<Vec<u8>>,
 }
@@ -47,7 +47,7 @@ impl BlockBuilder {
             sources: 0,
             option_counts: Vec::new(),
             scores: vec![Vec::new(); modes.len()],
-            target_ids: Vec::new(),
+            target_refs: Vec::new(),
             links: Vec::new(),
             counts: vec![Vec::new(); n_counts],
         }
@@ -69,7 +69,7 @@ impl BlockBuilder {
                     (Some(b), _) => col.extend_from_slice(&b.encode(s).to_le_bytes()),
                 }
             }
-            write_varint(&mut self.target_ids, u64::from(o.target_id));
+            write_varint(&mut self.target_refs, o.target_ref);
             if self.alignment {
                 write_varint(&mut self.links, o.alignment.len() as u64);
                 for &(i, j) in &o.alignment {
@@ -89,7 +89,7 @@ impl BlockBuilder {
         for col in &mut self.scores {
             out.append(col);
         }
-        out.append(&mut self.target_ids);
+        out.append(&mut self.target_refs);
         out.append(&mut self.links);
         for col in &mut self.counts {
             out.append(col);

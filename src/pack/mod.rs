@@ -293,14 +293,14 @@ where
     let mut targets: Vec<(String, u64)> = target_counts.into_iter().collect();
     targets.sort_unstable_by(|a, b| b.1.cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
     let (vocabulary_section, words) = build_vocabulary(&targets);
-    let targets_section = build_targets(&targets, &words);
+    let (targets_section, target_offsets) = build_targets(&targets, &words);
     let n_targets = targets.len() as u64;
     let n_words = words.len() as u64;
     drop(words);
-    let target_ids: HashMap<String, u32> = targets
+    let target_refs: HashMap<String, u64> = targets
         .into_iter()
-        .enumerate()
-        .map(|(i, (t, _))| (t, i as u32))
+        .zip(target_offsets)
+        .map(|((t, _), offset)| (t, offset))
         .collect();
 
     let codebooks: Vec<Option<Codebook>> = reservoirs
@@ -393,7 +393,7 @@ where
         }
         group.push(PackedOption {
             target: target.to_vec(),
-            target_id: target_ids[target_str],
+            target_ref: target_refs[target_str],
             scores: decoded.scores,
             alignment: decoded.alignment,
             counts: decoded.counts,
@@ -406,7 +406,7 @@ where
     writer.add_source(&group_source, &mut group)?;
     bar.finish_and_clear();
     drop(merged);
-    drop(target_ids);
+    drop(target_refs);
     let WrittenSources {
         sources,
         block_sizes,
@@ -633,34 +633,21 @@ fn build_vocabulary(targets: &[(String, u64)]) -> (Vec<u8>, HashMap<&str, u32>) 
     (section, ids)
 }
 
-/// The target section: count, sample interval, sampled offsets, then each target as a varint
-/// token count followed by varint token ids.
-fn build_targets(targets: &[(String, u64)], words: &HashMap<&str, u32>) -> Vec<u8> {
-    let interval = format::TARGET_SAMPLE_INTERVAL as usize;
-    let mut data = Vec::new();
-    let mut samples = Vec::with_capacity(targets.len() / interval + 2);
-    let mut ids = Vec::new();
-    for (i, (t, _)) in targets.iter().enumerate() {
-        if i % interval == 0 {
-            samples.push(data.len() as u64);
-        }
-        ids.clear();
-        ids.extend(t.split(' ').map(|w| words[w]));
-        write_varint(&mut data, ids.len() as u64);
-        for &id in &ids {
-            write_varint(&mut data, u64::from(id));
-        }
-    }
-    samples.push(data.len() as u64);
-    let mut section = Vec::with_capacity(16 + samples.len() * 8 + data.len());
+/// The target section: the count, then each target as a varint token count followed by varint
+/// token ids. Returns the section and each target's offset within the data after the count,
+/// which is how options refer to it.
+fn build_targets(targets: &[(String, u64)], words: &HashMap<&str, u32>) -> (Vec<u8>, Vec<u64>) {
+    let mut section = Vec::new();
     section.extend_from_slice(&(targets.len() as u64).to_le_bytes());
-    section.extend_from_slice(&format::TARGET_SAMPLE_INTERVAL.to_le_bytes());
-    section.extend_from_slice(&0u32.to_le_bytes());
-    for s in samples {
-        section.extend_from_slice(&s.to_le_bytes());
+    let mut offsets = Vec::with_capacity(targets.len());
+    for (t, _) in targets {
+        offsets.push((section.len() - 8) as u64);
+        write_varint(&mut section, t.split(' ').count() as u64);
+        for w in t.split(' ') {
+            write_varint(&mut section, u64::from(words[w]));
+        }
     }
-    section.extend_from_slice(&data);
-    section
+    (section, offsets)
 }
 
 fn build_codebooks(codebooks: &[Option<Codebook>], widths: &[(u8, u8)]) -> Vec<u8> {
@@ -833,6 +820,17 @@ impl SourceWriter<'_> {
 
     fn write_block(&mut self) -> Result<()> {
         let raw = self.builder.finish();
+        if raw.len() as u64 > format::MAX_BLOCK_BYTES {
+            return Err(Error::invalid(
+                "--block-sources",
+                format!(
+                    "a block of {} sources takes {} bytes, over the {}-byte limit; use fewer sources per block",
+                    self.sources_per_block,
+                    raw.len(),
+                    format::MAX_BLOCK_BYTES
+                ),
+            ));
+        }
         self.max_block = self.max_block.max(raw.len());
         let werr = |e| Error::io(self.raw_path, "writing", e);
         self.raw_out

@@ -67,8 +67,7 @@ pub struct SectionSize {
     pub length: u64,
 }
 
-/// The largest decompressed block a reader accepts.
-pub const MAX_BLOCK_BYTES: u64 = 256 << 20;
+pub use crate::format::MAX_BLOCK_BYTES;
 
 impl Table {
     /// Memory-maps and validates the table at `path`.
@@ -363,7 +362,9 @@ impl Table {
             left -= 1;
             let next = guard(|| stream.next().map(|(k, _)| k.to_vec()));
             let item = match next {
-                Some(Some(key)) => String::from_utf8(key).map_err(|_| self.corrupt("a source phrase is not UTF-8")),
+                Some(Some(key)) => {
+                    String::from_utf8(key).map_err(|_| self.corrupt("a source phrase is not UTF-8"))
+                }
                 Some(None) => Err(self.corrupt("the source index ends early")),
                 None => Err(self.damaged_index()),
             };
@@ -410,8 +411,9 @@ impl Table {
         let rank = (ordinal % per) as usize;
         let mut raw = std::mem::take(&mut options.scratch);
         let result = self.block_bytes(block, &mut raw).and_then(|bytes| {
-            let layout = options::BlockLayout::parse(self, bytes, self.sources_in_block(block))?;
-            layout.decode_source(self, bytes, rank, options)
+            let layout =
+                options::BlockLayout::parse(self, bytes, self.sources_in_block(block), rank)?;
+            layout.decode_source(self, bytes, options)
         });
         options.scratch = raw;
         result
@@ -583,11 +585,11 @@ impl<'a> PairIter<'a> {
             let n = table.sources_in_block(block);
             let mut scratch = std::mem::take(&mut self.scratch);
             let bytes = table.block_bytes(block, &mut scratch)?;
-            let layout = options::BlockLayout::parse(table, bytes, n)?;
             self.block.clear();
             for r in 0..n {
                 let mut o = Options::default();
-                layout.decode_source(table, bytes, r, &mut o)?;
+                let layout = options::BlockLayout::parse(table, bytes, n, r)?;
+                layout.decode_source(table, bytes, &mut o)?;
                 self.block.push(o);
             }
             self.scratch = scratch;

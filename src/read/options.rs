@@ -138,28 +138,40 @@ pub struct Span {
     pub options: Options,
 }
 
-/// Where the columns of one raw block start.
+/// Where the columns of one raw block start, and which options belong to one of its sources.
 pub(super) struct BlockLayout {
-    starts: Vec<usize>,
+    /// First option of the selected source.
+    first: usize,
+    /// One past its last option.
+    end: usize,
+    /// Options in the whole block.
+    total: usize,
     scores_start: usize,
     targets_start: usize,
 }
 
 impl BlockLayout {
-    pub(super) fn parse(table: &Table, bytes: &[u8], sources: usize) -> Result<BlockLayout> {
+    /// Reads the option counts of a block of `sources` sources, selecting source `rank`.
+    pub(super) fn parse(
+        table: &Table,
+        bytes: &[u8],
+        sources: usize,
+        rank: usize,
+    ) -> Result<BlockLayout> {
         let mut pos = 0;
-        let mut starts = Vec::with_capacity(sources + 1);
-        starts.push(0usize);
-        let mut total = 0usize;
-        for _ in 0..sources {
+        let (mut first, mut end, mut total) = (0, 0, 0usize);
+        for r in 0..sources {
             let n = read_varint(bytes, &mut pos)
                 .filter(|&n| n >= 1 && n <= bytes.len() as u64)
                 .ok_or_else(|| table.corrupt("a block's option counts are malformed"))?;
+            if r == rank {
+                first = total;
+                end = total + n as usize;
+            }
             total += n as usize;
-            starts.push(total);
-        }
-        if total > bytes.len() {
-            return Err(table.corrupt("a block claims more options than it has bytes"));
+            if total > bytes.len() {
+                return Err(table.corrupt("a block claims more options than it has bytes"));
+            }
         }
         let scores_start = pos;
         let width: usize = table.codecs.iter().map(|c| c.width()).sum();
@@ -168,27 +180,25 @@ impl BlockLayout {
             return Err(table.corrupt("a block's score columns are cut off"));
         }
         Ok(BlockLayout {
-            starts,
+            first,
+            end,
+            total,
             scores_start,
             targets_start,
         })
     }
 
-    fn total(&self) -> usize {
-        *self.starts.last().unwrap()
-    }
-
-    /// Decodes the `rank`-th source of the block into `out`.
+    /// Decodes the selected source's options into `out`.
     pub(super) fn decode_source(
         &self,
         table: &Table,
         bytes: &[u8],
-        rank: usize,
         out: &mut Options,
     ) -> Result<()> {
         let data = table.data();
-        let total = self.total();
-        let (first, end) = (self.starts[rank], self.starts[rank + 1]);
+        let BlockLayout {
+            first, end, total, ..
+        } = *self;
         out.clear();
         if out
             .schema
@@ -208,17 +218,16 @@ impl BlockLayout {
                 col += w * total;
             }
         }
-        let mut pos = self.targets_start;
         let malformed =
             |what: &str| table.corrupt(format!("a block's {what} are cut off or malformed"));
-        for _ in 0..first {
-            read_varint(bytes, &mut pos).ok_or_else(|| malformed("target ids"))?;
-        }
+        let mut pos = self.targets_start;
+        skip_varints(bytes, &mut pos, first).ok_or_else(|| malformed("target references"))?;
         for _ in first..end {
-            let id = read_varint(bytes, &mut pos).ok_or_else(|| malformed("target ids"))?;
+            let offset =
+                read_varint(bytes, &mut pos).ok_or_else(|| malformed("target references"))?;
             table
                 .sections
-                .append_target(data, id, &mut out.text)
+                .append_target(data, offset, &mut out.text)
                 .map_err(|r| table.corrupt(r))?;
             out.ends.push(out.text.len());
         }
@@ -226,66 +235,69 @@ impl BlockLayout {
         if !schema.alignment && schema.counts.is_empty() {
             return Ok(());
         }
-        for _ in end..total {
-            read_varint(bytes, &mut pos).ok_or_else(|| malformed("target ids"))?;
-        }
+        skip_varints(bytes, &mut pos, total - end).ok_or_else(|| malformed("target references"))?;
         if schema.alignment {
             for k in 0..total {
                 let n = read_varint(bytes, &mut pos).ok_or_else(|| malformed("alignments"))?;
                 if n > bytes.len() as u64 {
                     return Err(malformed("alignments"));
                 }
-                let keep = (first..end).contains(&k);
+                if !(first..end).contains(&k) {
+                    skip_varints(bytes, &mut pos, 2 * n as usize)
+                        .ok_or_else(|| malformed("alignments"))?;
+                    continue;
+                }
                 for _ in 0..n {
                     let i = read_varint(bytes, &mut pos).ok_or_else(|| malformed("alignments"))?;
                     let j = read_varint(bytes, &mut pos).ok_or_else(|| malformed("alignments"))?;
-                    if keep {
-                        let (Ok(i), Ok(j)) = (u16::try_from(i), u16::try_from(j)) else {
-                            return Err(malformed("alignments"));
-                        };
-                        out.links.push((i, j));
-                    }
+                    let (Ok(i), Ok(j)) = (u16::try_from(i), u16::try_from(j)) else {
+                        return Err(malformed("alignments"));
+                    };
+                    out.links.push((i, j));
                 }
-                if keep {
-                    out.link_ends.push(out.links.len());
-                }
+                out.link_ends.push(out.links.len());
             }
         }
         let n_counts = schema.counts.len();
         if n_counts > 0 {
             out.counts.resize((end - first) * n_counts, 0);
             for c in 0..n_counts {
-                for k in 0..total {
-                    let v = read_varint(bytes, &mut pos).ok_or_else(|| malformed("counts"))?;
-                    if (first..end).contains(&k) {
-                        out.counts[(k - first) * n_counts + c] = v;
-                    }
+                skip_varints(bytes, &mut pos, first).ok_or_else(|| malformed("counts"))?;
+                for k in 0..end - first {
+                    out.counts[k * n_counts + c] =
+                        read_varint(bytes, &mut pos).ok_or_else(|| malformed("counts"))?;
                 }
+                skip_varints(bytes, &mut pos, total - end).ok_or_else(|| malformed("counts"))?;
             }
         }
         Ok(())
     }
 
-    /// Parses every column to its end; the block must hold nothing more.
-    pub(super) fn check_complete(&self, table: &Table, bytes: &[u8]) -> Result<()> {
+    /// Parses every column to its end (the block must hold nothing more) and calls `each_target`
+    /// with every target reference.
+    pub(super) fn check_complete(
+        &self,
+        table: &Table,
+        bytes: &[u8],
+        mut each_target: impl FnMut(u64) -> Result<()>,
+    ) -> Result<()> {
         let schema = &table.shared_schema;
-        let total = self.total();
+        let total = self.total;
         let mut pos = self.targets_start;
         let bad = || table.corrupt("a block's columns are cut off or malformed");
         for _ in 0..total {
-            read_varint(bytes, &mut pos).ok_or_else(bad)?;
+            each_target(read_varint(bytes, &mut pos).ok_or_else(bad)?)?;
         }
         if schema.alignment {
             for _ in 0..total {
                 let n = read_varint(bytes, &mut pos).ok_or_else(bad)?;
-                for _ in 0..n.min(bytes.len() as u64 + 1) * 2 {
-                    read_varint(bytes, &mut pos).ok_or_else(bad)?;
+                if n > bytes.len() as u64 {
+                    return Err(bad());
                 }
+                skip_varints(bytes, &mut pos, 2 * n as usize).ok_or_else(bad)?;
             }
         }
-        for _ in 0..total * schema.counts.len() {
-            read_varint(bytes, &mut pos).ok_or_else(bad)?;
-        }
+        skip_varints(bytes, &mut pos, total * schema.counts.len()).ok_or_else(bad)?;
         if pos != bytes.len() {
             return Err(table.corrupt(format!(
                 "a block has {} unexplained trailing bytes",
@@ -294,4 +306,24 @@ impl BlockLayout {
         }
         Ok(())
     }
+}
+
+/// Skips `n` varints by counting their final bytes (those below 0x80).
+#[inline]
+fn skip_varints(bytes: &[u8], pos: &mut usize, n: usize) -> Option<()> {
+    if n == 0 {
+        return Some(());
+    }
+    let rest = bytes.get(*pos..)?;
+    let mut seen = 0;
+    for (i, &b) in rest.iter().enumerate() {
+        if b < 0x80 {
+            seen += 1;
+            if seen == n {
+                *pos += i + 1;
+                return Some(());
+            }
+        }
+    }
+    None
 }

@@ -112,8 +112,6 @@ pub(crate) struct Sections {
     word_offsets: usize,
     word_bytes: Range<usize>,
     pub targets: u64,
-    target_samples: usize,
-    sample_count: usize,
     target_data: Range<usize>,
     block_index: usize,
     pub blocks: u64,
@@ -145,25 +143,10 @@ impl Sections {
         let word_bytes = word_offsets + offsets_len as usize..vocabulary.end;
 
         let t = &data[targets.clone()];
-        if t.len() < 16 || LE::read_u64(t) != meta.targets {
+        if t.len() < 8 || LE::read_u64(t) != meta.targets {
             return Err("the targets section does not match the metadata".into());
         }
-        let interval = LE::read_u32(&t[8..12]);
-        if interval != format::TARGET_SAMPLE_INTERVAL {
-            return Err(format!(
-                "target sample interval {interval} is not {}",
-                format::TARGET_SAMPLE_INTERVAL
-            ));
-        }
-        let sample_count = meta.targets.div_ceil(u64::from(interval)) + 1;
-        if sample_count
-            .checked_mul(8)
-            .is_none_or(|n| n > t.len() as u64 - 16)
-        {
-            return Err("the targets' sample array is cut off".into());
-        }
-        let target_samples = targets.start + 16;
-        let target_data = target_samples + sample_count as usize * 8..targets.end;
+        let target_data = targets.start + 8..targets.end;
 
         let blocks = meta.sources.div_ceil(u64::from(meta.sources_per_block));
         if (block_index.len() as u64) != (blocks + 1) * 8 {
@@ -183,8 +166,6 @@ impl Sections {
             word_offsets,
             word_bytes,
             targets: meta.targets,
-            target_samples,
-            sample_count: sample_count as usize,
             target_data,
             block_index: block_index.start,
             blocks,
@@ -213,40 +194,27 @@ impl Sections {
         std::str::from_utf8(bytes).map_err(|_| format!("word {id} is not UTF-8"))
     }
 
-    /// Appends target `id`'s words, space-separated, to `out`; returns its token count.
+    /// Appends the words of the target whose record starts at `offset` in the target data,
+    /// space-separated, to `out`; returns its token count.
+    #[inline]
     pub(crate) fn append_target(
         &self,
         data: &[u8],
-        id: u64,
+        offset: u64,
         out: &mut String,
     ) -> Result<usize, String> {
-        if id >= self.targets {
-            return Err(format!(
-                "target id {id} is outside the {} targets",
-                self.targets
-            ));
-        }
-        let interval = u64::from(format::TARGET_SAMPLE_INTERVAL);
-        let sample = (id / interval) as usize;
-        debug_assert!(sample + 1 < self.sample_count);
         let td = &data[self.target_data.clone()];
-        let start = LE::read_u64(&data[self.target_samples + sample * 8..]);
-        if start > td.len() as u64 {
+        if offset >= td.len() as u64 {
             return Err(format!(
-                "target sample {sample} points outside the target data"
+                "target reference {offset} is outside the {}-byte target data",
+                td.len()
             ));
         }
-        let mut pos = start as usize;
-        let bad = || format!("target {id} is cut off or malformed");
-        for _ in 0..id % interval {
-            let n = read_varint(td, &mut pos).ok_or_else(bad)?;
-            for _ in 0..n {
-                read_varint(td, &mut pos).ok_or_else(bad)?;
-            }
-        }
+        let mut pos = offset as usize;
+        let bad = || format!("the target at {offset} is cut off or malformed");
         let n = read_varint(td, &mut pos).ok_or_else(bad)?;
         if n == 0 || n > td.len() as u64 {
-            return Err(format!("target {id} has {n} tokens"));
+            return Err(format!("the target at {offset} has {n} tokens"));
         }
         for k in 0..n {
             let w = read_varint(td, &mut pos).ok_or_else(bad)?;
@@ -273,16 +241,7 @@ impl Sections {
         Ok(self.options.start + start as usize..self.options.start + end as usize)
     }
 
-    /// Start offset (within the target data) of sample `s`, for verification.
-    pub(crate) fn target_sample(&self, data: &[u8], s: usize) -> u64 {
-        LE::read_u64(&data[self.target_samples + s * 8..])
-    }
-
     pub(crate) fn target_data<'a>(&self, data: &'a [u8]) -> &'a [u8] {
         &data[self.target_data.clone()]
-    }
-
-    pub(crate) fn sample_count(&self) -> usize {
-        self.sample_count
     }
 }

@@ -29,15 +29,16 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
     for w in 0..s.words {
         s.word(data, w).map_err(|r| table.corrupt(r))?;
     }
-    // Targets: decoded in sequence, samples where they belong, nothing left over.
+    // Targets: decoded in sequence, each record's start marked for the reference check.
     let td = s.target_data(data);
+    let mut starts = vec![0u64; td.len().div_ceil(64)];
     let mut pos = 0usize;
-    let interval = u64::from(crate::format::TARGET_SAMPLE_INTERVAL);
     for t in 0..s.targets {
-        if t % interval == 0 && s.target_sample(data, (t / interval) as usize) != pos as u64 {
-            return Err(table.corrupt(format!("target sample {} is misplaced", t / interval)));
-        }
         let bad = || table.corrupt(format!("target {t} is malformed"));
+        if pos >= td.len() {
+            return Err(bad());
+        }
+        starts[pos / 64] |= 1 << (pos % 64);
         let n = read_varint(td, &mut pos).ok_or_else(bad)?;
         if n == 0 {
             return Err(bad());
@@ -52,15 +53,24 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
         }
         report.targets += 1;
     }
-    if s.target_sample(data, s.sample_count() - 1) != pos as u64 || pos != td.len() {
+    if pos != td.len() {
         return Err(table.corrupt("the target data has unexplained trailing bytes"));
     }
-    // Blocks: every column parses to its end.
+    // Blocks: every column parses to its end; every target reference starts a target record.
     let mut scratch = Vec::new();
     for b in 0..s.blocks {
         let bytes = table.block_bytes(b, &mut scratch)?;
-        let layout = BlockLayout::parse(table, bytes, table.sources_in_block(b))?;
-        layout.check_complete(table, bytes)?;
+        let layout = BlockLayout::parse(table, bytes, table.sources_in_block(b), 0)?;
+        layout.check_complete(table, bytes, |offset| {
+            let at = offset as usize;
+            if offset < td.len() as u64 && starts[at / 64] & (1 << (at % 64)) != 0 {
+                Ok(())
+            } else {
+                Err(table.corrupt(format!(
+                    "block {b} refers to {offset}, which starts no target"
+                )))
+            }
+        })?;
         report.blocks += 1;
     }
     // Every pair through the index: ordinals in sequence, links inside their phrases.
