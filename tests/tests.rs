@@ -1,4 +1,5 @@
 //! Integration tests: the command line and the library's public API.
 
 mod pack;
+mod synth;
 mod util;

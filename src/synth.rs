@@ -1,1 +1,0 @@
-//! Synthetic phrase tables of realistic shape, for benchmarks (to be written).
