@@ -280,9 +280,14 @@ class Table:
             positions.append(COUNT_COLUMNS.index(name))
         if positions != sorted(set(positions)):
             fail("count columns out of canonical order")
-        for key, value in meta["table_metadata"]:
-            if not isinstance(key, str) or not isinstance(value, str):
-                fail("table metadata entries are not string pairs")
+        keys = set()
+        for entry in meta["table_metadata"]:
+            if not isinstance(entry, list) or len(entry) != 2:
+                fail("table metadata entries are not [key, value] pairs")
+            key, value = entry
+            if not isinstance(key, str) or not isinstance(value, str) or key in keys:
+                fail(f"table metadata key {key!r} is not a string or appears twice")
+            keys.add(key)
         order = meta["option_order"]
         if order.get("by") is not None and order["by"] not in meta["scores"]:
             fail(f"the option order names an unknown column {order['by']!r}")

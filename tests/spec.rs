@@ -486,3 +486,39 @@ fn reference_reader_verifies_every_checksum() {
     let out = fails(&mut reference(&damaged, &fixture()));
     assert!(String::from_utf8_lossy(&out.stderr).contains("section table fail their checksum"));
 }
+
+/// The frozen files of format 1.0 (`format-spec/compat/1.0/README.md`) still read the same,
+/// with baler's reader and with the reference reader.
+#[test]
+fn compatibility_files_of_format_1_0_still_read() {
+    let dir = manifest_path("format-spec/compat/1.0");
+    let cases = [
+        ("harbour-8bit-zstd", "harbour.tsv", true),
+        ("harbour-f32-none", "harbour.tsv", false),
+        ("generated-4bit-dictionary", "generated.tsv", true),
+    ];
+    let python = require("python3", "the reference-reader part of this test");
+    let zstd = require(
+        "zstd",
+        "the zstd files of this test's reference-reader part",
+    );
+    for (name, input, compressed) in cases {
+        let table = dir.join(format!("{name}.bale"));
+        let expected = std::fs::read(dir.join(format!("{name}.dump.tsv"))).unwrap();
+        assert!(!expected.is_empty());
+        assert!(
+            dump(&table) == expected,
+            "{name}: baler dump no longer reproduces the frozen dump"
+        );
+        run(Command::new(env!("CARGO_BIN_EXE_baler"))
+            .args(["inspect", "--verify"])
+            .arg(&table));
+        if python && (zstd || !compressed) {
+            let got = run(&mut reference(&table, &dir.join(input)));
+            assert!(
+                got == expected,
+                "{name}: the reference reader differs from the frozen dump"
+            );
+        }
+    }
+}
