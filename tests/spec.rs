@@ -487,11 +487,11 @@ fn reference_reader_verifies_every_checksum() {
     assert!(String::from_utf8_lossy(&out.stderr).contains("section table fail their checksum"));
 }
 
-/// The frozen files of format 1.0 (`format-spec/compat/1.0/README.md`) still read the same,
+/// The frozen files of format 1.0 (`tests/data/spec/compat/1.0/README.md`) still read the same,
 /// with baler's reader and with the reference reader.
 #[test]
 fn compatibility_files_of_format_1_0_still_read() {
-    let dir = manifest_path("format-spec/compat/1.0");
+    let dir = manifest_path("tests/data/spec/compat/1.0");
     let cases = [
         ("harbour-8bit-zstd", "harbour.tsv", true),
         ("harbour-f32-none", "harbour.tsv", false),
