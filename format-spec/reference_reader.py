@@ -645,7 +645,7 @@ def main(argv):
     except FormatError as e:
         print(f"reference_reader: {args.table}: {e}", file=sys.stderr)
         return 2
-    except (OSError, UnicodeDecodeError, struct.error) as e:
+    except (OSError, ValueError, struct.error) as e:
         print(f"reference_reader: {args.table}: {e}", file=sys.stderr)
         return 2
     return 0
