@@ -15,7 +15,7 @@ default `zstd`), with the file's dictionary section as `-D` when present; the fr
 parsed here first. Section numbers in comments refer to bale-format.md.
 
 Usage:
-    reference_reader.py TABLE (--sources FILE | --sources-from-tsv FILE) [-o OUT]
+    reference_reader.py TABLE (--sources FILE|- | --sources-from-tsv FILE) [-o OUT]
         [--zstd PROGRAM] [--extract-block N PATH] [--dictionary-out PATH]
 
 Exit status: 0 on success, 2 on any error (message on stderr naming the file and the reason).
@@ -601,8 +601,11 @@ def sources_from_tsv(path):
 
 
 def sources_from_list(path):
-    with open(path, "rb") as f:
-        text = f.read().decode("utf-8")
+    if path == "-":
+        text = sys.stdin.buffer.read().decode("utf-8")
+    else:
+        with open(path, "rb") as f:
+            text = f.read().decode("utf-8")
     return [line for line in text.split("\n") if line]
 
 
@@ -610,7 +613,8 @@ def main(argv):
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("table")
     given = parser.add_mutually_exclusive_group(required=True)
-    given.add_argument("--sources", help="the source phrases in byte order, one per line")
+    given.add_argument("--sources", help="the source phrases in byte order, one per line "
+                       "(`-`: standard input)")
     given.add_argument("--sources-from-tsv", help="the interchange TSV that was packed")
     parser.add_argument("-o", "--output", default="-", help="TSV output (default: stdout)")
     parser.add_argument("--zstd", default="zstd", help="the zstd command-line program")

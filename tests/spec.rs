@@ -424,7 +424,21 @@ fn reference_reader_takes_a_source_list_in_byte_order() {
         .arg(&table)
         .arg("--sources")
         .arg(&list));
-    assert_eq!(got, dump(&table));
+    let expected = dump(&table);
+    assert_eq!(got, expected);
+    // The same list on standard input.
+    let mut child = Command::new("python3")
+        .arg(&script)
+        .arg(&table)
+        .args(["--sources", "-"])
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    std::io::Write::write_all(&mut child.stdin.take().unwrap(), joined.as_bytes()).unwrap();
+    let out = child.wait_with_output().unwrap();
+    assert!(out.status.success());
+    assert_eq!(out.stdout, expected);
 
     // Out of order, or one short, the list is refused rather than misattributed.
     let mut shuffled: Vec<&str> = sources.iter().copied().collect();
