@@ -366,22 +366,15 @@ class Table:
     # section 5.5
     def read_targets(self):
         t = self.sections[4]
-        if len(t) < 16 or u64(t, 0) != self.meta["targets"]:
+        if len(t) < 8 or u64(t, 0) != self.meta["targets"]:
             fail("the targets section does not match the metadata")
-        m, interval, reserved = u64(t, 0), u32(t, 8), u32(t, 12)
-        if interval != 16 or reserved != 0:
-            fail(f"target sample interval {interval} (reserved {reserved}) is not 16 (0)")
-        s = -(-m // interval) + 1
-        data_start = 16 + 8 * s
-        if data_start > len(t):
-            fail("the targets' sample array is cut off")
-        samples = struct.unpack_from(f"<{s}Q", t, 16)
+        m = u64(t, 0)
+        data_start = 8
         cursor = Varints(t, data_start, len(t), "targets")
-        self.targets = []
-        self.target_lengths = []
+        # reference (offset from the start of data) -> (text, token count)
+        self.targets = {}
         for i in range(m):
-            if i % interval == 0 and samples[i // interval] != cursor.pos - data_start:
-                fail(f"target sample {i // interval} is misplaced")
+            reference = cursor.pos - data_start
             k = cursor.next()
             if k == 0:
                 fail(f"target {i} has no tokens")
@@ -390,10 +383,9 @@ class Table:
                 fail(f"target {i} is cut off")
             if any(w >= len(self.words) for w in ids):
                 fail(f"target {i} uses a word outside the vocabulary")
-            self.targets.append(" ".join(self.words[w] for w in ids))
-            self.target_lengths.append(k)
-        if samples[s - 1] != cursor.pos - data_start or cursor.pos != len(t):
-            fail("the target data has trailing bytes or a wrong last sample")
+            self.targets[reference] = (" ".join(self.words[w] for w in ids), k)
+        if cursor.pos != len(t):
+            fail("the target data has trailing bytes")
 
     # section 5.6
     def read_block_index(self):
@@ -512,9 +504,9 @@ class Table:
                     scores[k].append(values[code])
             pos += width * n
         cursor.pos = pos
-        target_ids = [cursor.next() for _ in range(n)]
-        if any(t >= len(self.targets) for t in target_ids):
-            fail(f"block {i} names a target outside the targets section")
+        target_refs = [cursor.next() for _ in range(n)]
+        if any(t not in self.targets for t in target_refs):
+            fail(f"block {i} refers to a target reference that starts no target record")
         links = [[] for _ in range(n)]
         if self.meta["alignment"]:
             for k in range(n):
@@ -532,7 +524,7 @@ class Table:
                 counts[k].append(cursor.next())
         if cursor.pos != len(raw):
             fail(f"block {i} has {len(raw) - cursor.pos} trailing bytes")
-        options = list(zip(target_ids, scores, links, counts))
+        options = list(zip(target_refs, scores, links, counts))
         per_source = []
         start = 0
         for c in option_counts:
@@ -563,9 +555,9 @@ class Table:
                 source = sources[i * meta["sources_per_block"] + rank]
                 source_len = source.count(" ") + 1
                 previous = None
-                for target_id, scores, links, counts in options:
-                    target = self.targets[target_id]
-                    if any(s >= source_len or t >= self.target_lengths[target_id] for s, t in links):
+                for target_ref, scores, links, counts in options:
+                    target, target_len = self.targets[target_ref]
+                    if any(s >= source_len or t >= target_len for s, t in links):
                         fail(f"the pair ({source!r}, {target!r}) has a link outside its phrases")
                     if order_column is not None:  # section 8: non-increasing decoded values
                         if previous is not None and scores[order_column] > previous:

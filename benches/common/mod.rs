@@ -101,8 +101,8 @@ pub fn sentences(pairs: &[PhrasePair], count: usize, len: usize) -> Vec<Vec<Stri
 }
 
 /// The baseline's version of `Table::spans`: every sub-phrase up to `max_len` looked up.
-pub fn baseline_spans<'a>(
-    map: &'a Baseline,
+pub fn baseline_spans(
+    map: &Baseline,
     tokens: &[&str],
     max_len: usize,
     key: &mut String,

@@ -352,7 +352,8 @@ impl Table {
     /// Every source phrase in byte order (read from the index alone, no blocks decoded).
     pub fn source_phrases(&self) -> impl Iterator<Item = Result<String>> + '_ {
         use fst::Streamer;
-        let mut stream = self.index.stream();
+        // Even starting a stream reads the root node, so it happens under the guard too.
+        let mut stream: Option<fst::map::Stream<'_>> = None;
         let mut left = self.meta.sources;
         let mut failed = false;
         std::iter::from_fn(move || {
@@ -360,7 +361,12 @@ impl Table {
                 return None;
             }
             left -= 1;
-            let next = guard(|| stream.next().map(|(k, _)| k.to_vec()));
+            let next = guard(|| {
+                stream
+                    .get_or_insert_with(|| self.index.stream())
+                    .next()
+                    .map(|(k, _)| k.to_vec())
+            });
             let item = match next {
                 Some(Some(key)) => {
                     String::from_utf8(key).map_err(|_| self.corrupt("a source phrase is not UTF-8"))
@@ -538,7 +544,7 @@ fn check_meta(meta: &Meta) -> std::result::Result<(Header, Compression), String>
 /// Iterates over every pair of a table; see [`Table::pairs_iter`].
 pub struct PairIter<'a> {
     table: &'a Table,
-    stream: fst::map::Stream<'a>,
+    stream: Option<fst::map::Stream<'a>>,
     next_ordinal: u64,
     block: Vec<Options>,
     current: Option<(String, usize, usize)>,
@@ -550,7 +556,7 @@ impl<'a> PairIter<'a> {
     fn new(table: &'a Table) -> PairIter<'a> {
         PairIter {
             table,
-            stream: table.index.stream(),
+            stream: None,
             next_ordinal: 0,
             block: Vec::new(),
             current: None,
@@ -565,8 +571,14 @@ impl<'a> PairIter<'a> {
         if self.next_ordinal >= table.meta.sources {
             return Ok(false);
         }
-        let next = guard(|| self.stream.next().map(|(k, v)| (k.to_vec(), v)))
-            .ok_or_else(|| table.damaged_index())?;
+        let stream = &mut self.stream;
+        let next = guard(|| {
+            stream
+                .get_or_insert_with(|| table.index.stream())
+                .next()
+                .map(|(k, v)| (k.to_vec(), v))
+        })
+        .ok_or_else(|| table.damaged_index())?;
         let Some((key, value)) = next else {
             return Err(table.corrupt("the source index ends early"));
         };
