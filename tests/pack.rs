@@ -269,8 +269,13 @@ fn checksummed(bytes: &[u8], position: usize) -> bool {
             .any(|s| (s.offset as usize..(s.offset + s.length) as usize).contains(&position))
 }
 
+/// Mutated-file cases: `BALER_FUZZ_CASES` (CI runs a longer smoke), else 400.
+fn fuzz_cases() -> u32 {
+    std::env::var("BALER_FUZZ_CASES").ok().and_then(|v| v.parse().ok()).unwrap_or(400)
+}
+
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 400, ..ProptestConfig::default() })]
+    #![proptest_config(ProptestConfig { cases: fuzz_cases(), ..ProptestConfig::default() })]
 
     /// Mutated files: reported, never a panic; any change to checksummed bytes is detected.
     #[test]
