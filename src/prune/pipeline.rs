@@ -473,7 +473,7 @@ impl Pruner {
         if before == 0 {
             return Ok(());
         }
-        match &self.stages[s] {
+        let keep: Vec<bool> = match &self.stages[s] {
             Stage::Significance(threshold) => {
                 let threshold = *threshold;
                 let mut keep = Vec::with_capacity(before);
@@ -486,25 +486,31 @@ impl Pruner {
                     let hist = self.stats.filters[s].neg_ln_p.as_mut().expect("set up");
                     hist.add(item.neg_ln_p.expect("computed"), one);
                 }
-                let mut k = keep.into_iter();
-                group.retain(|_| k.next().expect("one per item"));
+                keep
             }
-            Stage::TopK(k, ranking) => ranking.keep_top(group, *k, |i| &i.pair),
-            Stage::Bound(column, minimum, value) => {
-                let (column, minimum, value) = (*column, *minimum, *value);
-                group.retain(|i| {
+            Stage::TopK(k, ranking) => {
+                let after = before.min(*k);
+                self.stats.filters[s].record_group(&group[0].pair.source, before, after);
+                ranking.keep_top(group, *k, |i| &i.pair);
+                return Ok(());
+            }
+            Stage::Bound(column, minimum, value) => group
+                .iter()
+                .map(|i| {
                     let v = column.value(&i.pair);
-                    if minimum {
-                        v >= value
+                    if *minimum {
+                        v >= *value
                     } else {
-                        v <= value
+                        v <= *value
                     }
-                });
-            }
+                })
+                .collect(),
             Stage::Entropy(..) => unreachable!("entropy runs over the whole table"),
-        }
-        let source = &group_source(group);
-        self.stats.filters[s].record_group(source, before, group.len());
+        };
+        let after = keep.iter().filter(|&&k| k).count();
+        self.stats.filters[s].record_group(&group[0].pair.source, before, after);
+        let mut k = keep.into_iter();
+        group.retain(|_| k.next().expect("one flag per item"));
         Ok(())
     }
 
@@ -524,13 +530,6 @@ impl Pruner {
             self.stats.filters[s].record_group(&source, before, g.len());
         }
     }
-}
-
-fn group_source(group: &[Item]) -> String {
-    group
-        .first()
-        .map(|i| i.pair.source.clone())
-        .unwrap_or_default()
 }
 
 fn significance_setup(
