@@ -267,8 +267,8 @@ const EMPTY: Slot = Slot {
 };
 
 impl FisherTest {
-    /// Slots in the memo by default (2^16 slots of 32 bytes: 2 MiB).
-    pub const DEFAULT_SLOTS: usize = 1 << 16;
+    /// Slots in the memo by default (2^18 slots of 32 bytes: 8 MiB).
+    pub const DEFAULT_SLOTS: usize = 1 << 18;
 
     /// A test for a corpus of `total` sentence pairs with the default memo size.
     pub fn new(total: u64) -> FisherTest {

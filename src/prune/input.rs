@@ -241,7 +241,7 @@ where
             .join()
             .map_err(|_| Error::Unsupported("the packer panicked".into()))?;
         match outcome {
-            Ok(Outcome::Done) => packed.map(|()| Outcome::Done),
+            Ok(Outcome::Done) => packed.map(|_| Outcome::Done),
             Ok(unsorted) => Ok(unsorted),
             Err(e) => Err(packed.err().unwrap_or(e)),
         }

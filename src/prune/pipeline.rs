@@ -53,7 +53,10 @@ pub struct Pruner {
     annotate: Option<usize>,
     renormalize: Vec<usize>,
     widen: Widen,
+    /// Index of the first relative-entropy stage (the stages before it stream).
+    barrier: usize,
     held: Vec<Vec<Item>>,
+    keep: Vec<bool>,
 }
 
 /// Whether a run finished or stopped at a source out of byte order.
@@ -238,12 +241,17 @@ impl Pruner {
                 ..Default::default()
             },
             header: out,
-            stages,
             significance,
             annotate,
             renormalize,
             widen,
+            barrier: stages
+                .iter()
+                .position(|s| matches!(s, Stage::Entropy(..)))
+                .unwrap_or(stages.len()),
+            stages,
             held: Vec::new(),
+            keep: Vec::new(),
         })
     }
 
@@ -308,7 +316,7 @@ impl Pruner {
                             source: pair.source,
                         });
                     }
-                    self.end_group(std::mem::take(&mut group), emit)?;
+                    self.end_group(&mut group, emit)?;
                 }
             }
             self.stats.pairs_in += 1;
@@ -319,7 +327,7 @@ impl Pruner {
             group.push(item);
         }
         if !group.is_empty() {
-            self.end_group(group, emit)?;
+            self.end_group(&mut group, emit)?;
         }
         self.finish(emit)?;
         Ok(Outcome::Done)
@@ -350,25 +358,25 @@ impl Pruner {
         })
     }
 
-    fn end_group<F>(&mut self, mut group: Vec<Item>, emit: &mut F) -> Result<()>
+    /// Runs the streaming filters on `group` and emits or holds what survives; `group` is left
+    /// empty (its buffer reused for the next source).
+    fn end_group<F>(&mut self, group: &mut Vec<Item>, emit: &mut F) -> Result<()>
     where
         F: FnMut(&PhrasePair) -> Result<()> + ?Sized,
     {
-        let barrier = self
-            .stages
-            .iter()
-            .position(|s| matches!(s, Stage::Entropy(..)))
-            .unwrap_or(self.stages.len());
+        let barrier = self.barrier;
         for s in 0..barrier {
-            self.apply(s, &mut group)?;
+            self.apply(s, group)?;
         }
         if barrier < self.stages.len() {
             if !group.is_empty() {
-                self.held.push(group);
+                self.held.push(std::mem::take(group));
             }
             return Ok(());
         }
-        self.emit_group(group, emit)
+        self.emit_group(group, emit)?;
+        group.clear();
+        Ok(())
     }
 
     fn finish<F>(&mut self, emit: &mut F) -> Result<()>
@@ -376,11 +384,7 @@ impl Pruner {
         F: FnMut(&PhrasePair) -> Result<()> + ?Sized,
     {
         let mut groups = std::mem::take(&mut self.held);
-        let mut s = self
-            .stages
-            .iter()
-            .position(|s| matches!(s, Stage::Entropy(..)))
-            .unwrap_or(self.stages.len());
+        let mut s = self.barrier;
         while s < self.stages.len() {
             match self.stages[s] {
                 Stage::Entropy(threshold, column) => {
@@ -395,18 +399,23 @@ impl Pruner {
             groups.retain(|g| !g.is_empty());
             s += 1;
         }
-        for g in groups {
-            self.emit_group(g, emit)?;
+        for mut g in groups {
+            self.emit_group(&mut g, emit)?;
         }
         if let Some(sig) = &self.significance {
             self.stats.memo_hits = sig.test.hits();
             self.stats.memo_misses = sig.test.misses();
         }
         self.stats.sources_lost_all = self.stats.sources_in - self.stats.sources_out;
+        for f in self.stats.filters.iter_mut() {
+            if let Some(h) = f.neg_ln_p.as_mut() {
+                h.finish();
+            }
+        }
         Ok(())
     }
 
-    fn emit_group<F>(&mut self, mut group: Vec<Item>, emit: &mut F) -> Result<()>
+    fn emit_group<F>(&mut self, group: &mut [Item], emit: &mut F) -> Result<()>
     where
         F: FnMut(&PhrasePair) -> Result<()> + ?Sized,
     {
@@ -429,7 +438,7 @@ impl Pruner {
         }
         self.stats.sources_out += 1;
         self.stats.pairs_out += group.len() as u64;
-        for item in &group {
+        for item in group.iter() {
             emit(&item.pair)?;
         }
         Ok(())
@@ -473,44 +482,43 @@ impl Pruner {
         if before == 0 {
             return Ok(());
         }
-        let keep: Vec<bool> = match &self.stages[s] {
+        let mut keep = std::mem::take(&mut self.keep);
+        keep.clear();
+        match &self.stages[s] {
             Stage::Significance(threshold) => {
                 let threshold = *threshold;
-                let mut keep = Vec::with_capacity(before);
                 for item in group.iter_mut() {
                     let v = self.neg_ln_p(item)?;
-                    keep.push(v >= threshold);
-                }
-                for item in group.iter() {
                     let one = self.is_one_one_one(item);
                     let hist = self.stats.filters[s].neg_ln_p.as_mut().expect("set up");
-                    hist.add(item.neg_ln_p.expect("computed"), one);
+                    hist.add(v, one);
+                    keep.push(v >= threshold);
                 }
-                keep
             }
             Stage::TopK(k, ranking) => {
                 let after = before.min(*k);
                 self.stats.filters[s].record_group(&group[0].pair.source, before, after);
                 ranking.keep_top(group, *k, |i| &i.pair);
+                self.keep = keep;
                 return Ok(());
             }
-            Stage::Bound(column, minimum, value) => group
-                .iter()
-                .map(|i| {
-                    let v = column.value(&i.pair);
-                    if *minimum {
-                        v >= *value
-                    } else {
-                        v <= *value
-                    }
-                })
-                .collect(),
+            Stage::Bound(column, minimum, value) => keep.extend(group.iter().map(|i| {
+                let v = column.value(&i.pair);
+                if *minimum {
+                    v >= *value
+                } else {
+                    v <= *value
+                }
+            })),
             Stage::Entropy(..) => unreachable!("entropy runs over the whole table"),
         };
         let after = keep.iter().filter(|&&k| k).count();
         self.stats.filters[s].record_group(&group[0].pair.source, before, after);
-        let mut k = keep.into_iter();
-        group.retain(|_| k.next().expect("one flag per item"));
+        if after < before {
+            let mut k = keep.iter();
+            group.retain(|_| *k.next().expect("one flag per item"));
+        }
+        self.keep = keep;
         Ok(())
     }
 
@@ -588,4 +596,117 @@ fn significance_setup(
         columns,
         names: [wanted[0].name(), wanted[1].name(), wanted[2].name()],
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::prune::{Ranking, Threshold};
+    use crate::table::TsvReader;
+
+    fn run(text: &str, options: &PruneOptions) -> Result<(Vec<String>, PruneStats)> {
+        let reader = TsvReader::new(text.as_bytes(), "t.tsv")?;
+        let mut pruner = Pruner::new(reader.header(), "t.tsv", options)?;
+        let mut kept = Vec::new();
+        let input = reader.map(|r| r.map(|p| (p, 0)));
+        pruner.run(input, |p| {
+            kept.push(format!("{}|{}", p.source, p.target));
+            Ok(())
+        })?;
+        Ok((kept, pruner.stats().clone()))
+    }
+
+    const TABLE: &str = "# sentence_pairs=100\n\
+        source\ttarget\tp_t_given_s\tcooc\tdf_source\tdf_target\n\
+        a\tx\t0.5\t1\t1\t1\n\
+        a\ty\t0.5\t3\t4\t3\n\
+        b\tz\t0.2\t5\t5\t9\n";
+
+    #[test]
+    fn out_of_order_sources_are_reported_by_run() {
+        let text = "source\ttarget\nb\tx\na\ty\n";
+        let err = run(text, &PruneOptions::default()).unwrap_err().to_string();
+        assert!(
+            err.starts_with("t.tsv: source \"a\" comes after \"b\""),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn top_k_result_does_not_depend_on_option_order() {
+        let options = PruneOptions {
+            filters: vec![Filter::TopK {
+                k: 2,
+                by: Ranking::default(),
+            }],
+            ..Default::default()
+        };
+        let forward = "source\ttarget\tp_t_given_s\ns\tb\t0.3\ns\ta\t0.3\ns\tc\t0.3\ns\td\t0.5\n";
+        let backward = "source\ttarget\tp_t_given_s\ns\td\t0.5\ns\tc\t0.3\ns\ta\t0.3\ns\tb\t0.3\n";
+        let (mut f, _) = run(forward, &options).unwrap();
+        let (mut b, _) = run(backward, &options).unwrap();
+        f.sort();
+        b.sort();
+        assert_eq!(f, ["s|a", "s|d"]);
+        assert_eq!(f, b);
+    }
+
+    #[test]
+    fn stats_count_pairs_and_sources_per_filter() {
+        let options = PruneOptions {
+            filters: vec![
+                Filter::Bound {
+                    column: "p_t_given_s".into(),
+                    minimum: true,
+                    value: 0.5,
+                },
+                Filter::Significance(Threshold::AlphaPlusEpsilon),
+            ],
+            ..Default::default()
+        };
+        let (kept, stats) = run(TABLE, &options).unwrap();
+        assert_eq!(kept, ["a|y"]);
+        let f = &stats.filters;
+        assert_eq!((f[0].pairs_before, f[0].pairs_after), (3, 2));
+        assert_eq!(
+            (
+                f[0].sources_before,
+                f[0].sources_after,
+                f[0].sources_emptied
+            ),
+            (2, 1, 1)
+        );
+        assert_eq!(f[0].sources_emptied_sample, ["b"]);
+        assert_eq!(
+            (f[1].pairs_before, f[1].pairs_after, f[1].sources_emptied),
+            (2, 1, 0)
+        );
+        let h = f[1].neg_ln_p.as_ref().unwrap();
+        assert_eq!((h.pairs, h.one_one_one), (2, 1));
+        assert!((h.min - 100f64.ln()).abs() < 1e-12);
+        assert!((h.mean - (h.min + h.max) / 2.0).abs() < 1e-12);
+        assert_eq!(
+            (stats.pairs_in, stats.pairs_out, stats.sources_lost_all),
+            (3, 1, 1)
+        );
+    }
+
+    #[test]
+    fn a_missing_column_or_metadata_is_a_clear_error() {
+        let no_n = TABLE.replace("# sentence_pairs=100\n", "");
+        let options = PruneOptions {
+            filters: vec![Filter::Significance(Threshold::Value(1.0))],
+            ..Default::default()
+        };
+        let err = run(&no_n, &options).unwrap_err().to_string();
+        assert!(err.contains("# sentence_pairs=N"), "{err}");
+        let options = PruneOptions {
+            filters: vec![Filter::TopK {
+                k: 0,
+                by: Ranking::default(),
+            }],
+            ..Default::default()
+        };
+        assert!(run(TABLE, &options).is_err());
+    }
 }

@@ -65,7 +65,7 @@ pub struct Histogram {
     pub min: f64,
     /// Largest value (0 when empty).
     pub max: f64,
-    /// Mean value (0 when empty).
+    /// Mean value (0 when empty; set by [`Histogram::finish`]).
     pub mean: f64,
     /// Pairs with `cooc = df_source = df_target = 1`.
     pub one_one_one: u64,
@@ -107,8 +107,14 @@ impl Histogram {
         }
         self.pairs += 1;
         self.sum += value;
-        self.mean = self.sum / self.pairs as f64;
         self.one_one_one += u64::from(one_one_one);
+    }
+
+    /// Sets the mean from the running sum.
+    pub(crate) fn finish(&mut self) {
+        if self.pairs > 0 {
+            self.mean = self.sum / self.pairs as f64;
+        }
     }
 }
 
