@@ -404,4 +404,35 @@ mod tests {
         assert_ne!(a, b);
         assert_eq!(t.misses(), 3);
     }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(2000))]
+        /// The table is symmetric in its margins (swapping the roles of source and target
+        /// gives the same distribution), and the tail shrinks as cooc grows; the two roles
+        /// are computed with different success rates, so agreement checks the arithmetic.
+        #[test]
+        fn symmetric_in_margins_and_monotone_in_cooc(
+            total in 2u64..1_000_000_000,
+            a in 0.0f64..1.0,
+            b in 0.0f64..1.0,
+            c in 0.0f64..1.0,
+            small in proptest::bool::ANY,
+        ) {
+            // small margins are the common case in phrase tables
+            let scale = if small { 50.0f64.min(total as f64) } else { total as f64 };
+            let ds = ((a * scale) as u64).clamp(1, total);
+            let dt = ((b * scale) as u64).clamp(1, total);
+            let low = (ds + dt).saturating_sub(total);
+            let high = ds.min(dt);
+            let k = low + ((c * (high - low + 1) as f64) as u64).min(high - low);
+            let v = neg_ln_p(k, ds, dt, total).unwrap();
+            let w = neg_ln_p(k, dt, ds, total).unwrap();
+            proptest::prop_assert!(v.is_finite() && v >= 0.0);
+            proptest::prop_assert!((v - w).abs() <= 1e-11 * v.max(1e-3), "{} {} {} {}: {} vs {}", k, ds, dt, total, v, w);
+            if k < high {
+                let next = neg_ln_p(k + 1, ds, dt, total).unwrap();
+                proptest::prop_assert!(next >= v * (1.0 - 1e-12), "{} {} {} {}", k, ds, dt, total);
+            }
+        }
+    }
 }
