@@ -45,7 +45,7 @@ fn rate(pairs: usize, seconds: f64) -> String {
     format!("{:>7.2} M pairs/s", pairs as f64 / seconds / 1e6)
 }
 
-fn run_pruner(pairs: Vec<PhrasePair>, options: &PruneOptions) -> (f64, u64) {
+fn run_pruner(pairs: Vec<PhrasePair>, options: &PruneOptions) -> (f64, u64, u64) {
     let header = prune_gen::header();
     let mut pruner = Pruner::new(&header, "bench", options).unwrap();
     let mut kept = 0u64;
@@ -56,7 +56,11 @@ fn run_pruner(pairs: Vec<PhrasePair>, options: &PruneOptions) -> (f64, u64) {
             Ok(())
         })
         .unwrap();
-    (start.elapsed().as_secs_f64(), kept)
+    (
+        start.elapsed().as_secs_f64(),
+        kept,
+        pruner.stats().memo_hits,
+    )
 }
 
 /// Runs the binary under /usr/bin/time; returns (seconds, peak RSS in KiB).
@@ -119,7 +123,7 @@ fn main() {
     );
 
     let (mut memo, mut plain, mut pipeline, mut copy) = (vec![], vec![], vec![], vec![]);
-    let (mut hits, mut kept_memo, mut kept_pipeline) = (0, 0, 0);
+    let (mut hits, mut kept_memo, mut kept_pipeline, mut pipeline_hits) = (0, 0, 0, 0);
     // every k-th triple, so that the sample has the table's mix of counts
     let stride = (triples.len() / 200_000).max(1);
     let sampled: Vec<(u64, u64, u64)> = triples.iter().step_by(stride).copied().collect();
@@ -146,10 +150,11 @@ fn main() {
         plain.push(start.elapsed().as_secs_f64());
         std::hint::black_box(kept);
 
-        let (t, k) = run_pruner(pairs.clone(), &sig);
+        let (t, k, h) = run_pruner(pairs.clone(), &sig);
         pipeline.push(t);
         kept_pipeline = k;
-        let (t, _) = run_pruner(pairs.clone(), &PruneOptions::default());
+        pipeline_hits = h;
+        let (t, _, _) = run_pruner(pairs.clone(), &PruneOptions::default());
         copy.push(t);
     }
     assert_eq!(kept_memo as u64, kept_pipeline);
@@ -162,7 +167,11 @@ fn main() {
         hits as f64 / n_pairs as f64
     );
     println!("  no memo   {}", rate(sample, plain));
-    println!("  pipeline  {}", rate(n_pairs, pipeline));
+    println!(
+        "  pipeline  {}   memo hit rate {:.4}",
+        rate(n_pairs, pipeline),
+        pipeline_hits as f64 / n_pairs as f64
+    );
     println!("  copy      {}", rate(n_pairs, copy));
     println!(
         "  ratios: memo / no memo = {:.1}x; pipeline time / copy time = {:.2}",

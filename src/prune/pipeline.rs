@@ -568,12 +568,19 @@ fn significance_setup(
     let mut columns = [0; 3];
     for (k, c) in wanted.iter().enumerate() {
         columns[k] = schema.count_index(*c).ok_or_else(|| {
-            Error::Unsupported(format!(
-                "{file} has no {:?} column, which the significance test needs; give the corpus \
-                 with --source/--target to count it, or approximate with phrase-level counts \
-                 (--phrase-counts)",
-                c.name()
-            ))
+            Error::Unsupported(match counts {
+                CountSource::PhraseCounts => format!(
+                    "{file} has no {:?} column; the phrase-count approximation needs count, \
+                     count_source and count_target",
+                    c.name()
+                ),
+                _ => format!(
+                    "{file} has no {:?} column, which the significance test needs; give the \
+                     corpus with --source/--target to count it, or approximate with \
+                     phrase-level counts (--phrase-counts)",
+                    c.name()
+                ),
+            })
         })?;
     }
     let total = match total {
