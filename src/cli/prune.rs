@@ -10,8 +10,8 @@ use clap::{ArgMatches, FromArgMatches};
 /// The flags as clap sees them; [`Args`] adds the order in which the filters were given.
 #[derive(clap::Args)]
 #[command(after_help = "Filters run in the order given on the command line. \
-    Significance thresholds: a number, or alpha+epsilon (ln N + 1e-6: removes the pairs seen \
-    once whose phrases were each seen once) or alpha-epsilon (ln N - 1e-6: keeps them).")]
+    Significance thresholds: a number, or alpha+epsilon (ln N + 1e-9: removes the pairs seen \
+    once whose phrases were each seen once) or alpha-epsilon (ln N - 1e-9: keeps them).")]
 struct Flags {
     /// Table to prune: interchange TSV (any order; .gz/.zst; - for stdin) or a packed .bale.
     input: PathBuf,
