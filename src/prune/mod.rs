@@ -24,6 +24,16 @@
 //! [`PruneOptions::renormalize`] names a column: after the last filter that column is divided,
 //! within each source, by its sum over the options kept, so that it sums to 1 again.
 //!
+//! # Command line
+//!
+//! ```text
+//! baler prune extracted.tsv.zst -o harbour.bale \
+//!     --significance alpha+epsilon --top-k 30 --by p_t_given_s --stats prune.json
+//! ```
+//!
+//! prunes before packing in one step: significance first, then the 30 best options of what
+//! is left; `--stats` writes [`PruneStats`] as JSON and the same summary goes to stderr.
+//!
 //! # Examples
 //! ```
 //! use baler::prune::{Filter, PruneOptions, Pruner, Threshold};

@@ -217,7 +217,11 @@ impl Pruner {
         }
         if !options.filters.is_empty() {
             let described: Vec<String> = options.filters.iter().map(|f| f.describe()).collect();
-            out.metadata.set("pruned_with", described.join(" "));
+            let mut value = described.join(" ");
+            if let Some(earlier) = out.metadata.get("pruned_with") {
+                value = format!("{earlier} | {value}"); // pruned before: keep the history
+            }
+            out.metadata.set("pruned_with", value);
         }
         let counts_label = match (&options.counts, needs_test) {
             (_, false) => "none",
@@ -256,7 +260,8 @@ impl Pruner {
     }
 
     /// The header of the output: the input's, widened by `neg_ln_p` and corpus counts where
-    /// asked, with a `# pruned_with=` metadata line naming the filters.
+    /// asked, with a `# pruned_with=` metadata line naming the filters (appended with ` | `
+    /// to one already there).
     pub fn header(&self) -> &Header {
         &self.header
     }
