@@ -321,6 +321,61 @@ fn top_k_ties_go_to_the_target_first_in_byte_order() {
 }
 
 #[test]
+fn rankings_pair_with_top_k_filters_in_order() {
+    let dir = Dir::new();
+    let input = dir.write("t.tsv", HARBOUR);
+    // first --top-k 3 by lex (drops "the port"), then --top-k 1 by p: harbour (tie with port,
+    // byte order) for puerto
+    let got = prune_rows(
+        &dir,
+        &input,
+        &[
+            "--top-k",
+            "3",
+            "--top-k",
+            "1",
+            "--by",
+            "lex_t_given_s",
+            "--by",
+            "p_t_given_s",
+        ],
+    );
+    assert_eq!(
+        got,
+        pairs(&[("el faro", "the rock"), ("puerto", "harbour")])
+    );
+    let out = dir.path("x.tsv");
+    let run = baler(&[
+        "prune", &input, "-o", &out, "--top-k", "1", "--by", "count", "--by", "cooc",
+    ]);
+    assert_eq!(run.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&run.stderr).contains("2 rankings for 1 --top-k"));
+}
+
+#[test]
+fn compressed_input_and_output() {
+    use std::io::Write;
+    let dir = Dir::new();
+    let gz = dir.path("t.tsv.gz");
+    let mut enc = flate2::write::GzEncoder::new(
+        std::fs::File::create(&gz).unwrap(),
+        flate2::Compression::default(),
+    );
+    enc.write_all(HARBOUR.as_bytes()).unwrap();
+    enc.finish().unwrap();
+    let out = dir.path("out.tsv.zst");
+    let run = baler(&["prune", &gz, "-o", &out, "-q", "--min", "count=40"]);
+    assert!(
+        run.status.success(),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    let text =
+        String::from_utf8(zstd::decode_all(std::fs::File::open(&out).unwrap()).unwrap()).unwrap();
+    assert_eq!(rows(&text), pairs(&[("el faro", "the lighthouse")]));
+}
+
+#[test]
 fn thresholds_are_inclusive_bounds_on_scores_and_counts() {
     let dir = Dir::new();
     let input = dir.write("t.tsv", HARBOUR);

@@ -198,3 +198,46 @@ impl ResolvedRanking {
         });
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn pair(target: String, p: f64) -> PhrasePair {
+        PhrasePair {
+            source: "s".into(),
+            target,
+            scores: vec![p],
+            ..Default::default()
+        }
+    }
+
+    proptest::proptest! {
+        /// The survivors are the k first by (score descending, target ascending), in input
+        /// order, whatever the input order.
+        #[test]
+        fn keeps_the_k_best_in_input_order(
+            options in proptest::collection::vec((0u8..6, 0u8..4), 1..12),
+            k in 1usize..6,
+            rotate in 0usize..12,
+        ) {
+            let schema = Schema { scores: vec!["p_t_given_s".into()], ..Default::default() };
+            let ranking = Ranking::default().resolve(&schema).unwrap();
+            let mut group: Vec<PhrasePair> = options
+                .iter()
+                .enumerate()
+                .map(|(i, &(t, p))| pair(format!("t{t}-{i}"), f64::from(p) / 4.0))
+                .collect();
+            let n = group.len();
+            group.rotate_left(rotate % n);
+            let input = group.clone();
+            ranking.keep_top(&mut group, k, |p| p);
+            let mut best = input.clone();
+            best.sort_by(|a, b| b.scores[0].total_cmp(&a.scores[0]).then(a.target.cmp(&b.target)));
+            best.truncate(k);
+            let expected: Vec<&PhrasePair> = input.iter().filter(|p| best.contains(p)).collect();
+            let got: Vec<&PhrasePair> = group.iter().collect();
+            proptest::prop_assert_eq!(got, expected);
+        }
+    }
+}
