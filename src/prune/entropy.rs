@@ -39,6 +39,17 @@ pub fn composed_probability<F>(source: &str, target: &str, lookup: F) -> f64
 where
     F: Fn(&str, &str) -> Option<f64>,
 {
+    let lookup = &lookup;
+    compose(source, target, |s| Some(move |t: &str| lookup(s, t)))
+}
+
+/// The dynamic programme behind [`composed_probability`]; `options_of(s)` looks a source span
+/// up once and returns a lookup of its targets.
+fn compose<'s, S, O>(source: &'s str, target: &str, options_of: S) -> f64
+where
+    S: Fn(&'s str) -> Option<O>,
+    O: Fn(&str) -> Option<f64>,
+{
     let s = token_bounds(source);
     let t = token_bounds(target);
     let (ns, nt) = (s.len(), t.len());
@@ -50,19 +61,23 @@ where
     let mut best = vec![0.0f64; (ns + 1) * width];
     best[0] = 1.0;
     for i in 0..ns {
-        for j in 0..nt {
-            let here = best[i * width + j];
-            if here == 0.0 {
+        if (0..nt).all(|j| best[i * width + j] == 0.0) {
+            continue;
+        }
+        for i2 in i + 1..=ns {
+            let Some(options) = options_of(&source[s[i].0..s[i2 - 1].1]) else {
                 continue;
-            }
-            for i2 in i + 1..=ns {
-                let sub_source = &source[s[i].0..s[i2 - 1].1];
+            };
+            for j in 0..nt {
+                let here = best[i * width + j];
+                if here == 0.0 {
+                    continue;
+                }
                 for j2 in j + 1..=nt {
                     if i == 0 && j == 0 && i2 == ns && j2 == nt {
                         continue; // the pair itself
                     }
-                    let sub_target = &target[t[j].0..t[j2 - 1].1];
-                    if let Some(p) = lookup(sub_source, sub_target) {
+                    if let Some(p) = options(&target[t[j].0..t[j2 - 1].1]) {
                         let cell = &mut best[i2 * width + j2];
                         *cell = cell.max(here * p);
                     }
@@ -118,15 +133,13 @@ impl ProbabilityIndex {
             .insert(target.to_string(), p);
     }
 
-    pub(crate) fn get(&self, source: &str, target: &str) -> Option<f64> {
-        self.by_source.get(source)?.get(target).copied()
-    }
-
     pub(crate) fn score(&self, source: &str, target: &str, p: f64) -> f64 {
-        divergence(
-            p,
-            composed_probability(source, target, |s, t| self.get(s, t)),
-        )
+        let composed = compose(source, target, |s| {
+            self.by_source
+                .get(s)
+                .map(|targets| move |t: &str| targets.get(t).copied())
+        });
+        divergence(p, composed)
     }
 }
 
