@@ -271,7 +271,10 @@ fn checksummed(bytes: &[u8], position: usize) -> bool {
 
 /// Mutated-file cases: `BALER_FUZZ_CASES` (CI runs a longer smoke), else 400.
 fn fuzz_cases() -> u32 {
-    std::env::var("BALER_FUZZ_CASES").ok().and_then(|v| v.parse().ok()).unwrap_or(400)
+    std::env::var("BALER_FUZZ_CASES")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(400)
 }
 
 proptest! {

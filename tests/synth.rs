@@ -401,7 +401,10 @@ fn cli_writes_a_compressed_table_that_reads_back() {
     let input = baler::files::open_input(&path).unwrap();
     let reader = TsvReader::new(input, "bench.tsv.zst").unwrap();
     assert_eq!(reader.header().metadata.sentence_pairs(), Some(1000));
-    assert_eq!(reader.collect::<baler::Result<Vec<_>>>().unwrap().len(), 5000);
+    assert_eq!(
+        reader.collect::<baler::Result<Vec<_>>>().unwrap().len(),
+        5000
+    );
 
     // Same flags through the library give the same table.
     let library = tsv(&SynthOptions {

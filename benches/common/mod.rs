@@ -101,12 +101,7 @@ pub fn sentences(pairs: &[PhrasePair], count: usize, len: usize) -> Vec<Vec<Stri
 }
 
 /// The baseline's version of `Table::spans`: every sub-phrase up to `max_len` looked up.
-pub fn baseline_spans(
-    map: &Baseline,
-    tokens: &[&str],
-    max_len: usize,
-    key: &mut String,
-) -> usize {
+pub fn baseline_spans(map: &Baseline, tokens: &[&str], max_len: usize, key: &mut String) -> usize {
     let mut found = 0;
     for start in 0..tokens.len() {
         key.clear();
