@@ -1,1 +1,2 @@
 //! Integration tests: the command line and the library's public API.
+mod extract;

@@ -49,6 +49,7 @@ pub mod runs;
 pub mod score;
 pub mod sentences;
 pub mod shard;
+pub mod synthetic;
 
 pub use report::peak_memory;
 
@@ -98,6 +99,14 @@ pub fn extract(
     out: &Path,
 ) -> Result<ExtractSummary> {
     let started = Instant::now();
+    for (flag, path) in [("--source", &paths.source), ("--target", &paths.target)] {
+        if path.as_os_str() == crate::files::STDIO {
+            return Err(crate::Error::invalid(
+                flag,
+                "the corpus is read twice (extraction, then sentence-level counts): give a file, not -",
+            ));
+        }
+    }
     let work = shard::temp_dir(&options.shard.temp_dir, "baler-extract-work-")?;
     let merged_path = work.path().join("merged.tsv.zst");
     let runs = shard::extract_runs(paths, &options.shard)?;
