@@ -271,7 +271,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             say(
                 args.resources.quiet,
                 format!(
-                    "{}; {} phrase-pair occurrences, {} distinct pairs, {} sources, {} targets; {} counting pass(es); {:.1} s, {}",
+                    "{}; {} phrase-pair occurrences, {} distinct pairs, {} sources, {} targets; {} counting pass(es); {:.1} s (extract {:.1}, merge {:.1}, count {:.1}, attach {:.1}), {}",
                     corpus_summary(&s.corpus),
                     s.pair_occurrences,
                     s.pairs,
@@ -279,6 +279,10 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
                     s.targets,
                     s.sentence_count_passes,
                     s.seconds,
+                    s.step_seconds[0],
+                    s.step_seconds[1],
+                    s.step_seconds[2],
+                    s.step_seconds[3],
                     memory_summary()
                 ),
             );

@@ -89,6 +89,9 @@ pub struct ExtractSummary {
     pub sentence_count_passes: u64,
     /// Wall-clock seconds.
     pub seconds: f64,
+    /// Wall-clock seconds of the four steps: extraction into runs, merge and scoring,
+    /// sentence-level counting, attaching the counts.
+    pub step_seconds: [f64; 4],
 }
 
 /// Extracts, scores and counts the corpus at `paths` and writes the table to `out`
@@ -109,7 +112,14 @@ pub fn extract(
     }
     let work = shard::temp_dir(&options.shard.temp_dir, "baler-extract-work-")?;
     let merged_path = work.path().join("merged.tsv.zst");
+    let mut steps = [0.0; 4];
+    let mut lap = Instant::now();
+    let mut next_lap = |k: usize| {
+        steps[k] = lap.elapsed().as_secs_f64();
+        lap = Instant::now();
+    };
     let runs = shard::extract_runs(paths, &options.shard)?;
+    next_lap(0);
     let MergeSummary {
         info,
         pairs,
@@ -127,6 +137,7 @@ pub fn extract(
         summary
     };
     drop(runs);
+    next_lap(1);
     let tally_path = work.path().join("corpus.tally");
     let tally_options = TallyOptions {
         max_sentence_length: Some(options.shard.corpus.max_sentence_length),
@@ -140,9 +151,11 @@ pub fn extract(
         ..paths.clone()
     };
     let tally = sentences::tally(&merged_path, &counting, &tally_options, &tally_path)?;
+    next_lap(2);
     let mut output = Output::create(out)?;
     sentences::attach(&merged_path, &[tally_path], &mut output, out)?;
     output.commit()?;
+    next_lap(3);
     Ok(ExtractSummary {
         corpus: info.corpus,
         pair_occurrences: info.pair_occurrences,
@@ -151,5 +164,6 @@ pub fn extract(
         targets,
         sentence_count_passes: tally.passes,
         seconds: started.elapsed().as_secs_f64(),
+        step_seconds: steps,
     })
 }
