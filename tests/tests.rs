@@ -1,5 +1,6 @@
 //! Integration tests: the command line and the library's public API.
 
+mod extract;
 mod pack;
 mod prune;
 mod spec;

@@ -1,12 +1,382 @@
-//! `baler extract` (to be written).
+//! `baler extract`: phrase pairs from word-aligned parallel text, scored and counted.
+//!
+//! Without a subcommand it runs the whole job on this machine. The subcommands are the same
+//! job as map and reduce steps, for corpora processed shard by shard:
+//! `shard` (map) → `merge` (reduce) → `tally` (map) → `attach` (reduce).
 
+use std::io::Write;
+use std::path::PathBuf;
 use std::process::ExitCode;
 
-#[derive(clap::Args)]
-pub struct Args {}
+use baler::extract::corpus::{CorpusOptions, CorpusPaths, CorpusStats};
+use baler::extract::phrases::PhraseLimits;
+use baler::extract::score::{Discount, MergeOptions};
+use baler::extract::sentences::TallyOptions;
+use baler::extract::shard::ShardOptions;
+use baler::extract::{peak_memory, ExtractOptions};
+use baler::files::Output;
+use baler::Error;
 
-pub fn run(_args: Args) -> baler::Result<ExitCode> {
-    Err(baler::Error::Unsupported(
-        "`baler extract` is not built yet".into(),
-    ))
+#[derive(clap::Args)]
+#[command(args_conflicts_with_subcommands = true, subcommand_negates_reqs = true)]
+pub struct Args {
+    #[command(subcommand)]
+    step: Option<Step>,
+    #[command(flatten)]
+    job: Box<WholeJob>,
+}
+
+/// The one-machine path's flags (boxed: they make the argument struct large).
+#[derive(clap::Args)]
+struct WholeJob {
+    #[command(flatten)]
+    corpus: CorpusArgs,
+    #[command(flatten)]
+    phrases: PhraseArgs,
+    #[command(flatten)]
+    scoring: ScoringArgs,
+    #[command(flatten)]
+    resources: ResourceArgs,
+    /// Output table: .tsv, .tsv.zst, .tsv.gz, or - for standard output.
+    #[arg(short = 'o', long = "output", value_name = "OUT", required = true)]
+    output: Option<PathBuf>,
+}
+
+#[derive(clap::Subcommand)]
+enum Step {
+    /// Map: extract one corpus shard into a sorted, compressed count run.
+    Shard {
+        #[command(flatten)]
+        corpus: CorpusArgs,
+        #[command(flatten)]
+        phrases: PhraseArgs,
+        #[command(flatten)]
+        resources: ResourceArgs,
+        /// The count run to write.
+        #[arg(short = 'o', long = "output", value_name = "RUN")]
+        output: PathBuf,
+    },
+    /// Reduce: merge count runs of any number of shards into the scored table, without the
+    /// sentence-level counts.
+    Merge {
+        /// Count runs written by `baler extract shard`.
+        #[arg(required = true, value_name = "RUN")]
+        runs: Vec<PathBuf>,
+        #[command(flatten)]
+        scoring: ScoringArgs,
+        #[command(flatten)]
+        resources: ResourceArgs,
+        /// The merged table (.tsv, .tsv.zst, .tsv.gz, or -).
+        #[arg(short = 'o', long = "output", value_name = "TABLE")]
+        output: PathBuf,
+    },
+    /// Map: count in one corpus shard the sentence pairs containing each pair's source, target
+    /// and both.
+    Tally {
+        /// The merged table written by `baler extract merge`.
+        #[arg(long, value_name = "TABLE")]
+        table: PathBuf,
+        /// Source side of the shard, one tokenized sentence per line.
+        #[arg(long, value_name = "SRC")]
+        source: PathBuf,
+        /// Target side of the shard.
+        #[arg(long, value_name = "TGT")]
+        target: PathBuf,
+        /// Skip sentence pairs longer than this (default: the table's max_sentence_length).
+        #[arg(long, value_name = "N")]
+        max_sentence_length: Option<usize>,
+        #[command(flatten)]
+        resources: ResourceArgs,
+        /// The tally to write.
+        #[arg(short = 'o', long = "output", value_name = "TALLY")]
+        output: PathBuf,
+    },
+    /// Reduce: sum the tallies of all shards and append cooc, df_source and df_target to the
+    /// merged table.
+    Attach {
+        /// The merged table the tallies were made for.
+        #[arg(long, value_name = "TABLE")]
+        table: PathBuf,
+        /// Tallies written by `baler extract tally`, one per shard.
+        #[arg(required = true, value_name = "TALLY")]
+        tallies: Vec<PathBuf>,
+        /// The final table (.tsv, .tsv.zst, .tsv.gz, or -).
+        #[arg(short = 'o', long = "output", value_name = "OUT")]
+        output: PathBuf,
+    },
+}
+
+#[derive(clap::Args, Clone)]
+struct CorpusArgs {
+    /// Source side: one tokenized sentence per line (.gz/.zst read transparently).
+    #[arg(long, value_name = "SRC", required = true)]
+    source: Option<PathBuf>,
+    /// Target side, line-parallel to the source.
+    #[arg(long, value_name = "TGT", required = true)]
+    target: Option<PathBuf>,
+    /// Word alignment: space-separated 0-based source-target links `i-j`, one line per pair.
+    #[arg(long, value_name = "ALIGN", required = true)]
+    alignment: Option<PathBuf>,
+    /// The alignment's links are target-source (`j-i`) instead.
+    #[arg(long)]
+    links_target_first: bool,
+    /// Skip (and count) sentence pairs with more tokens than this on either side.
+    #[arg(long, value_name = "N", default_value_t = 100)]
+    max_sentence_length: usize,
+}
+
+#[derive(clap::Args, Clone)]
+struct PhraseArgs {
+    /// Longest phrase, in tokens, on either side.
+    #[arg(long, value_name = "N", default_value_t = 7)]
+    max_length: usize,
+    /// Do not extend pairs over unaligned words at their edges.
+    #[arg(long)]
+    no_unaligned_edges: bool,
+}
+
+#[derive(clap::Args, Clone)]
+struct ScoringArgs {
+    /// Discount phrase counts before taking relative frequencies.
+    #[arg(long, value_enum, default_value_t = DiscountArg::None)]
+    discount: DiscountArg,
+}
+
+#[derive(clap::ValueEnum, Clone, Copy)]
+enum DiscountArg {
+    /// Plain relative frequencies.
+    None,
+    /// Good-Turing discounted counts (counts up to 10).
+    GoodTuring,
+    /// Fixed absolute discount with lower-order redistribution.
+    KneserNey,
+}
+
+#[derive(clap::Args, Clone)]
+struct ResourceArgs {
+    /// Memory budget, e.g. 512M or 4G; tables beyond it spill to sorted runs on disk.
+    #[arg(long, value_name = "SIZE", value_parser = super::size_arg, default_value = "2G")]
+    memory: u64,
+    /// Worker threads (default: every core).
+    #[arg(long, value_name = "N")]
+    threads: Option<usize>,
+    /// Directory for temporary runs (default: the system temporary directory).
+    #[arg(long, value_name = "DIR")]
+    temp_dir: Option<PathBuf>,
+    /// No progress bar or summary on stderr.
+    #[arg(long, short = 'q')]
+    quiet: bool,
+}
+
+impl ResourceArgs {
+    fn threads(&self) -> baler::Result<usize> {
+        match self.threads {
+            Some(0) => Err(Error::invalid("--threads", "must be at least 1")),
+            Some(n) => Ok(n),
+            None => Ok(std::thread::available_parallelism().map_or(1, |n| n.get())),
+        }
+    }
+}
+
+impl CorpusArgs {
+    fn paths(&self) -> CorpusPaths {
+        CorpusPaths {
+            source: self.source.clone().expect("required by clap"),
+            target: self.target.clone().expect("required by clap"),
+            alignment: self.alignment.clone(),
+        }
+    }
+    fn options(&self) -> CorpusOptions {
+        CorpusOptions {
+            max_sentence_length: self.max_sentence_length,
+            links_target_first: self.links_target_first,
+        }
+    }
+}
+
+impl PhraseArgs {
+    fn limits(&self) -> baler::Result<PhraseLimits> {
+        if self.max_length == 0 || self.max_length > 255 {
+            return Err(Error::invalid(
+                "--max-length",
+                format!("{} is not between 1 and 255", self.max_length),
+            ));
+        }
+        Ok(PhraseLimits {
+            max_length: self.max_length,
+            unaligned_edges: !self.no_unaligned_edges,
+        })
+    }
+}
+
+impl DiscountArg {
+    fn discount(self) -> Discount {
+        match self {
+            DiscountArg::None => Discount::None,
+            DiscountArg::GoodTuring => Discount::GoodTuring,
+            DiscountArg::KneserNey => Discount::KneserNey,
+        }
+    }
+}
+
+fn shard_options(
+    corpus: &CorpusArgs,
+    phrases: &PhraseArgs,
+    resources: &ResourceArgs,
+) -> baler::Result<ShardOptions> {
+    Ok(ShardOptions {
+        limits: phrases.limits()?,
+        corpus: corpus.options(),
+        memory: resources.memory,
+        threads: resources.threads()?,
+        temp_dir: resources.temp_dir.clone(),
+        progress: !resources.quiet,
+    })
+}
+
+fn corpus_summary(c: &CorpusStats) -> String {
+    format!(
+        "{} lines read, {} sentence pairs kept, {} skipped ({} empty, {} over the length limit)",
+        c.lines,
+        c.sentence_pairs,
+        c.skipped_empty + c.skipped_long,
+        c.skipped_empty,
+        c.skipped_long
+    )
+}
+
+fn memory_summary() -> String {
+    peak_memory().map_or_else(
+        || "peak memory unknown".into(),
+        |b| format!("peak memory {:.1} MiB", b as f64 / (1 << 20) as f64),
+    )
+}
+
+pub fn run(args: Args) -> baler::Result<ExitCode> {
+    let started = std::time::Instant::now();
+    let say = |quiet: bool, text: String| {
+        if !quiet {
+            let _ = writeln!(std::io::stderr(), "baler extract: {text}");
+        }
+    };
+    match args.step {
+        None => {
+            let args = *args.job;
+            let output = args.output.expect("required by clap");
+            let options = ExtractOptions {
+                shard: shard_options(&args.corpus, &args.phrases, &args.resources)?,
+                discount: args.scoring.discount.discount(),
+            };
+            let s = baler::extract::extract(&args.corpus.paths(), &options, &output)?;
+            say(
+                args.resources.quiet,
+                format!(
+                    "{}; {} phrase-pair occurrences, {} distinct pairs, {} sources, {} targets; {} counting pass(es); {:.1} s (extract {:.1}, merge {:.1}, count {:.1}, attach {:.1}), {}",
+                    corpus_summary(&s.corpus),
+                    s.pair_occurrences,
+                    s.pairs,
+                    s.sources,
+                    s.targets,
+                    s.sentence_count_passes,
+                    s.seconds,
+                    s.step_seconds[0],
+                    s.step_seconds[1],
+                    s.step_seconds[2],
+                    s.step_seconds[3],
+                    memory_summary()
+                ),
+            );
+        }
+        Some(Step::Shard {
+            corpus,
+            phrases,
+            resources,
+            output,
+        }) => {
+            let options = shard_options(&corpus, &phrases, &resources)?;
+            let info = baler::extract::shard::extract_shard(&corpus.paths(), &options, &output)?;
+            say(
+                resources.quiet,
+                format!(
+                    "{}; {} phrase-pair occurrences into {}; {:.1} s, {}",
+                    corpus_summary(&info.corpus),
+                    info.pair_occurrences,
+                    output.display(),
+                    started.elapsed().as_secs_f64(),
+                    memory_summary()
+                ),
+            );
+        }
+        Some(Step::Merge {
+            runs,
+            scoring,
+            resources,
+            output,
+        }) => {
+            let options = MergeOptions {
+                discount: scoring.discount.discount(),
+                memory: resources.memory,
+                temp_dir: resources.temp_dir.clone(),
+            };
+            let mut out = Output::create(&output)?;
+            let s = baler::extract::score::merge_and_score(&runs, &mut out, &output, &options)?;
+            out.commit()?;
+            say(
+                resources.quiet,
+                format!(
+                    "{} runs, {} sentence pairs: {} distinct pairs, {} sources, {} targets; {:.1} s, {}",
+                    runs.len(),
+                    s.info.corpus.sentence_pairs,
+                    s.pairs,
+                    s.sources,
+                    s.targets,
+                    started.elapsed().as_secs_f64(),
+                    memory_summary()
+                ),
+            );
+        }
+        Some(Step::Tally {
+            table,
+            source,
+            target,
+            max_sentence_length,
+            resources,
+            output,
+        }) => {
+            let options = TallyOptions {
+                max_sentence_length,
+                memory: resources.memory,
+                threads: resources.threads()?,
+                temp_dir: resources.temp_dir.clone(),
+                progress: !resources.quiet,
+            };
+            let corpus = CorpusPaths {
+                source,
+                target,
+                alignment: None,
+            };
+            let info = baler::extract::sentences::tally(&table, &corpus, &options, &output)?;
+            say(
+                resources.quiet,
+                format!(
+                    "{}; {} table rows counted in {} pass(es); {:.1} s, {}",
+                    corpus_summary(&info.corpus),
+                    info.table_pairs,
+                    info.passes,
+                    started.elapsed().as_secs_f64(),
+                    memory_summary()
+                ),
+            );
+        }
+        Some(Step::Attach {
+            table,
+            tallies,
+            output,
+        }) => {
+            let mut out = Output::create(&output)?;
+            baler::extract::sentences::attach(&table, &tallies, &mut out, &output)?;
+            out.commit()?;
+        }
+    }
+    Ok(ExitCode::SUCCESS)
 }

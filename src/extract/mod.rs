@@ -1,1 +1,169 @@
-//! Phrase-pair extraction from word-aligned parallel text (to be written).
+//! Phrase-pair extraction and scoring from word-aligned parallel text.
+//!
+//! The work is shaped as map and reduce, so that each step can also run on its own (the
+//! `baler extract` subcommands expose them) and a corpus larger than one machine can be
+//! processed shard by shard elsewhere:
+//!
+//! 1. **map** ([`shard`]): a shard of the corpus becomes a sorted, compressed count run of
+//!    phrase pairs and word links ([`runs`]);
+//! 2. **reduce** ([`score`]): runs from any number of shards merge into the scored table,
+//!    sorted by source then target;
+//! 3. **map** ([`sentences::tally`]): each shard counts, for every pair of that table, the
+//!    sentence pairs containing its source, its target, and both;
+//! 4. **reduce** ([`sentences::attach`]): the tallies are summed and appended as the
+//!    `cooc`, `df_source` and `df_target` columns.
+//!
+//! [`extract`] runs the four steps on one machine. Every count is an integer summed by key,
+//! and every score is computed from the summed counts in one thread, so the output is
+//! byte-identical whatever the number of threads or shards.
+//!
+//! ```
+//! # fn main() -> baler::Result<()> {
+//! use baler::extract::{extract, corpus::CorpusPaths, ExtractOptions};
+//! let dir = tempfile::tempdir().unwrap();
+//! let write = |name: &str, text: &str| {
+//!     let p = dir.path().join(name);
+//!     std::fs::write(&p, text).unwrap();
+//!     p
+//! };
+//! let paths = CorpusPaths {
+//!     source: write("ferry.es", "el ferry sale\nel ferry llega\n"),
+//!     target: write("ferry.en", "the ferry leaves\nthe ferry arrives\n"),
+//!     alignment: Some(write("ferry.links", "0-0 1-1 2-2\n0-0 1-1 2-2\n")),
+//! };
+//! let out = dir.path().join("ferry.tsv");
+//! let summary = extract(&paths, &ExtractOptions::default(), &out)?;
+//! assert_eq!(summary.corpus.sentence_pairs, 2);
+//! let table = std::fs::read_to_string(&out).unwrap();
+//! let row = table.lines().find(|l| l.starts_with("el ferry\t")).unwrap();
+//! // source, target, alignment, 4 scores, count, count_source, count_target, cooc, df_source, df_target
+//! assert_eq!(row, "el ferry\tthe ferry\t0-0 1-1\t1\t1\t1\t1\t2\t2\t2\t2\t2\t2");
+//! # Ok(()) }
+//! ```
+
+pub mod corpus;
+mod counter;
+pub mod phrases;
+mod report;
+pub mod runs;
+pub mod score;
+pub mod sentences;
+pub mod shard;
+pub mod synthetic;
+
+pub use report::peak_memory;
+
+use std::path::Path;
+use std::time::Instant;
+
+use crate::error::Result;
+use crate::files::Output;
+use corpus::{CorpusPaths, CorpusStats};
+use score::{MergeOptions, MergeSummary};
+use sentences::TallyOptions;
+use shard::ShardOptions;
+
+/// Settings of the one-machine path.
+#[derive(Clone, Debug, Default)]
+pub struct ExtractOptions {
+    /// Extraction, corpus reading, memory, threads, temporary directory, progress.
+    pub shard: ShardOptions,
+    /// Discounting of the phrase counts.
+    pub discount: score::Discount,
+}
+
+/// What a run of [`extract`] did.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ExtractSummary {
+    /// Lines read and sentence pairs kept or skipped.
+    pub corpus: CorpusStats,
+    /// Phrase-pair occurrences extracted.
+    pub pair_occurrences: u64,
+    /// Distinct phrase pairs in the table.
+    pub pairs: u64,
+    /// Distinct source phrases.
+    pub sources: u64,
+    /// Distinct target phrases.
+    pub targets: u64,
+    /// Corpus passes of the sentence-level counting.
+    pub sentence_count_passes: u64,
+    /// Wall-clock seconds.
+    pub seconds: f64,
+    /// Wall-clock seconds of the four steps: extraction into runs, merge and scoring,
+    /// sentence-level counting, attaching the counts.
+    pub step_seconds: [f64; 4],
+}
+
+/// Extracts, scores and counts the corpus at `paths` and writes the table to `out`
+/// (`.tsv`, `.tsv.zst`, `.tsv.gz` or `-`); the file appears only when complete.
+pub fn extract(
+    paths: &CorpusPaths,
+    options: &ExtractOptions,
+    out: &Path,
+) -> Result<ExtractSummary> {
+    let started = Instant::now();
+    for (flag, path) in [("--source", &paths.source), ("--target", &paths.target)] {
+        if path.as_os_str() == crate::files::STDIO {
+            return Err(crate::Error::invalid(
+                flag,
+                "the corpus is read twice (extraction, then sentence-level counts): give a file, not -",
+            ));
+        }
+    }
+    let work = shard::temp_dir(&options.shard.temp_dir, "baler-extract-work-")?;
+    let merged_path = work.path().join("merged.tsv.zst");
+    let mut steps = [0.0; 4];
+    let mut lap = Instant::now();
+    let mut next_lap = |k: usize| {
+        steps[k] = lap.elapsed().as_secs_f64();
+        lap = Instant::now();
+    };
+    let runs = shard::extract_runs(paths, &options.shard)?;
+    next_lap(0);
+    let MergeSummary {
+        info,
+        pairs,
+        sources,
+        targets,
+    } = {
+        let mut merged = Output::create(&merged_path)?;
+        let merge = MergeOptions {
+            discount: options.discount,
+            memory: options.shard.memory,
+            temp_dir: Some(work.path().to_path_buf()),
+        };
+        let summary = score::merge_and_score(&runs.runs, &mut merged, &merged_path, &merge)?;
+        merged.commit()?;
+        summary
+    };
+    drop(runs);
+    next_lap(1);
+    let tally_path = work.path().join("corpus.tally");
+    let tally_options = TallyOptions {
+        max_sentence_length: Some(options.shard.corpus.max_sentence_length),
+        memory: options.shard.memory,
+        threads: options.shard.threads,
+        temp_dir: Some(work.path().to_path_buf()),
+        progress: options.shard.progress,
+    };
+    let counting = CorpusPaths {
+        alignment: None,
+        ..paths.clone()
+    };
+    let tally = sentences::tally(&merged_path, &counting, &tally_options, &tally_path)?;
+    next_lap(2);
+    let mut output = Output::create(out)?;
+    sentences::attach(&merged_path, &[tally_path], &mut output, out)?;
+    output.commit()?;
+    next_lap(3);
+    Ok(ExtractSummary {
+        corpus: info.corpus,
+        pair_occurrences: info.pair_occurrences,
+        pairs,
+        sources,
+        targets,
+        sentence_count_passes: tally.passes,
+        seconds: started.elapsed().as_secs_f64(),
+        step_seconds: steps,
+    })
+}

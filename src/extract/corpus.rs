@@ -1,0 +1,406 @@
+//! Reading a sentence-aligned, tokenized parallel corpus and its word alignment in lockstep.
+//!
+//! Each file holds one sentence pair per line. Tokens are separated by spaces (tabs count as
+//! spaces; runs of them are one separator). Alignment lines hold space-separated `i-j` links,
+//! `i` a 0-based source token index and `j` a 0-based target token index (or the reverse, with
+//! [`CorpusOptions::links_target_first`]). Inputs ending in `.gz` or `.zst` are decompressed.
+//!
+//! A sentence pair whose source or target line is empty, or whose source or target is longer
+//! than [`CorpusOptions::max_sentence_length`] tokens, is skipped and counted in
+//! [`CorpusStats`]. Everything else that is wrong (files of different lengths, a malformed link,
+//! a link past the end of its sentence, a NUL byte) is an error naming file, line and reason.
+
+use std::fs::File;
+use std::io::{self, BufRead, BufReader, Read};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::Arc;
+
+use crate::error::{Error, Result};
+use crate::files;
+
+/// Where the corpus is.
+#[derive(Clone, Debug)]
+pub struct CorpusPaths {
+    /// Source-language sentences.
+    pub source: PathBuf,
+    /// Target-language sentences.
+    pub target: PathBuf,
+    /// Word alignments; `None` when only the tokens are needed (sentence-level counting).
+    pub alignment: Option<PathBuf>,
+}
+
+/// How to read the corpus.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct CorpusOptions {
+    /// Sentence pairs with more tokens than this on either side are skipped (at most 65535,
+    /// since links are stored as 16-bit indices).
+    pub max_sentence_length: usize,
+    /// Links are written `target-source` instead of `source-target`.
+    pub links_target_first: bool,
+}
+
+impl Default for CorpusOptions {
+    fn default() -> Self {
+        CorpusOptions {
+            max_sentence_length: 100,
+            links_target_first: false,
+        }
+    }
+}
+
+impl CorpusOptions {
+    /// Checks the options' ranges.
+    pub fn validate(&self) -> Result<()> {
+        if self.max_sentence_length == 0 || self.max_sentence_length > usize::from(u16::MAX) {
+            return Err(Error::invalid(
+                "--max-sentence-length",
+                format!("{} is not between 1 and 65535", self.max_sentence_length),
+            ));
+        }
+        Ok(())
+    }
+}
+
+/// Counts of what was read.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct CorpusStats {
+    /// Lines read from each file.
+    pub lines: u64,
+    /// Sentence pairs kept.
+    pub sentence_pairs: u64,
+    /// Sentence pairs skipped because a side was empty.
+    pub skipped_empty: u64,
+    /// Sentence pairs skipped because a side was longer than the maximum.
+    pub skipped_long: u64,
+}
+
+impl CorpusStats {
+    /// Adds another shard's counts.
+    pub fn add(&mut self, other: &CorpusStats) {
+        self.lines += other.lines;
+        self.sentence_pairs += other.sentence_pairs;
+        self.skipped_empty += other.skipped_empty;
+        self.skipped_long += other.skipped_long;
+    }
+}
+
+/// One tokenized sentence pair, tokens normalized to single spaces.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct SentencePair {
+    /// 1-based line number in the input files.
+    pub line: u64,
+    /// Source tokens joined by single spaces.
+    pub source: String,
+    /// Target tokens joined by single spaces.
+    pub target: String,
+    /// Byte offset of each source token in `source`, plus `source.len() + 1` at the end.
+    pub source_starts: Vec<u32>,
+    /// Byte offset of each target token in `target`, plus `target.len() + 1` at the end.
+    pub target_starts: Vec<u32>,
+    /// `(source, target)` links, sorted and deduplicated; empty without an alignment file.
+    pub links: Vec<(u16, u16)>,
+}
+
+impl SentencePair {
+    /// Number of source tokens.
+    pub fn source_len(&self) -> usize {
+        self.source_starts.len().saturating_sub(1)
+    }
+
+    /// Number of target tokens.
+    pub fn target_len(&self) -> usize {
+        self.target_starts.len().saturating_sub(1)
+    }
+
+    /// Source tokens `start..end` as a phrase (single spaces).
+    pub fn source_phrase(&self, start: usize, end: usize) -> &str {
+        span(&self.source, &self.source_starts, start, end)
+    }
+
+    /// Target tokens `start..end` as a phrase (single spaces).
+    pub fn target_phrase(&self, start: usize, end: usize) -> &str {
+        span(&self.target, &self.target_starts, start, end)
+    }
+}
+
+fn span<'a>(text: &'a str, starts: &[u32], start: usize, end: usize) -> &'a str {
+    &text[starts[start] as usize..starts[end] as usize - 1]
+}
+
+/// Normalizes `line` into `out` (tokens joined by single spaces) and records token offsets.
+/// Returns the number of tokens.
+fn tokenize(line: &str, out: &mut String, starts: &mut Vec<u32>) -> usize {
+    out.clear();
+    starts.clear();
+    for token in line.split([' ', '\t']).filter(|t| !t.is_empty()) {
+        if !out.is_empty() {
+            out.push(' ');
+        }
+        starts.push(out.len() as u32);
+        out.push_str(token);
+    }
+    starts.push(out.len() as u32 + 1);
+    starts.len() - 1
+}
+
+struct CountingRead<R> {
+    inner: R,
+    count: Arc<AtomicU64>,
+}
+
+impl<R: Read> Read for CountingRead<R> {
+    fn read(&mut self, buf: &mut [u8]) -> io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        self.count.fetch_add(n as u64, Ordering::Relaxed);
+        Ok(n)
+    }
+}
+
+/// Opens `path` like [`files::open_input`], counting the (compressed) bytes consumed.
+fn open_counted(path: &Path, count: Arc<AtomicU64>) -> Result<Box<dyn BufRead + Send>> {
+    if path.as_os_str() == files::STDIO {
+        return files::open_input(path);
+    }
+    let file = File::open(path).map_err(|e| Error::io(path, "opening", e))?;
+    let raw = CountingRead { inner: file, count };
+    let name = path.to_string_lossy();
+    Ok(if name.ends_with(".gz") {
+        Box::new(BufReader::with_capacity(
+            1 << 16,
+            flate2::read::MultiGzDecoder::new(raw),
+        ))
+    } else if name.ends_with(".zst") {
+        let decoder =
+            zstd::stream::read::Decoder::new(raw).map_err(|e| Error::io(path, "opening", e))?;
+        Box::new(BufReader::with_capacity(1 << 16, decoder))
+    } else {
+        Box::new(BufReader::with_capacity(1 << 16, raw))
+    })
+}
+
+struct Side {
+    name: String,
+    input: Box<dyn BufRead + Send>,
+    buf: String,
+}
+
+impl Side {
+    fn open(path: &Path, count: Option<Arc<AtomicU64>>) -> Result<Side> {
+        let input = match count {
+            Some(c) => open_counted(path, c)?,
+            None => files::open_input(path)?,
+        };
+        Ok(Side {
+            name: path.display().to_string(),
+            input,
+            buf: String::new(),
+        })
+    }
+
+    fn read(&mut self, line: u64) -> Result<bool> {
+        let more = files::read_line(&mut *self.input, &mut self.buf, &self.name, line)?;
+        if more && self.buf.contains('\0') {
+            return Err(Error::input(&self.name, line, "contains a NUL byte"));
+        }
+        Ok(more)
+    }
+}
+
+/// Reads sentence pairs from the source, target and (optionally) alignment files together.
+///
+/// # Examples
+/// ```
+/// use baler::extract::corpus::{CorpusOptions, CorpusPaths, CorpusReader, SentencePair};
+/// let dir = tempfile::tempdir().unwrap();
+/// let write = |name: &str, text: &str| {
+///     let p = dir.path().join(name);
+///     std::fs::write(&p, text).unwrap();
+///     p
+/// };
+/// let paths = CorpusPaths {
+///     source: write("harbour.es", "el  muelle\n\nla grúa nueva\n"),
+///     target: write("harbour.en", "the pier\nempty source\nthe new crane\n"),
+///     alignment: Some(write("harbour.links", "1-1 0-0\n\n0-0 1-2 2-1\n")),
+/// };
+/// let mut reader = CorpusReader::open(&paths, CorpusOptions::default()).unwrap();
+/// let mut pair = SentencePair::default();
+/// assert!(reader.next_pair(&mut pair).unwrap());
+/// assert_eq!((pair.source.as_str(), pair.links.as_slice()), ("el muelle", &[(0, 0), (1, 1)][..]));
+/// assert!(reader.next_pair(&mut pair).unwrap());
+/// assert_eq!((pair.line, pair.target_phrase(1, 3)), (3, "new crane"));
+/// assert!(!reader.next_pair(&mut pair).unwrap());
+/// assert_eq!(reader.stats().skipped_empty, 1);
+/// ```
+pub struct CorpusReader {
+    source: Side,
+    target: Side,
+    alignment: Option<Side>,
+    options: CorpusOptions,
+    line: u64,
+    stats: CorpusStats,
+    bytes: Arc<AtomicU64>,
+    total_bytes: Option<u64>,
+}
+
+impl CorpusReader {
+    /// Opens the files.
+    pub fn open(paths: &CorpusPaths, options: CorpusOptions) -> Result<CorpusReader> {
+        options.validate()?;
+        let bytes = Arc::new(AtomicU64::new(0));
+        let total_bytes = if paths.source.as_os_str() == files::STDIO {
+            None
+        } else {
+            std::fs::metadata(&paths.source).ok().map(|m| m.len())
+        };
+        Ok(CorpusReader {
+            source: Side::open(&paths.source, Some(bytes.clone()))?,
+            target: Side::open(&paths.target, None)?,
+            alignment: match &paths.alignment {
+                Some(p) => Some(Side::open(p, None)?),
+                None => None,
+            },
+            options,
+            line: 0,
+            stats: CorpusStats::default(),
+            bytes,
+            total_bytes,
+        })
+    }
+
+    /// What has been read so far.
+    pub fn stats(&self) -> CorpusStats {
+        self.stats
+    }
+
+    /// Bytes of the source file consumed so far (compressed bytes for compressed input), for
+    /// progress reports.
+    pub fn progress_counter(&self) -> Arc<AtomicU64> {
+        self.bytes.clone()
+    }
+
+    /// Size of the source file in bytes, when known.
+    pub fn total_bytes(&self) -> Option<u64> {
+        self.total_bytes
+    }
+
+    /// Reads the next kept sentence pair into `pair`; false at the end of the corpus.
+    pub fn next_pair(&mut self, pair: &mut SentencePair) -> Result<bool> {
+        loop {
+            self.line += 1;
+            let line = self.line;
+            let s = self.source.read(line)?;
+            let t = self.target.read(line)?;
+            let a = match &mut self.alignment {
+                Some(side) => Some(side.read(line)?),
+                None => None,
+            };
+            let all = [Some(s), Some(t), a];
+            if all.iter().flatten().all(|more| !more) {
+                self.line -= 1;
+                return Ok(false);
+            }
+            if let Some(reason) = self.length_mismatch(all) {
+                return Err(reason);
+            }
+            self.stats.lines += 1;
+            let ns = tokenize(&self.source.buf, &mut pair.source, &mut pair.source_starts);
+            let nt = tokenize(&self.target.buf, &mut pair.target, &mut pair.target_starts);
+            if ns == 0 || nt == 0 {
+                self.stats.skipped_empty += 1;
+                continue;
+            }
+            if ns > self.options.max_sentence_length || nt > self.options.max_sentence_length {
+                self.stats.skipped_long += 1;
+                continue;
+            }
+            pair.line = line;
+            pair.links.clear();
+            if let Some(side) = &self.alignment {
+                parse_links(
+                    &side.buf,
+                    ns,
+                    nt,
+                    self.options.links_target_first,
+                    &mut pair.links,
+                )
+                .map_err(|reason| Error::input(&side.name, line, reason))?;
+                pair.links.sort_unstable();
+                pair.links.dedup();
+            }
+            self.stats.sentence_pairs += 1;
+            return Ok(true);
+        }
+    }
+
+    fn length_mismatch(&self, more: [Option<bool>; 3]) -> Option<Error> {
+        let sides: Vec<(&Side, bool)> = [Some(&self.source), Some(&self.target)]
+            .into_iter()
+            .chain([self.alignment.as_ref()])
+            .zip(more)
+            .filter_map(|(side, m)| Some((side?, m?)))
+            .collect();
+        let ended = sides.iter().find(|(_, m)| !m)?;
+        let going = sides.iter().find(|(_, m)| *m)?;
+        Some(Error::input(
+            &going.0.name,
+            self.line,
+            format!(
+                "line counts differ: {} has {} lines but {} continues",
+                ended.0.name,
+                self.line - 1,
+                going.0.name
+            ),
+        ))
+    }
+}
+
+/// Parses one alignment line into `(source, target)` links checked against the sentence
+/// lengths.
+///
+/// # Examples
+/// ```
+/// use baler::extract::corpus::parse_links;
+/// let mut links = Vec::new();
+/// parse_links("0-1 2-0", 3, 2, false, &mut links).unwrap();
+/// assert_eq!(links, [(0, 1), (2, 0)]);
+/// parse_links("1-0 0-2", 3, 2, true, &mut links).unwrap(); // target-source order
+/// assert_eq!(links, [(0, 1), (2, 0)]);
+/// assert!(parse_links("0-2", 3, 2, false, &mut links).unwrap_err().contains("2-token target"));
+/// assert!(parse_links("0:1", 3, 2, false, &mut links).unwrap_err().contains("malformed"));
+/// ```
+pub fn parse_links(
+    line: &str,
+    source_len: usize,
+    target_len: usize,
+    target_first: bool,
+    links: &mut Vec<(u16, u16)>,
+) -> std::result::Result<(), String> {
+    links.clear();
+    for link in line.split([' ', '\t']).filter(|t| !t.is_empty()) {
+        let malformed = || {
+            let order = if target_first {
+                "target-source"
+            } else {
+                "source-target"
+            };
+            format!("malformed link {link:?}: expected i-j (0-based {order} token indices)")
+        };
+        let (a, b) = link.split_once('-').ok_or_else(malformed)?;
+        let a: usize = a.parse().map_err(|_| malformed())?;
+        let b: usize = b.parse().map_err(|_| malformed())?;
+        let (i, j) = if target_first { (b, a) } else { (a, b) };
+        if i >= source_len {
+            return Err(format!(
+                "link {link:?}: source index {i} is past the end of the {source_len}-token source sentence"
+            ));
+        }
+        if j >= target_len {
+            return Err(format!(
+                "link {link:?}: target index {j} is past the end of the {target_len}-token target sentence"
+            ));
+        }
+        links.push((i as u16, j as u16));
+    }
+    Ok(())
+}

@@ -1,0 +1,395 @@
+//! Count runs: the sorted, compressed files that shards of the corpus are extracted into.
+//!
+//! A run is one zstd frame holding
+//!
+//! 1. the 8 bytes `BALERRUN`, then a little-endian `u32` format version (1);
+//! 2. a little-endian `u32` length and that many bytes of JSON [`RunInfo`] (what was read and
+//!    with which settings);
+//! 3. records in strictly increasing key byte order, each a LEB128 key length, the key, and a
+//!    LEB128 count; a key length of 0 ends the records.
+//!
+//! Keys start with a kind byte. [`WORD_KIND`] keys are `source word 0x00 target word`, with
+//! an empty word standing for NULL (an unaligned word on the other side); [`PHRASE_KIND`] keys
+//! are `source phrase 0x00 target phrase 0x00 internal alignment`. Runs from any number of
+//! shards merge by summing the counts of equal keys ([`RunMerger`]).
+
+use std::cmp::Ordering;
+use std::collections::BinaryHeap;
+use std::fs::File;
+use std::io::{self, BufReader, BufWriter, Read, Write};
+use std::path::{Path, PathBuf};
+
+use super::corpus::CorpusStats;
+use crate::error::{Error, Result};
+
+/// Kind byte of a word-link count key.
+pub const WORD_KIND: u8 = 1;
+/// Kind byte of a phrase-pair count key.
+pub const PHRASE_KIND: u8 = 2;
+
+const MAGIC: &[u8; 8] = b"BALERRUN";
+const VERSION: u32 = 1;
+
+/// What a run was extracted from, and how.
+#[derive(Clone, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct RunInfo {
+    /// What was read from the corpus shard(s).
+    pub corpus: CorpusStats,
+    /// Longest phrase extracted.
+    pub max_length: usize,
+    /// Longest sentence kept.
+    pub max_sentence_length: usize,
+    /// Whether unaligned edge words extended pairs.
+    pub unaligned_edges: bool,
+    /// Phrase-pair occurrences extracted.
+    pub pair_occurrences: u64,
+}
+
+impl RunInfo {
+    /// Adds another run's counts, checking that the settings agree.
+    pub fn combine(&mut self, other: &RunInfo, other_name: &Path) -> Result<()> {
+        if (
+            self.max_length,
+            self.max_sentence_length,
+            self.unaligned_edges,
+        ) != (
+            other.max_length,
+            other.max_sentence_length,
+            other.unaligned_edges,
+        ) {
+            return Err(Error::Unsupported(format!(
+                "{} was extracted with different settings (max length {}, max sentence length {}, unaligned edges {}) than the runs before it ({}, {}, {})",
+                other_name.display(),
+                other.max_length,
+                other.max_sentence_length,
+                other.unaligned_edges,
+                self.max_length,
+                self.max_sentence_length,
+                self.unaligned_edges
+            )));
+        }
+        self.corpus.add(&other.corpus);
+        self.pair_occurrences += other.pair_occurrences;
+        Ok(())
+    }
+}
+
+/// Appends `v` as LEB128.
+pub(crate) fn put_varint(out: &mut Vec<u8>, mut v: u64) {
+    while v >= 0x80 {
+        out.push((v as u8) | 0x80);
+        v >>= 7;
+    }
+    out.push(v as u8);
+}
+
+/// Reads a LEB128 value from the front of `bytes`, advancing it.
+pub(crate) fn take_varint(bytes: &mut &[u8]) -> Option<u64> {
+    let mut v = 0u64;
+    for shift in (0..64).step_by(7) {
+        let (&b, rest) = bytes.split_first()?;
+        *bytes = rest;
+        v |= u64::from(b & 0x7f) << shift;
+        if b < 0x80 {
+            return Some(v);
+        }
+    }
+    None
+}
+
+pub(crate) fn read_varint<R: Read>(r: &mut R) -> io::Result<Option<u64>> {
+    let mut v = 0u64;
+    let mut byte = [0u8];
+    for (k, shift) in (0..64).step_by(7).enumerate() {
+        match r.read(&mut byte)? {
+            0 if k == 0 => return Ok(None),
+            0 => return Err(io::ErrorKind::UnexpectedEof.into()),
+            _ => {}
+        }
+        v |= u64::from(byte[0] & 0x7f) << shift;
+        if byte[0] < 0x80 {
+            return Ok(Some(v));
+        }
+    }
+    Err(io::Error::new(
+        io::ErrorKind::InvalidData,
+        "varint too long",
+    ))
+}
+
+/// Writes a run; records must be given in strictly increasing key order.
+pub struct RunWriter {
+    path: PathBuf,
+    encoder: zstd::stream::write::Encoder<'static, BufWriter<File>>,
+    buf: Vec<u8>,
+    last: Vec<u8>,
+    records: u64,
+}
+
+impl RunWriter {
+    /// Creates `path` and writes the header.
+    pub fn create(path: &Path, info: &RunInfo) -> Result<RunWriter> {
+        let file = File::create(path).map_err(|e| Error::io(path, "creating", e))?;
+        let werr = |e| Error::io(path, "writing", e);
+        let mut encoder =
+            zstd::stream::write::Encoder::new(BufWriter::with_capacity(1 << 16, file), 1)
+                .map_err(werr)?;
+        let json = serde_json::to_vec(info).expect("run info serializes");
+        encoder.write_all(MAGIC).map_err(werr)?;
+        encoder.write_all(&VERSION.to_le_bytes()).map_err(werr)?;
+        encoder
+            .write_all(&(json.len() as u32).to_le_bytes())
+            .map_err(werr)?;
+        encoder.write_all(&json).map_err(werr)?;
+        Ok(RunWriter {
+            path: path.to_path_buf(),
+            encoder,
+            buf: Vec::with_capacity(256),
+            last: Vec::new(),
+            records: 0,
+        })
+    }
+
+    /// Appends one record.
+    pub fn push(&mut self, key: &[u8], count: u64) -> Result<()> {
+        assert!(
+            !key.is_empty() && (self.records == 0 || key > self.last.as_slice()),
+            "run records must be pushed in strictly increasing key order"
+        );
+        self.buf.clear();
+        put_varint(&mut self.buf, key.len() as u64);
+        self.buf.extend_from_slice(key);
+        put_varint(&mut self.buf, count);
+        self.encoder
+            .write_all(&self.buf)
+            .map_err(|e| Error::io(&self.path, "writing", e))?;
+        self.last.clear();
+        self.last.extend_from_slice(key);
+        self.records += 1;
+        Ok(())
+    }
+
+    /// Writes the end marker and closes the file; returns the number of records.
+    pub fn finish(mut self) -> Result<u64> {
+        let werr = |e| Error::io(&self.path, "writing", e);
+        self.encoder.write_all(&[0]).map_err(werr)?;
+        let mut file = self.encoder.finish().map_err(werr)?;
+        file.flush().map_err(werr)?;
+        Ok(self.records)
+    }
+}
+
+/// Reads a run record by record.
+pub struct RunReader {
+    path: PathBuf,
+    input: BufReader<zstd::stream::read::Decoder<'static, BufReader<File>>>,
+    info: RunInfo,
+    key: Vec<u8>,
+    previous: Vec<u8>,
+    count: u64,
+    done: bool,
+    started: bool,
+}
+
+impl RunReader {
+    /// Opens `path` and reads its header.
+    pub fn open(path: &Path) -> Result<RunReader> {
+        let file = File::open(path).map_err(|e| Error::io(path, "opening", e))?;
+        let decoder =
+            zstd::stream::read::Decoder::new(file).map_err(|e| Error::io(path, "opening", e))?;
+        let mut input = BufReader::with_capacity(1 << 16, decoder);
+        let bad = |reason: &str| {
+            Error::Unsupported(format!(
+                "{}: not a baler count run: {reason}",
+                path.display()
+            ))
+        };
+        let mut head = [0u8; 16];
+        input
+            .read_exact(&mut head)
+            .map_err(|_| bad("too short or not zstd"))?;
+        if &head[..8] != MAGIC {
+            return Err(bad("wrong magic bytes"));
+        }
+        let version = u32::from_le_bytes(head[8..12].try_into().unwrap());
+        if version != VERSION {
+            return Err(bad(&format!(
+                "format version {version}, this baler reads {VERSION}"
+            )));
+        }
+        let len = u32::from_le_bytes(head[12..16].try_into().unwrap()) as usize;
+        let mut json = vec![0u8; len];
+        input
+            .read_exact(&mut json)
+            .map_err(|_| bad("truncated header"))?;
+        let info: RunInfo =
+            serde_json::from_slice(&json).map_err(|e| bad(&format!("bad header: {e}")))?;
+        Ok(RunReader {
+            path: path.to_path_buf(),
+            input,
+            info,
+            key: Vec::new(),
+            previous: Vec::new(),
+            count: 0,
+            done: false,
+            started: false,
+        })
+    }
+
+    /// The header.
+    pub fn info(&self) -> &RunInfo {
+        &self.info
+    }
+
+    /// Advances to the next record; false at the end.
+    pub fn advance(&mut self) -> Result<bool> {
+        if self.done {
+            return Ok(false);
+        }
+        let damaged = |reason: String| {
+            Error::Unsupported(format!(
+                "{}: damaged count run: {reason}",
+                self.path.display()
+            ))
+        };
+        let len = read_varint(&mut self.input)
+            .map_err(|e| damaged(e.to_string()))?
+            .ok_or_else(|| damaged("missing end marker (truncated?)".into()))?;
+        if len == 0 {
+            self.done = true;
+            return Ok(false);
+        }
+        if len > 1 << 20 {
+            return Err(damaged(format!("key length {len}")));
+        }
+        std::mem::swap(&mut self.key, &mut self.previous);
+        self.key.resize(len as usize, 0);
+        self.input
+            .read_exact(&mut self.key)
+            .map_err(|e| damaged(e.to_string()))?;
+        if self.started && self.key <= self.previous {
+            return Err(damaged("keys out of order".into()));
+        }
+        self.count = read_varint(&mut self.input)
+            .map_err(|e| damaged(e.to_string()))?
+            .ok_or_else(|| damaged("truncated record".into()))?;
+        self.started = true;
+        Ok(true)
+    }
+
+    /// The current record's key.
+    pub fn key(&self) -> &[u8] {
+        &self.key
+    }
+
+    /// The current record's count.
+    pub fn count(&self) -> u64 {
+        self.count
+    }
+}
+
+struct Head {
+    run: usize,
+    key: Vec<u8>,
+}
+
+impl PartialEq for Head {
+    fn eq(&self, other: &Self) -> bool {
+        self.cmp(other) == Ordering::Equal
+    }
+}
+impl Eq for Head {}
+impl Ord for Head {
+    fn cmp(&self, other: &Self) -> Ordering {
+        // Smallest key on top of the max-heap.
+        other.key.cmp(&self.key).then(other.run.cmp(&self.run))
+    }
+}
+impl PartialOrd for Head {
+    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
+        Some(self.cmp(other))
+    }
+}
+
+/// Merges runs into one stream in key order, summing the counts of equal keys.
+///
+/// # Examples
+/// ```
+/// use baler::extract::runs::{RunInfo, RunMerger, RunReader, RunWriter};
+/// let dir = tempfile::tempdir().unwrap();
+/// let mut paths = Vec::new();
+/// for (n, records) in [[("\u{2}buoy", 2), ("\u{2}quay", 1)], [("\u{2}anchor", 5), ("\u{2}quay", 3)]]
+///     .iter().enumerate()
+/// {
+///     let path = dir.path().join(format!("shard{n}.run"));
+///     let mut w = RunWriter::create(&path, &RunInfo::default()).unwrap();
+///     for (key, count) in records { w.push(key.as_bytes(), *count).unwrap(); }
+///     w.finish().unwrap();
+///     paths.push(path);
+/// }
+/// let readers = paths.iter().map(|p| RunReader::open(p)).collect::<Result<Vec<_>, _>>().unwrap();
+/// let mut merged = RunMerger::new(readers).unwrap();
+/// let mut out = Vec::new();
+/// while let Some((key, count)) = merged.next_record().unwrap() {
+///     out.push((String::from_utf8(key[1..].to_vec()).unwrap(), count));
+/// }
+/// assert_eq!(out, [("anchor".to_string(), 5), ("buoy".into(), 2), ("quay".into(), 4)]);
+/// ```
+pub struct RunMerger {
+    runs: Vec<RunReader>,
+    heap: BinaryHeap<Head>,
+    current: Vec<u8>,
+    spare: Vec<Vec<u8>>,
+}
+
+impl RunMerger {
+    /// Starts merging `runs`.
+    pub fn new(mut runs: Vec<RunReader>) -> Result<RunMerger> {
+        let mut heap = BinaryHeap::with_capacity(runs.len());
+        for (i, run) in runs.iter_mut().enumerate() {
+            if run.advance()? {
+                heap.push(Head {
+                    run: i,
+                    key: run.key().to_vec(),
+                });
+            }
+        }
+        Ok(RunMerger {
+            runs,
+            heap,
+            current: Vec::new(),
+            spare: Vec::new(),
+        })
+    }
+
+    /// The next distinct key and its summed count, or `None` at the end.
+    pub fn next_record(&mut self) -> Result<Option<(&[u8], u64)>> {
+        let Some(top) = self.heap.pop() else {
+            return Ok(None);
+        };
+        let old = std::mem::replace(&mut self.current, top.key);
+        self.spare.push(old);
+        let mut total = self.runs[top.run].count();
+        self.refill(top.run)?;
+        while let Some(next) = self.heap.peek() {
+            if next.key != self.current {
+                break;
+            }
+            let next = self.heap.pop().expect("peeked");
+            total = total.saturating_add(self.runs[next.run].count());
+            self.spare.push(next.key);
+            self.refill(next.run)?;
+        }
+        Ok(Some((&self.current, total)))
+    }
+
+    fn refill(&mut self, i: usize) -> Result<()> {
+        if self.runs[i].advance()? {
+            let mut key = self.spare.pop().unwrap_or_default();
+            key.clear();
+            key.extend_from_slice(self.runs[i].key());
+            self.heap.push(Head { run: i, key });
+        }
+        Ok(())
+    }
+}

@@ -1,0 +1,825 @@
+//! The sentence-level counts of the significance test: `cooc`, `df_source`, `df_target`.
+//!
+//! For a table (sorted by source, then target) and a corpus shard, [`tally`] counts, for
+//! every pair of the table, the sentence pairs of the shard whose source side contains the
+//! source phrase (`df_source`), whose target side contains the target phrase (`df_target`),
+//! and both (`cooc`), each phrase as a contiguous token sequence anywhere in its sentence and
+//! each sentence pair counted once. [`attach`] sums the tallies of any number of shards and
+//! appends them to the table as columns.
+//!
+//! How: the table's distinct targets go into an `fst` map (target → rank), its sources into
+//! another, and each source's targets into a sorted list of ranks. For every sentence pair
+//! and every start position, the source tokens are walked through the source map until no
+//! extracted source has that prefix (so the walk stops early), collecting the extracted sources
+//! present; likewise the targets. Each source's `cooc` counts are then the intersection of its
+//! target list with the sentence's targets, found by binary search from the smaller side. When
+//! the index exceeds the memory budget, the table is taken in chunks of sources, one corpus
+//! pass per chunk.
+//!
+//! A tally file is one zstd frame: `BALERTLY`, a little-endian `u32` version (1), a
+//! little-endian `u32` length and that many bytes of JSON [`TallyInfo`], then records of LEB128
+//! numbers `(gap + 1, cooc, df_source, df_target)` for table rows with any non-zero count
+//! (`gap` = rows skipped since the previous record), and a 0 ending the records.
+
+use std::io::{BufRead, BufWriter, Read, Write};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU32, Ordering};
+use std::sync::{mpsc, Mutex};
+
+use fst::raw::{Fst, Output};
+use fst::{Map, MapBuilder};
+
+use super::corpus::{CorpusOptions, CorpusPaths, CorpusReader, CorpusStats, SentencePair};
+use super::report::Progress;
+use super::runs::{put_varint, read_varint};
+use crate::error::{Error, Result};
+use crate::files;
+use crate::sort::ExternalSorter;
+
+const MAGIC: &[u8; 8] = b"BALERTLY";
+const VERSION: u32 = 1;
+const BATCH: usize = 512;
+
+/// Header of a tally: the shard read and the table it refers to.
+#[derive(Clone, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct TallyInfo {
+    /// What was read from the corpus shard.
+    pub corpus: CorpusStats,
+    /// Rows of the table the tally was computed for.
+    pub table_pairs: u64,
+    /// Corpus passes made (one per chunk of the index).
+    pub passes: u64,
+}
+
+/// Settings of [`tally`].
+#[derive(Clone, Debug)]
+pub struct TallyOptions {
+    /// Longest sentence kept; `None` takes the table's `max_sentence_length` metadata, which
+    /// must then be present (it must match the extraction so that the same sentence pairs are
+    /// counted).
+    pub max_sentence_length: Option<usize>,
+    /// Memory budget in bytes for the index.
+    pub memory: u64,
+    /// Worker threads.
+    pub threads: usize,
+    /// Parent directory for temporary files.
+    pub temp_dir: Option<PathBuf>,
+    /// Draw a progress bar on stderr (only when it is a terminal).
+    pub progress: bool,
+}
+
+impl Default for TallyOptions {
+    fn default() -> Self {
+        TallyOptions {
+            max_sentence_length: None,
+            memory: 2 << 30,
+            threads: 1,
+            temp_dir: None,
+            progress: false,
+        }
+    }
+}
+
+/// Reads a table's metadata and header, then its rows as raw lines.
+struct TableLines {
+    name: String,
+    input: Box<dyn BufRead + Send>,
+    metadata: Vec<String>,
+    header: String,
+    source_column: usize,
+    target_column: usize,
+    line_no: u64,
+    line: String,
+    previous: Vec<u8>,
+}
+
+impl TableLines {
+    fn open(path: &Path) -> Result<TableLines> {
+        let name = path.display().to_string();
+        let mut input = files::open_input(path)?;
+        let mut metadata = Vec::new();
+        let mut line = String::new();
+        let mut line_no = 0;
+        loop {
+            line_no += 1;
+            if !files::read_line(&mut *input, &mut line, &name, line_no)? {
+                return Err(Error::input(
+                    &name,
+                    line_no,
+                    "missing header line (no columns)",
+                ));
+            }
+            if line.starts_with('#') {
+                metadata.push(line.clone());
+            } else {
+                break;
+            }
+        }
+        let columns: Vec<&str> = line.split('\t').collect();
+        let find = |c: &str| {
+            columns.iter().position(|&x| x == c).ok_or_else(|| {
+                Error::input(&name, line_no, format!("header lacks the {c:?} column"))
+            })
+        };
+        let (source_column, target_column) = (find("source")?, find("target")?);
+        Ok(TableLines {
+            name: name.clone(),
+            input,
+            metadata,
+            header: line.clone(),
+            source_column,
+            target_column,
+            line_no,
+            line: String::new(),
+            previous: Vec::new(),
+        })
+    }
+
+    fn metadata_value(&self, key: &str) -> Option<&str> {
+        self.metadata.iter().find_map(|m| {
+            let (k, v) = m.strip_prefix('#')?.split_once('=')?;
+            (k.trim() == key).then(|| v.trim())
+        })
+    }
+
+    /// Advances to the next row, checking the table order; false at the end.
+    fn next_row(&mut self) -> Result<bool> {
+        loop {
+            self.line_no += 1;
+            if !files::read_line(&mut *self.input, &mut self.line, &self.name, self.line_no)? {
+                return Ok(false);
+            }
+            if self.line.is_empty() {
+                continue;
+            }
+            let (s, t) = self.fields()?;
+            let mut key = Vec::with_capacity(s.len() + t.len() + 1);
+            key.extend_from_slice(s.as_bytes());
+            key.push(0);
+            key.extend_from_slice(t.as_bytes());
+            if self.line_no > 1 && !self.previous.is_empty() && key <= self.previous {
+                return Err(Error::input(
+                    &self.name,
+                    self.line_no,
+                    "rows must be sorted by source, then target, without repeats",
+                ));
+            }
+            self.previous = key;
+            return Ok(true);
+        }
+    }
+
+    fn fields(&self) -> Result<(&str, &str)> {
+        let mut s = None;
+        let mut t = None;
+        for (i, f) in self.line.split('\t').enumerate() {
+            if i == self.source_column {
+                s = Some(f);
+            }
+            if i == self.target_column {
+                t = Some(f);
+            }
+        }
+        match (s, t) {
+            (Some(s), Some(t)) if !s.is_empty() && !t.is_empty() => Ok((s, t)),
+            _ => Err(Error::input(
+                &self.name,
+                self.line_no,
+                "missing or empty source or target field",
+            )),
+        }
+    }
+}
+
+fn fst_error(e: fst::Error) -> Error {
+    Error::Unsupported(format!("building the phrase index: {e}"))
+}
+
+/// Every distinct target of the table, as an fst map to its rank in byte order.
+fn target_index(
+    table: &Path,
+    budget: usize,
+    temp: &Option<PathBuf>,
+) -> Result<(Map<Vec<u8>>, u64)> {
+    let mut lines = TableLines::open(table)?;
+    let mut sorter = ExternalSorter::new(budget, temp.clone())?;
+    let mut rows = 0u64;
+    while lines.next_row()? {
+        rows += 1;
+        sorter.push(lines.fields()?.1.as_bytes(), &[])?;
+    }
+    let mut sorted = sorter.finish()?;
+    let mut builder = MapBuilder::memory();
+    let mut last: Option<Vec<u8>> = None;
+    let mut rank = 0u64;
+    while let Some((k, _)) = sorted.next_record()? {
+        if last.as_deref() != Some(k) {
+            builder.insert(k, rank).map_err(fst_error)?;
+            rank += 1;
+            last = Some(k.to_vec());
+        }
+    }
+    let map = builder.into_map();
+    Ok((map, rows))
+}
+
+/// The sources of one chunk of the table, with their targets' ranks.
+struct Chunk {
+    sources: Map<Vec<u8>>,
+    // offsets[k]..offsets[k+1]: the rows of local source k within the chunk.
+    offsets: Vec<u64>,
+    targets: Vec<u32>,
+    first_row: u64,
+}
+
+impl Chunk {
+    fn memory(&self) -> usize {
+        self.offsets.len() * 12 + self.targets.len() * 8
+    }
+}
+
+/// Walks `tokens[start..]` through `fst`, calling `found` with the value of every key that
+/// equals a prefix made of whole tokens; stops at the first byte no key continues with.
+fn walk(fst: &Fst<Vec<u8>>, text: &str, starts: &[u32], start: usize, found: &mut Vec<u32>) {
+    let bytes = text.as_bytes();
+    let mut node = fst.root();
+    let mut out = Output::zero();
+    let from = starts[start] as usize;
+    for k in start..starts.len() - 1 {
+        let end = starts[k + 1] as usize - 1;
+        let begin = if k == start {
+            from
+        } else {
+            starts[k] as usize - 1
+        }; // include the space
+        for &b in &bytes[begin..end] {
+            match node.find_input(b) {
+                Some(i) => {
+                    let t = node.transition(i);
+                    out = out.cat(t.out);
+                    node = fst.node(t.addr);
+                }
+                None => return,
+            }
+        }
+        if node.is_final() {
+            found.push(out.cat(node.final_output()).value() as u32);
+        }
+    }
+}
+
+struct Counters {
+    df_source: Vec<AtomicU32>,
+    df_target: Vec<AtomicU32>,
+    cooc: Vec<AtomicU32>,
+}
+
+fn zeros(n: usize) -> Vec<AtomicU32> {
+    (0..n).map(|_| AtomicU32::new(0)).collect()
+}
+
+fn count_sentence(
+    pair: &SentencePair,
+    targets: &Fst<Vec<u8>>,
+    chunk: &Chunk,
+    counters: &Counters,
+    s_found: &mut Vec<u32>,
+    t_found: &mut Vec<u32>,
+) {
+    t_found.clear();
+    for j in 0..pair.target_len() {
+        walk(targets, &pair.target, &pair.target_starts, j, t_found);
+    }
+    t_found.sort_unstable();
+    t_found.dedup();
+    for &t in t_found.iter() {
+        counters.df_target[t as usize].fetch_add(1, Ordering::Relaxed);
+    }
+    s_found.clear();
+    for i in 0..pair.source_len() {
+        walk(
+            chunk.sources.as_fst(),
+            &pair.source,
+            &pair.source_starts,
+            i,
+            s_found,
+        );
+    }
+    s_found.sort_unstable();
+    s_found.dedup();
+    for &s in s_found.iter() {
+        counters.df_source[s as usize].fetch_add(1, Ordering::Relaxed);
+        let lo = chunk.offsets[s as usize] as usize;
+        let hi = chunk.offsets[s as usize + 1] as usize;
+        let options = &chunk.targets[lo..hi];
+        if options.len() <= t_found.len() {
+            for (k, t) in options.iter().enumerate() {
+                if t_found.binary_search(t).is_ok() {
+                    counters.cooc[lo + k].fetch_add(1, Ordering::Relaxed);
+                }
+            }
+        } else {
+            for t in t_found.iter() {
+                if let Ok(k) = options.binary_search(t) {
+                    counters.cooc[lo + k].fetch_add(1, Ordering::Relaxed);
+                }
+            }
+        }
+    }
+}
+
+/// One pass over the corpus for one chunk.
+fn count_chunk(
+    corpus: &CorpusPaths,
+    corpus_options: CorpusOptions,
+    targets: &Fst<Vec<u8>>,
+    chunk: &Chunk,
+    options: &TallyOptions,
+    label: &str,
+) -> Result<(Counters, CorpusStats)> {
+    let counters = Counters {
+        df_source: zeros(chunk.offsets.len() - 1),
+        df_target: zeros(targets.len()),
+        cooc: zeros(chunk.targets.len()),
+    };
+    let mut reader = CorpusReader::open(corpus, corpus_options)?;
+    let progress = Progress::new(label, reader.total_bytes(), options.progress);
+    let counter = reader.progress_counter();
+    let threads = options.threads.max(1);
+    let (tx, rx) = mpsc::sync_channel::<Vec<SentencePair>>(threads * 2);
+    let rx = Mutex::new(rx);
+    let result = std::thread::scope(|scope| {
+        for _ in 0..threads {
+            let (rx, counters) = (&rx, &counters);
+            scope.spawn(move || {
+                let (mut s_found, mut t_found) = (Vec::new(), Vec::new());
+                while let Ok(batch) = rx.lock().unwrap().recv() {
+                    for pair in &batch {
+                        count_sentence(pair, targets, chunk, counters, &mut s_found, &mut t_found);
+                    }
+                }
+            });
+        }
+        let result = (|| -> Result<()> {
+            loop {
+                let mut batch = Vec::with_capacity(BATCH);
+                let mut pair = SentencePair::default();
+                while batch.len() < BATCH && reader.next_pair(&mut pair)? {
+                    batch.push(std::mem::take(&mut pair));
+                }
+                let done = batch.len() < BATCH;
+                if !batch.is_empty() {
+                    tx.send(batch).expect("workers outlive the reader");
+                }
+                progress.update(
+                    counter.load(Ordering::Relaxed),
+                    reader.stats().sentence_pairs,
+                );
+                if done {
+                    return Ok(());
+                }
+            }
+        })();
+        drop(tx);
+        result
+    });
+    progress.finish();
+    result?;
+    Ok((counters, reader.stats()))
+}
+
+struct TallyWriter {
+    path: PathBuf,
+    encoder: zstd::stream::write::Encoder<'static, BufWriter<std::fs::File>>,
+    next_row: u64,
+    buf: Vec<u8>,
+}
+
+impl TallyWriter {
+    fn create(path: &Path, info: &TallyInfo) -> Result<TallyWriter> {
+        let file = std::fs::File::create(path).map_err(|e| Error::io(path, "creating", e))?;
+        let mut encoder = zstd::stream::write::Encoder::new(BufWriter::new(file), 1)
+            .map_err(|e| Error::io(path, "creating", e))?;
+        let json = serde_json::to_vec(info).expect("tally info serializes");
+        let mut head = MAGIC.to_vec();
+        head.extend_from_slice(&VERSION.to_le_bytes());
+        head.extend_from_slice(&(json.len() as u32).to_le_bytes());
+        head.extend_from_slice(&json);
+        encoder
+            .write_all(&head)
+            .map_err(|e| Error::io(path, "writing", e))?;
+        Ok(TallyWriter {
+            path: path.to_path_buf(),
+            encoder,
+            next_row: 0,
+            buf: Vec::with_capacity(1 << 16),
+        })
+    }
+
+    fn push(&mut self, row: u64, counts: [u32; 3]) -> Result<()> {
+        if counts == [0; 3] {
+            return Ok(());
+        }
+        put_varint(&mut self.buf, row - self.next_row + 1);
+        for c in counts {
+            put_varint(&mut self.buf, u64::from(c));
+        }
+        self.next_row = row + 1;
+        if self.buf.len() >= 1 << 16 {
+            self.flush_buf()?;
+        }
+        Ok(())
+    }
+
+    fn flush_buf(&mut self) -> Result<()> {
+        self.encoder
+            .write_all(&self.buf)
+            .map_err(|e| Error::io(&self.path, "writing", e))?;
+        self.buf.clear();
+        Ok(())
+    }
+
+    fn finish(mut self) -> Result<()> {
+        self.buf.push(0);
+        self.flush_buf()?;
+        let werr = |e| Error::io(&self.path, "writing", e);
+        let mut file = self.encoder.finish().map_err(werr)?;
+        file.flush().map_err(werr)?;
+        Ok(())
+    }
+}
+
+/// Counts, for every row of `table`, the sentence pairs of the corpus shard at `corpus` that
+/// contain its source, its target, and both; writes the tally to `out` (under a temporary
+/// name, renamed into place).
+///
+/// # Examples
+/// ```
+/// use baler::extract::corpus::CorpusPaths;
+/// use baler::extract::sentences::{attach, tally, TallyOptions};
+/// let dir = tempfile::tempdir().unwrap();
+/// let write = |name: &str, text: &str| {
+///     let p = dir.path().join(name);
+///     std::fs::write(&p, text).unwrap();
+///     p
+/// };
+/// let table = write("t.tsv", "# sentence_pairs=2\n# max_sentence_length=100\nsource\ttarget\nel\tthe\nmuelle\tpier\n");
+/// let corpus = CorpusPaths {
+///     source: write("s", "el muelle\nel barco\n"),
+///     target: write("e", "the pier\nthe boat\n"),
+///     alignment: None,
+/// };
+/// let counts = dir.path().join("shard0.tally");
+/// tally(&table, &corpus, &TallyOptions::default(), &counts).unwrap();
+/// let mut out = Vec::new();
+/// attach(&table, &[counts], &mut out, std::path::Path::new("-")).unwrap();
+/// let text = String::from_utf8(out).unwrap();
+/// assert!(text.ends_with("source\ttarget\tcooc\tdf_source\tdf_target\nel\tthe\t2\t2\t2\nmuelle\tpier\t1\t1\t1\n"));
+/// ```
+pub fn tally(
+    table: &Path,
+    corpus: &CorpusPaths,
+    options: &TallyOptions,
+    out: &Path,
+) -> Result<TallyInfo> {
+    let lines = TableLines::open(table)?;
+    let max_sentence_length = match options.max_sentence_length {
+        Some(n) => n,
+        None => lines
+            .metadata_value("max_sentence_length")
+            .and_then(|v| v.parse().ok())
+            .ok_or_else(|| {
+                Error::invalid(
+                    "--max-sentence-length",
+                    format!(
+                        "{} has no `# max_sentence_length=N` metadata; give the value used for extraction",
+                        table.display()
+                    ),
+                )
+            })?,
+    };
+    let corpus_options = CorpusOptions {
+        max_sentence_length,
+        links_target_first: false,
+    };
+    corpus_options.validate()?;
+    let corpus = CorpusPaths {
+        alignment: None,
+        ..corpus.clone()
+    };
+    let budget = (options.memory as usize).max(1 << 20);
+    let (targets, rows) = target_index(table, budget / 2, &options.temp_dir)?;
+    if targets.len() > u32::MAX as usize {
+        return Err(Error::Unsupported("more than 2^32 distinct targets".into()));
+    }
+    let targets = targets.into_fst();
+    let chunk_budget = budget.saturating_sub(targets.size() + targets.len() * 4) / 2;
+    let dir = match out.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    let temp = tempfile::Builder::new()
+        .prefix(".baler-partial-")
+        .tempfile_in(&dir)
+        .map_err(|e| Error::io(out, "creating", e))?
+        .into_temp_path();
+    let mut writer: Option<TallyWriter> = None;
+    let mut lines = lines;
+    let mut info = TallyInfo {
+        table_pairs: rows,
+        ..Default::default()
+    };
+    let mut row = 0u64;
+    let mut pending = lines.next_row()?;
+    while pending {
+        // Build one chunk of whole sources.
+        let mut builder = MapBuilder::memory();
+        let mut chunk = Chunk {
+            sources: Map::default(),
+            offsets: vec![0],
+            targets: Vec::new(),
+            first_row: row,
+        };
+        let mut source: Vec<u8> = Vec::new();
+        while pending {
+            let (s, t) = lines.fields()?;
+            if s.as_bytes() != source.as_slice() || chunk.targets.is_empty() {
+                if !chunk.targets.is_empty() {
+                    chunk.offsets.push(chunk.targets.len() as u64);
+                    if chunk.memory() + builder.bytes_written() as usize >= chunk_budget.max(1) {
+                        break;
+                    }
+                }
+                builder
+                    .insert(s, chunk.offsets.len() as u64 - 1)
+                    .map_err(fst_error)?;
+                source.clear();
+                source.extend_from_slice(s.as_bytes());
+            }
+            let rank = targets.get(t).ok_or_else(|| {
+                Error::input(
+                    &lines.name,
+                    lines.line_no,
+                    "target missing from the index (table changed while reading?)",
+                )
+            })?;
+            chunk.targets.push(rank.value() as u32);
+            row += 1;
+            pending = lines.next_row()?;
+        }
+        if !pending {
+            chunk.offsets.push(chunk.targets.len() as u64);
+        }
+        chunk.sources = builder.into_map();
+        info.passes += 1;
+        let label = format!("sentence counts (pass {})", info.passes);
+        let (counters, stats) =
+            count_chunk(&corpus, corpus_options, &targets, &chunk, options, &label)?;
+        info.corpus = stats;
+        if writer.is_none() {
+            writer = Some(TallyWriter::create(&temp, &info)?);
+        }
+        let writer = writer.as_mut().expect("created above");
+        for k in 0..chunk.offsets.len() - 1 {
+            let df_source = counters.df_source[k].load(Ordering::Relaxed);
+            for p in chunk.offsets[k] as usize..chunk.offsets[k + 1] as usize {
+                let df_target =
+                    counters.df_target[chunk.targets[p] as usize].load(Ordering::Relaxed);
+                let cooc = counters.cooc[p].load(Ordering::Relaxed);
+                writer.push(chunk.first_row + p as u64, [cooc, df_source, df_target])?;
+            }
+        }
+    }
+    if info.passes == 0 {
+        // An empty table: still read the corpus for its sentence count.
+        let empty = Chunk {
+            sources: Map::default(),
+            offsets: vec![0],
+            targets: Vec::new(),
+            first_row: 0,
+        };
+        let (_, stats) = count_chunk(
+            &corpus,
+            corpus_options,
+            &targets,
+            &empty,
+            options,
+            "sentence counts",
+        )?;
+        info.corpus = stats;
+        info.passes = 1;
+    }
+    let writer = match writer {
+        Some(w) => w,
+        None => TallyWriter::create(&temp, &info)?,
+    };
+    writer.finish()?;
+    temp.persist(out)
+        .map_err(|e| Error::io(out, "renaming into place", e.error))?;
+    Ok(info)
+}
+
+struct TallyReader {
+    path: PathBuf,
+    input:
+        std::io::BufReader<zstd::stream::read::Decoder<'static, std::io::BufReader<std::fs::File>>>,
+    info: TallyInfo,
+    row: u64,
+    counts: [u64; 3],
+    next_row: u64,
+}
+
+impl TallyReader {
+    fn open(path: &Path) -> Result<TallyReader> {
+        let file = std::fs::File::open(path).map_err(|e| Error::io(path, "opening", e))?;
+        let decoder =
+            zstd::stream::read::Decoder::new(file).map_err(|e| Error::io(path, "opening", e))?;
+        let mut input = std::io::BufReader::with_capacity(1 << 16, decoder);
+        let bad = |what: &str| {
+            Error::Unsupported(format!(
+                "{}: not a baler sentence-count tally: {what}",
+                path.display()
+            ))
+        };
+        let mut head = [0u8; 16];
+        if input.read_exact(&mut head).is_err() || &head[..8] != MAGIC {
+            return Err(bad("wrong magic bytes"));
+        }
+        if u32::from_le_bytes(head[8..12].try_into().unwrap()) != VERSION {
+            return Err(bad("unsupported version"));
+        }
+        let mut json = vec![0u8; u32::from_le_bytes(head[12..].try_into().unwrap()) as usize];
+        input
+            .read_exact(&mut json)
+            .map_err(|_| bad("truncated header"))?;
+        let info = serde_json::from_slice(&json).map_err(|e| bad(&e.to_string()))?;
+        let mut r = TallyReader {
+            path: path.to_path_buf(),
+            input,
+            info,
+            row: 0,
+            counts: [0; 3],
+            next_row: 0,
+        };
+        r.advance()?;
+        Ok(r)
+    }
+
+    fn damaged(&self, what: &str) -> Error {
+        Error::Unsupported(format!("{}: damaged tally: {what}", self.path.display()))
+    }
+
+    fn number(&mut self) -> Result<u64> {
+        match read_varint(&mut self.input) {
+            Ok(Some(v)) => Ok(v),
+            Ok(None) => Err(self.damaged("truncated")),
+            Err(e) => Err(self.damaged(&e.to_string())),
+        }
+    }
+
+    /// Reads the next record; at the end sets `row` to `u64::MAX`.
+    fn advance(&mut self) -> Result<()> {
+        let gap = self.number()?;
+        if gap == 0 {
+            self.row = u64::MAX;
+            return Ok(());
+        }
+        self.row = self.next_row + gap - 1;
+        self.next_row = self.row + 1;
+        for k in 0..3 {
+            self.counts[k] = self.number()?;
+        }
+        Ok(())
+    }
+}
+
+/// What [`attach`] wrote.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct AttachSummary {
+    /// Rows written.
+    pub pairs: u64,
+    /// Sentence pairs counted over all tallies.
+    pub sentence_pairs: u64,
+}
+
+/// Sums the `tallies` of all shards and writes `table` to `out` with the columns `cooc`,
+/// `df_source` and `df_target` appended to every row and `# sentence_pairs` set to the number
+/// of sentence pairs counted (it must agree with the table's own value, when present).
+pub fn attach<W: Write>(
+    table: &Path,
+    tallies: &[PathBuf],
+    mut out: W,
+    output_name: &Path,
+) -> Result<AttachSummary> {
+    use crate::table::CountColumn;
+    let mut lines = TableLines::open(table)?;
+    let header_line = lines.line_no;
+    for c in ["cooc", "df_source", "df_target"] {
+        if lines.header.split('\t').any(|x| x == c) {
+            return Err(Error::input(
+                &lines.name,
+                header_line,
+                format!("the table already has a {c:?} column"),
+            ));
+        }
+    }
+    let counts_last = lines
+        .header
+        .split('\t')
+        .skip_while(|x| CountColumn::from_name(x).is_none())
+        .all(|x| CountColumn::from_name(x).is_some());
+    if !counts_last {
+        return Err(Error::input(
+            &lines.name,
+            header_line,
+            "count columns must come after the score columns (canonical order)",
+        ));
+    }
+    if tallies.is_empty() {
+        return Err(Error::invalid("tallies", "no sentence-count tallies given"));
+    }
+    let mut readers = tallies
+        .iter()
+        .map(|p| TallyReader::open(p))
+        .collect::<Result<Vec<_>>>()?;
+    let mut sentence_pairs = 0u64;
+    let mut table_pairs = None;
+    for r in &readers {
+        sentence_pairs += r.info.corpus.sentence_pairs;
+        match table_pairs {
+            None => table_pairs = Some(r.info.table_pairs),
+            Some(n) if n != r.info.table_pairs => {
+                return Err(r.damaged(&format!(
+                    "made for a table of {} rows, the other tallies for {n}",
+                    r.info.table_pairs
+                )))
+            }
+            Some(_) => {}
+        }
+    }
+    if let Some(v) = lines.metadata_value("sentence_pairs") {
+        if v.parse::<u64>().ok() != Some(sentence_pairs) {
+            return Err(Error::input(
+                &lines.name,
+                0,
+                format!("sentence_pairs={v}, but the tallies counted {sentence_pairs} sentence pairs: a shard is missing or was read with other settings"),
+            ));
+        }
+    }
+    let werr = |e| Error::io(output_name, "writing", e);
+    let mut head = String::new();
+    let mut wrote_count = false;
+    for m in &lines.metadata {
+        let is_count = m
+            .strip_prefix('#')
+            .and_then(|r| r.split_once('='))
+            .is_some_and(|(k, _)| k.trim() == "sentence_pairs");
+        if is_count {
+            head.push_str(&format!("# sentence_pairs={sentence_pairs}\n"));
+            wrote_count = true;
+        } else {
+            head.push_str(m);
+            head.push('\n');
+        }
+    }
+    if !wrote_count {
+        head.insert_str(0, &format!("# sentence_pairs={sentence_pairs}\n"));
+    }
+    head.push_str(&lines.header);
+    head.push_str("\tcooc\tdf_source\tdf_target\n");
+    out.write_all(head.as_bytes()).map_err(werr)?;
+    let mut row = 0u64;
+    let mut text = String::with_capacity(256);
+    while lines.next_row()? {
+        let mut counts = [0u64; 3];
+        for r in readers.iter_mut() {
+            if r.row == row {
+                for (sum, c) in counts.iter_mut().zip(r.counts) {
+                    *sum += c;
+                }
+                r.advance()?;
+            }
+        }
+        text.clear();
+        text.push_str(&lines.line);
+        use std::fmt::Write as _;
+        let _ = writeln!(text, "\t{}\t{}\t{}", counts[0], counts[1], counts[2]);
+        out.write_all(text.as_bytes()).map_err(werr)?;
+        row += 1;
+    }
+    if table_pairs != Some(row) || readers.iter().any(|r| r.row != u64::MAX) {
+        return Err(Error::input(
+            &lines.name,
+            0,
+            format!(
+                "has {row} rows but the tallies were made for a table of {} rows",
+                table_pairs.unwrap_or(0)
+            ),
+        ));
+    }
+    out.flush().map_err(werr)?;
+    Ok(AttachSummary {
+        pairs: row,
+        sentence_pairs,
+    })
+}

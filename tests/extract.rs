@@ -1,0 +1,703 @@
+//! `baler extract`: phrase-pair extraction, scores and sentence-level counts.
+
+use std::collections::{BTreeMap, BTreeSet, HashMap};
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use baler::extract::corpus::CorpusPaths;
+use baler::extract::phrases::{PhraseFinder, PhraseLimits, SpanPair};
+use baler::extract::synthetic::SyntheticCorpus;
+use baler::table::{CountColumn, TsvReader};
+use proptest::prelude::*;
+
+fn baler() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_baler"))
+}
+
+fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
+    let p = dir.join(name);
+    std::fs::write(&p, text).unwrap();
+    p
+}
+
+fn fast_pairs(ns: usize, nt: usize, links: &[(u16, u16)], limits: PhraseLimits) -> Vec<SpanPair> {
+    let mut found = Vec::new();
+    PhraseFinder::default().find(ns, nt, links, limits, |p| found.push(p));
+    found
+}
+
+/// Every source span × every target span, consistency tested directly from the definition:
+/// at least one link inside the box, and no link with exactly one end inside it; without
+/// unaligned edges, every edge word of both spans must be aligned.
+fn brute_force(
+    ns: usize,
+    nt: usize,
+    links: &[(u16, u16)],
+    limits: PhraseLimits,
+) -> BTreeSet<SpanPair> {
+    let links: Vec<(usize, usize)> = links
+        .iter()
+        .map(|&(i, j)| (usize::from(i), usize::from(j)))
+        .collect();
+    let s_aligned = |i: usize| links.iter().any(|l| l.0 == i);
+    let t_aligned = |j: usize| links.iter().any(|l| l.1 == j);
+    let mut out = BTreeSet::new();
+    for s1 in 0..ns {
+        for s2 in s1..ns {
+            for t1 in 0..nt {
+                for t2 in t1..nt {
+                    if s2 - s1 + 1 > limits.max_length || t2 - t1 + 1 > limits.max_length {
+                        continue;
+                    }
+                    let in_s = |i: usize| (s1..=s2).contains(&i);
+                    let in_t = |j: usize| (t1..=t2).contains(&j);
+                    let inside = links.iter().any(|&(i, j)| in_s(i) && in_t(j));
+                    let leaves = links.iter().any(|&(i, j)| in_s(i) != in_t(j));
+                    let tight = s_aligned(s1) && s_aligned(s2) && t_aligned(t1) && t_aligned(t2);
+                    if inside && !leaves && (limits.unaligned_edges || tight) {
+                        out.insert(SpanPair {
+                            source_start: s1,
+                            source_end: s2 + 1,
+                            target_start: t1,
+                            target_end: t2 + 1,
+                        });
+                    }
+                }
+            }
+        }
+    }
+    out
+}
+
+/// Sentence pair and alignment as printed in Koehn, *Statistical Machine Translation*
+/// (Cambridge University Press, 2010), section 5.2 on phrase extraction (from memory). The
+/// 24 consistent pairs below were derived by hand from the definition of consistency; as far
+/// as I recall (from memory) they are the list the book gives for this example.
+#[test]
+fn textbook_example_yields_exactly_its_phrase_pairs() {
+    let source: Vec<&str> = "michael geht davon aus , dass er im haus bleibt"
+        .split(' ')
+        .collect();
+    let target: Vec<&str> = "michael assumes that he will stay in the house"
+        .split(' ')
+        .collect();
+    let links: Vec<(u16, u16)> = [
+        (0, 0),
+        (1, 1),
+        (2, 1),
+        (3, 1),
+        (5, 2),
+        (6, 3),
+        (7, 6),
+        (7, 7),
+        (8, 8),
+        (9, 4),
+        (9, 5),
+    ]
+    .to_vec();
+    let expected: BTreeSet<(&str, &str)> = [
+        ("michael", "michael"),
+        ("michael geht davon aus", "michael assumes"),
+        ("michael geht davon aus ,", "michael assumes"),
+        ("michael geht davon aus , dass", "michael assumes that"),
+        (
+            "michael geht davon aus , dass er",
+            "michael assumes that he",
+        ),
+        (
+            "michael geht davon aus , dass er im haus bleibt",
+            "michael assumes that he will stay in the house",
+        ),
+        ("geht davon aus", "assumes"),
+        ("geht davon aus ,", "assumes"),
+        ("geht davon aus , dass", "assumes that"),
+        ("geht davon aus , dass er", "assumes that he"),
+        (
+            "geht davon aus , dass er im haus bleibt",
+            "assumes that he will stay in the house",
+        ),
+        ("dass", "that"),
+        (", dass", "that"),
+        ("dass er", "that he"),
+        (", dass er", "that he"),
+        ("dass er im haus bleibt", "that he will stay in the house"),
+        (", dass er im haus bleibt", "that he will stay in the house"),
+        ("er", "he"),
+        ("er im haus bleibt", "he will stay in the house"),
+        ("im", "in the"),
+        ("im haus", "in the house"),
+        ("im haus bleibt", "will stay in the house"),
+        ("haus", "house"),
+        ("bleibt", "will stay"),
+    ]
+    .into_iter()
+    .collect();
+    let limits = PhraseLimits {
+        max_length: 10,
+        unaligned_edges: true,
+    };
+    let found = fast_pairs(source.len(), target.len(), &links, limits);
+    let as_text: Vec<(String, String)> = found
+        .iter()
+        .map(|p| {
+            (
+                source[p.source_start..p.source_end].join(" "),
+                target[p.target_start..p.target_end].join(" "),
+            )
+        })
+        .collect();
+    assert_eq!(as_text.len(), expected.len(), "no pair twice, none missing");
+    let got: BTreeSet<(&str, &str)> = as_text
+        .iter()
+        .map(|(s, t)| (s.as_str(), t.as_str()))
+        .collect();
+    assert_eq!(got, expected);
+    // With the default limit of 7 tokens the two 9- and 10-token pairs drop out.
+    let short = fast_pairs(source.len(), target.len(), &links, PhraseLimits::default());
+    assert_eq!(short.len(), 22);
+    // Without unaligned edges the comma never starts or ends a source phrase.
+    let tight = fast_pairs(
+        source.len(),
+        target.len(),
+        &links,
+        PhraseLimits {
+            max_length: 10,
+            unaligned_edges: false,
+        },
+    );
+    assert_eq!(tight.len(), 24 - 5); // the five pairs with a comma at an edge
+}
+
+fn alignment_strategy() -> impl Strategy<Value = (usize, usize, Vec<(u16, u16)>, PhraseLimits)> {
+    (1usize..9, 1usize..9, 1usize..6, any::<bool>()).prop_flat_map(|(ns, nt, max, edges)| {
+        let link = (0..ns as u16, 0..nt as u16);
+        (
+            Just(ns),
+            Just(nt),
+            prop::collection::vec(link, 0..(ns * nt).min(14)),
+            Just(PhraseLimits {
+                max_length: max,
+                unaligned_edges: edges,
+            }),
+        )
+    })
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(5000))]
+
+    /// The fast extractor agrees with the brute-force checker on random small alignments.
+    #[test]
+    fn extractor_matches_brute_force((ns, nt, links, limits) in alignment_strategy()) {
+        let fast = fast_pairs(ns, nt, &links, limits);
+        let set: BTreeSet<SpanPair> = fast.iter().copied().collect();
+        prop_assert_eq!(set.len(), fast.len(), "a pair was emitted twice");
+        prop_assert_eq!(set, brute_force(ns, nt, &links, limits));
+    }
+}
+
+struct Table {
+    text: String,
+    rows: Vec<baler::table::PhrasePair>,
+    header: baler::table::Header,
+}
+
+fn read_table(path: &Path) -> Table {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut reader = TsvReader::new(text.as_bytes(), path.display().to_string()).unwrap();
+    let header = reader.header().clone();
+    let rows = reader.by_ref().map(|r| r.unwrap()).collect();
+    Table { text, rows, header }
+}
+
+fn count(table: &Table, row: &baler::table::PhrasePair, c: CountColumn) -> u64 {
+    row.counts[table.header.schema.count_index(c).unwrap()]
+}
+
+fn score(table: &Table, row: &baler::table::PhrasePair, name: &str) -> f64 {
+    row.scores[table.header.schema.score_index(name).unwrap()]
+}
+
+/// Lexical weights of Koehn, Och and Marcu (2003), checked by hand on a three-sentence corpus.
+/// The phrase pair "geht nicht davon aus" / "does not assume" follows the lexical-weighting
+/// illustration of Koehn's textbook (from memory); the word probabilities are worked out by
+/// hand below, with this crate's NULL convention (unaligned occurrences count in the
+/// denominator).
+#[test]
+fn lexical_weights_match_hand_computation() {
+    let dir = tempfile::tempdir().unwrap();
+    let src = write(
+        dir.path(),
+        "s",
+        "geht nicht davon aus\ner geht nicht\nnicht aus ja\n",
+    );
+    let tgt = write(
+        dir.path(),
+        "t",
+        "does not assume\nhe does not go\nreally not out\n",
+    );
+    let ali = write(dir.path(), "a", "0-2 1-1 3-2\n0-0 1-3 2-2\n0-1 1-2\n");
+    let out = dir.path().join("table.tsv");
+    let status = baler()
+        .args(["extract", "-q", "--source"])
+        .arg(&src)
+        .arg("--target")
+        .arg(&tgt)
+        .arg("--alignment")
+        .arg(&ali)
+        .arg("-o")
+        .arg(&out)
+        .status()
+        .unwrap();
+    assert!(status.success());
+    let table = read_table(&out);
+    let row = table
+        .rows
+        .iter()
+        .find(|r| r.source == "geht nicht davon aus" && r.target == "does not assume")
+        .expect("pair extracted");
+    assert_eq!(row.alignment, [(0, 2), (1, 1), (3, 2)]);
+    // Word counts: geht-assume 1, geht-go 1, aus-assume 1, aus-out 1, nicht-not 3, er-he 1,
+    // NULL-does 2, NULL-really 1, davon-NULL 1, ja-NULL 1.
+    // lex(t|s) = w(does|NULL) · w(not|nicht) · ½(w(assume|geht) + w(assume|aus))
+    //          = 2/3 · 3/3 · ½(1/2 + 1/2) = 1/3
+    let lex_t = score(&table, row, "lex_t_given_s");
+    assert!((lex_t - 1.0 / 3.0).abs() < 1e-12, "{lex_t}");
+    // lex(s|t) = w(geht|assume) · w(nicht|not) · w(davon|NULL) · w(aus|assume)
+    //          = 1/2 · 3/3 · 1/2 · 1/2 = 1/8
+    let lex_s = score(&table, row, "lex_s_given_t");
+    assert!((lex_s - 0.125).abs() < 1e-12, "{lex_s}");
+    // A single word: lex(t|s) = w(go|geht) = 1/2, lex(s|t) = w(geht|go) = 1/1.
+    let row = table
+        .rows
+        .iter()
+        .find(|r| r.source == "geht" && r.target == "go")
+        .unwrap();
+    assert_eq!(score(&table, row, "lex_t_given_s"), 0.5);
+    assert_eq!(score(&table, row, "lex_s_given_t"), 1.0);
+}
+
+fn run_extract(paths: &CorpusPaths, out: &Path, extra: &[&str]) -> std::process::Output {
+    let o = baler()
+        .args(["extract", "--source"])
+        .arg(&paths.source)
+        .arg("--target")
+        .arg(&paths.target)
+        .arg("--alignment")
+        .arg(paths.alignment.as_ref().unwrap())
+        .arg("-o")
+        .arg(out)
+        .args(extra)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    o
+}
+
+fn small_corpus(dir: &Path, n: u64) -> CorpusPaths {
+    SyntheticCorpus {
+        sentence_pairs: n,
+        mean_length: 12,
+        vocabulary: 300,
+        variant: 7,
+    }
+    .write(dir, "harbour", "")
+    .unwrap()
+}
+
+/// Relative frequencies: p(t|s) sums to 1 over each source's options, p(s|t) over each
+/// target's, and every value equals count / count_source (count_target).
+#[test]
+fn probabilities_are_relative_frequencies() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), 300);
+    let out = dir.path().join("t.tsv");
+    run_extract(&paths, &out, &["-q"]);
+    let table = read_table(&out);
+    assert!(table.rows.len() > 1000);
+    let mut by_source: HashMap<&str, (f64, u64)> = HashMap::new();
+    let mut by_target: HashMap<&str, (f64, u64)> = HashMap::new();
+    for r in &table.rows {
+        let c = count(&table, r, CountColumn::Count);
+        let cs = count(&table, r, CountColumn::CountSource);
+        let ct = count(&table, r, CountColumn::CountTarget);
+        assert_eq!(score(&table, r, "p_t_given_s"), c as f64 / cs as f64);
+        assert_eq!(score(&table, r, "p_s_given_t"), c as f64 / ct as f64);
+        let e = by_source.entry(&r.source).or_default();
+        e.0 += score(&table, r, "p_t_given_s");
+        e.1 += c;
+        assert!(count(&table, r, CountColumn::Cooc) >= 1);
+        let e = by_target.entry(&r.target).or_default();
+        e.0 += score(&table, r, "p_s_given_t");
+        e.1 += c;
+    }
+    for r in &table.rows {
+        assert_eq!(
+            by_source[r.source.as_str()].1,
+            count(&table, r, CountColumn::CountSource)
+        );
+        assert_eq!(
+            by_target[r.target.as_str()].1,
+            count(&table, r, CountColumn::CountTarget)
+        );
+    }
+    for (s, (sum, _)) in by_source {
+        assert!((sum - 1.0).abs() < 1e-9, "{s}: {sum}");
+    }
+    for (t, (sum, _)) in by_target {
+        assert!((sum - 1.0).abs() < 1e-9, "{t}: {sum}");
+    }
+    // Sorted by source then target, byte order.
+    for w in table.rows.windows(2) {
+        assert!(
+            (w[0].source.as_bytes(), w[0].target.as_bytes())
+                < (w[1].source.as_bytes(), w[1].target.as_bytes())
+        );
+    }
+    assert_eq!(table.header.metadata.sentence_pairs(), Some(300));
+}
+
+/// Source tokens, target tokens, links.
+type AlignedPair<'a> = (Vec<&'a str>, Vec<&'a str>, Vec<(u16, u16)>);
+
+fn contains(sentence: &[&str], phrase: &[&str]) -> bool {
+    sentence.windows(phrase.len()).any(|w| w == phrase)
+}
+
+/// cooc, df_source and df_target against a direct count over the corpus (every row, every
+/// sentence pair, contiguous token sequences), and count against a direct count of the
+/// extractor's pairs per sentence pair.
+#[test]
+fn sentence_level_counts_are_exact() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), 120);
+    let out = dir.path().join("t.tsv");
+    run_extract(&paths, &out, &["-q", "--max-length", "4"]);
+    let table = read_table(&out);
+    let read = |p: &Path| std::fs::read_to_string(p).unwrap();
+    let src = read(&paths.source);
+    let tgt = read(&paths.target);
+    let ali = read(paths.alignment.as_ref().unwrap());
+    let corpus: Vec<AlignedPair> = src
+        .lines()
+        .zip(tgt.lines())
+        .zip(ali.lines())
+        .map(|((s, t), a)| {
+            let mut links = Vec::new();
+            baler::extract::corpus::parse_links(
+                a,
+                s.split(' ').count(),
+                t.split(' ').count(),
+                false,
+                &mut links,
+            )
+            .unwrap();
+            (s.split(' ').collect(), t.split(' ').collect(), links)
+        })
+        .collect();
+    let mut counts: BTreeMap<(String, String), u64> = BTreeMap::new();
+    let limits = PhraseLimits {
+        max_length: 4,
+        unaligned_edges: true,
+    };
+    for (s, t, links) in &corpus {
+        for p in brute_force(s.len(), t.len(), links, limits) {
+            *counts
+                .entry((
+                    s[p.source_start..p.source_end].join(" "),
+                    t[p.target_start..p.target_end].join(" "),
+                ))
+                .or_default() += 1;
+        }
+    }
+    assert_eq!(table.rows.len(), counts.len());
+    for r in &table.rows {
+        assert_eq!(
+            count(&table, r, CountColumn::Count),
+            counts[&(r.source.clone(), r.target.clone())]
+        );
+        let sp: Vec<&str> = r.source.split(' ').collect();
+        let tp: Vec<&str> = r.target.split(' ').collect();
+        let (mut cooc, mut dfs, mut dft) = (0, 0, 0);
+        for (s, t, _) in &corpus {
+            let (a, b) = (contains(s, &sp), contains(t, &tp));
+            dfs += u64::from(a);
+            dft += u64::from(b);
+            cooc += u64::from(a && b);
+        }
+        assert_eq!(
+            count(&table, r, CountColumn::Cooc),
+            cooc,
+            "{} / {}",
+            r.source,
+            r.target
+        );
+        assert_eq!(count(&table, r, CountColumn::DfSource), dfs, "{}", r.source);
+        assert_eq!(count(&table, r, CountColumn::DfTarget), dft, "{}", r.target);
+    }
+}
+
+/// The output does not depend on the number of threads, on memory budgets small enough to
+/// force spills and chunked counting, or on running the map and reduce steps by hand over
+/// shards.
+#[test]
+fn output_is_identical_across_threads_budgets_and_shards() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), 2000);
+    let reference = dir.path().join("one.tsv");
+    run_extract(&paths, &reference, &["-q", "--threads", "1"]);
+    let expected = std::fs::read(&reference).unwrap();
+    for (name, extra) in [
+        ("two.tsv", vec!["--threads", "2"]),
+        ("three.tsv", vec!["--threads", "3", "--memory", "1M"]),
+    ] {
+        let out = dir.path().join(name);
+        run_extract(&paths, &out, &[&["-q"][..], &extra].concat());
+        assert!(std::fs::read(&out).unwrap() == expected, "{name} differs");
+    }
+    // Map/reduce by hand: split the corpus into three shards.
+    let read = |p: &Path| std::fs::read_to_string(p).unwrap();
+    let files = [
+        read(&paths.source),
+        read(&paths.target),
+        read(paths.alignment.as_ref().unwrap()),
+    ];
+    let mut runs = Vec::new();
+    let mut shards = Vec::new();
+    for k in 0..3 {
+        let part = |text: &str| -> String {
+            text.lines()
+                .enumerate()
+                .filter(|(i, _)| i * 3 / 2000 == k)
+                .map(|(_, l)| format!("{l}\n"))
+                .collect()
+        };
+        let s = write(dir.path(), &format!("s{k}"), &part(&files[0]));
+        let t = write(dir.path(), &format!("t{k}"), &part(&files[1]));
+        let a = write(dir.path(), &format!("a{k}"), &part(&files[2]));
+        let run = dir.path().join(format!("shard{k}.run"));
+        let o = baler()
+            .args(["extract", "shard", "-q", "--source"])
+            .arg(&s)
+            .arg("--target")
+            .arg(&t)
+            .arg("--alignment")
+            .arg(&a)
+            .arg("-o")
+            .arg(&run)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        runs.push(run);
+        shards.push((s, t));
+    }
+    let merged = dir.path().join("merged.tsv.zst");
+    let o = baler()
+        .args(["extract", "merge", "-q"])
+        .args(&runs)
+        .arg("-o")
+        .arg(&merged)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let mut tallies = Vec::new();
+    for (k, (s, t)) in shards.iter().enumerate() {
+        let tally = dir.path().join(format!("shard{k}.tally"));
+        let o = baler()
+            .args(["extract", "tally", "-q", "--table"])
+            .arg(&merged)
+            .arg("--source")
+            .arg(s)
+            .arg("--target")
+            .arg(t)
+            .arg("-o")
+            .arg(&tally)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        tallies.push(tally);
+    }
+    let out = dir.path().join("sharded.tsv");
+    let o = baler()
+        .args(["extract", "attach", "--table"])
+        .arg(&merged)
+        .args(&tallies)
+        .arg("-o")
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(
+        std::fs::read(&out).unwrap() == expected,
+        "sharded run differs"
+    );
+    // A missing shard's tally is caught by the sentence count.
+    let o = baler()
+        .args(["extract", "attach", "--table"])
+        .arg(&merged)
+        .args(&tallies[..2])
+        .arg("-o")
+        .arg(dir.path().join("incomplete.tsv"))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("sentence_pairs="));
+    assert!(!dir.path().join("incomplete.tsv").exists());
+}
+
+fn expect_error(dir: &Path, src: &str, tgt: &str, ali: &str, extra: &[&str], needles: &[&str]) {
+    let s = write(dir, "err.src", src);
+    let t = write(dir, "err.tgt", tgt);
+    let a = write(dir, "err.align", ali);
+    let out = dir.join("err.tsv");
+    let o = baler()
+        .args(["extract", "-q", "--source"])
+        .arg(&s)
+        .arg("--target")
+        .arg(&t)
+        .arg("--alignment")
+        .arg(&a)
+        .arg("-o")
+        .arg(&out)
+        .args(extra)
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{stderr}");
+    for n in needles {
+        assert!(stderr.contains(n), "{stderr:?} lacks {n:?}");
+    }
+    assert!(!out.exists(), "nothing may be written on error");
+}
+
+#[test]
+fn bad_input_names_file_line_and_reason() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    expect_error(
+        d,
+        "a b\nc d\n",
+        "x y\n",
+        "0-0\n1-1\n",
+        &[],
+        &["err.src:2", "line counts differ", "err.tgt has 1 lines"],
+    );
+    expect_error(
+        d,
+        "a b\nc d\n",
+        "x y\nz w\n",
+        "0-0\n1-2\n",
+        &[],
+        &["err.align:2", "target index 2", "2-token target"],
+    );
+    expect_error(
+        d,
+        "a b\n",
+        "x y\n",
+        "0-0 1=1\n",
+        &[],
+        &["err.align:1", "malformed link \"1=1\""],
+    );
+    // Valid as source-target, but target index 2 is out of range when read target-first.
+    expect_error(
+        d,
+        "a b c\n",
+        "x y\n",
+        "0-0 2-1\n",
+        &["--links-target-first"],
+        &["err.align:1", "target index 2", "past the end"],
+    );
+    expect_error(d, "a\0b\n", "x\n", "0-0\n", &[], &["err.src:1", "NUL"]);
+}
+
+#[test]
+fn skipped_sentence_pairs_are_counted_and_reversed_links_read() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let s = write(d, "s", "el muelle\n\na b c d\nla grúa\n");
+    let t = write(d, "t", "the pier\nthe quay\nw x y z\nthe crane\n");
+    let a = write(d, "a", "0-0 1-1\n\n0-0\n1-1 0-0\n");
+    let out = d.join("t.tsv");
+    let o = baler()
+        .args(["extract", "--max-sentence-length", "3", "--source"])
+        .arg(&s)
+        .arg("--target")
+        .arg(&t)
+        .arg("--alignment")
+        .arg(&a)
+        .arg("-o")
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(o.status.success());
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        stderr.contains(
+            "4 lines read, 2 sentence pairs kept, 2 skipped (1 empty, 1 over the length limit)"
+        ),
+        "{stderr}"
+    );
+    let table = read_table(&out);
+    assert_eq!(table.header.metadata.sentence_pairs(), Some(2));
+    // Links written target-first: "1-0" means target 1, source 0.
+    let a2 = write(d, "a2", "1-1 0-0\n\n0-0\n0-1 1-0\n");
+    let s2 = write(d, "s2", "el muelle\n\na b c d\ngrúa la\n");
+    let out2 = d.join("t2.tsv");
+    let o = baler()
+        .args([
+            "extract",
+            "-q",
+            "--links-target-first",
+            "--max-sentence-length",
+            "3",
+            "--source",
+        ])
+        .arg(&s2)
+        .arg("--target")
+        .arg(&t)
+        .arg("--alignment")
+        .arg(&a2)
+        .arg("-o")
+        .arg(&out2)
+        .output()
+        .unwrap();
+    assert!(o.status.success());
+    let table2 = read_table(&out2);
+    assert!(table2.rows.iter().any(|r| r.source == "grúa la"
+        && r.target == "the crane"
+        && r.alignment == [(0, 1), (1, 0)]));
+    assert!(table.text.contains("la grúa\tthe crane\t0-0 1-1\t"));
+}
+
+/// Good-Turing lowers the probability of rare pairs and keeps `count` exact; Kneser-Ney
+/// stays a proper distribution once the redistributed mass is counted.
+#[test]
+fn discounting_is_applied_behind_a_flag() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), 300);
+    let plain = dir.path().join("plain.tsv");
+    let gt = dir.path().join("gt.tsv");
+    let kn = dir.path().join("kn.tsv");
+    run_extract(&paths, &plain, &["-q"]);
+    run_extract(&paths, &gt, &["-q", "--discount", "good-turing"]);
+    run_extract(&paths, &kn, &["-q", "--discount", "kneser-ney"]);
+    let (plain, gt, kn) = (read_table(&plain), read_table(&gt), read_table(&kn));
+    assert_eq!(plain.rows.len(), gt.rows.len());
+    let mut lowered = 0;
+    for (p, g) in plain.rows.iter().zip(&gt.rows) {
+        assert_eq!(p.counts, g.counts);
+        let (a, b) = (
+            score(&plain, p, "p_t_given_s"),
+            score(&gt, g, "p_t_given_s"),
+        );
+        assert!(b <= a);
+        lowered += usize::from(b < a);
+    }
+    assert!(lowered > plain.rows.len() / 4, "{lowered}");
+    let mut sums: HashMap<&str, f64> = HashMap::new();
+    for r in &kn.rows {
+        *sums.entry(&r.source).or_default() += score(&kn, r, "p_t_given_s");
+    }
+    assert!(sums.values().all(|&s| s < 1.0 + 1e-9 && s > 0.0));
+    assert!(kn.text.contains("# discount=kneser-ney"));
+}
