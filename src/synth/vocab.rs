@@ -175,8 +175,16 @@ pub(crate) struct Vocabulary {
     entries: Vec<Entry>,
     long: String,
     id_of_rank: Vec<u32>,
-    draws: Vec<Draw>,
+    /// Alias tables over the [`HEAD`] most frequent ranks and over the rest: most draws hit
+    /// the small head table, which stays in cache.
+    head: Vec<Draw>,
+    tail: Vec<Draw>,
+    /// Draw from `head` when a random u64 is below this (the head's probability mass).
+    head_threshold: u64,
 }
+
+/// Ranks in the head alias table.
+const HEAD: usize = 4096;
 
 impl Vocabulary {
     /// `words` pseudo-words with Zipf exponent `exponent`; deterministic in `seed`.
@@ -231,19 +239,28 @@ impl Vocabulary {
                 translation: 0,
             });
         }
-        let table = AliasTable::new(&probability);
-        let draws = (0..words)
-            .map(|rank| Draw {
-                threshold: table.threshold[rank],
-                keep: id_of_rank[rank],
-                alias: id_of_rank[table.alias[rank] as usize],
-            })
-            .collect();
+        let split = HEAD.min(words - 1);
+        let draws = |ranks: &[f64], first: usize| -> Vec<Draw> {
+            let table = AliasTable::new(ranks);
+            (0..ranks.len())
+                .map(|k| Draw {
+                    threshold: table.threshold[k],
+                    keep: id_of_rank[first + k],
+                    alias: id_of_rank[first + table.alias[k] as usize],
+                })
+                .collect()
+        };
+        let head = draws(&probability[..split], 0);
+        let tail = draws(&probability[split..], split);
+        let head_mass: f64 = probability[..split].iter().sum();
+        let head_threshold = (head_mass * 18446744073709551616.0).min(u64::MAX as f64) as u64;
         Vocabulary {
             entries,
             long,
             id_of_rank,
-            draws,
+            head,
+            tail,
+            head_threshold,
         }
     }
 
@@ -293,9 +310,14 @@ impl Vocabulary {
     /// Draws a word id with its Zipf probability.
     #[inline]
     pub(crate) fn sample(&self, rng: &mut impl RngCore) -> u32 {
+        let table = if rng.next_u64() < self.head_threshold {
+            &self.head
+        } else {
+            &self.tail
+        };
         let x = rng.next_u64();
-        let column = (((x >> 32) * self.draws.len() as u64) >> 32) as usize;
-        let draw = self.draws[column];
+        let column = (((x >> 32) * table.len() as u64) >> 32) as usize;
+        let draw = table[column];
         if (x as u32) < draw.threshold {
             draw.keep
         } else {
