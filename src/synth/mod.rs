@@ -579,7 +579,10 @@ impl Generator {
         words.clear();
         for _round in 0..4 {
             while words.len() < wanted {
-                words.push(self.source.sample(&mut self.rng));
+                let word = self.source.sample(&mut self.rng);
+                if Some(&word) != self.prefix.last() {
+                    words.push(word); // no word continues with itself ("the the")
+                }
             }
             words.sort_unstable();
             words.dedup();

@@ -191,20 +191,22 @@ impl Vocabulary {
     pub(crate) fn new(side: Side, words: usize, exponent: f64, seed: u64) -> Vocabulary {
         let mut rng = Xoshiro256PlusPlus::seed_from_u64(seed);
         let mut by_rank: Vec<String> = Vec::with_capacity(words);
-        let mut seen: HashSet<String> = HashSet::with_capacity(words);
+        // Words seen so far, by 64-bit hash: a collision only makes us draw another word.
+        let mut seen: HashSet<u64> = HashSet::with_capacity(words);
+        let hash = |w: &str| w.bytes().fold(0x5eed, |h, b| mix(h ^ u64::from(b)));
         let mut punctuation = PUNCTUATION.iter().peekable();
         for rank in 0..words {
             if let Some(&&(r, p)) = punctuation.peek() {
                 if r == rank {
                     punctuation.next();
-                    seen.insert(p.to_string());
+                    seen.insert(hash(p));
                     by_rank.push(p.to_string());
                     continue;
                 }
             }
             loop {
                 let word = pseudo_word(side, rank, &mut rng);
-                if seen.insert(word.clone()) {
+                if seen.insert(hash(&word)) {
                     by_rank.push(word);
                     break;
                 }
@@ -348,7 +350,7 @@ fn pseudo_word(side: Side, rank: usize, rng: &mut impl RngCore) -> String {
     };
     let r = rng.next_u64();
     let jitter = (r & 0xffff) as f64 / 65536.0;
-    let syllables = (1.0 + 0.55 * ((rank + 1) as f64).log10() + 1.2 * jitter - 0.5)
+    let syllables = (1.0 + 0.42 * ((rank + 1) as f64).log10() + 1.2 * jitter - 0.5)
         .round()
         .clamp(1.0, 5.0) as usize;
     let mut word = String::new();
