@@ -438,6 +438,15 @@ fn cli_rejects_bad_options_and_writes_nothing() {
         let stderr = String::from_utf8_lossy(&out.stderr);
         assert!(stderr.contains(flag), "{flag}: {stderr}");
     }
+    // A directory (like a device or a pipe) is not replaced by the output.
+    let out = baler()
+        .args(["synth", "--pairs", "10", "-o"])
+        .arg(dir.path())
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("not a regular file"));
+    assert!(dir.path().is_dir());
     let out = baler()
         .args(["synth", "--pairs", "lots", "-o"])
         .arg(&path)
