@@ -91,6 +91,21 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         sentence_pairs: args.sentence_pairs,
     };
     options.validate()?;
+    // The output is written beside its path and renamed onto it, which would replace a device
+    // or pipe (such as /dev/null) with a regular file: refuse those.
+    if args.output.as_os_str() != baler::files::STDIO {
+        if let Ok(meta) = std::fs::metadata(&args.output) {
+            if !meta.is_file() {
+                return Err(baler::Error::invalid(
+                    "--output",
+                    format!(
+                        "{} is not a regular file; use - to write to standard output",
+                        args.output.display()
+                    ),
+                ));
+            }
+        }
+    }
     let progress = indicatif::ProgressBar::new(options.pairs);
     progress.set_style(
         indicatif::ProgressStyle::with_template(

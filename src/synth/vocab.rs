@@ -175,28 +175,38 @@ pub(crate) struct Vocabulary {
     entries: Vec<Entry>,
     long: String,
     id_of_rank: Vec<u32>,
-    draws: Vec<Draw>,
+    /// Alias tables over the [`HEAD`] most frequent ranks and over the rest: most draws hit
+    /// the small head table, which stays in cache.
+    head: Vec<Draw>,
+    tail: Vec<Draw>,
+    /// Draw from `head` when a random u64 is below this (the head's probability mass).
+    head_threshold: u64,
 }
+
+/// Ranks in the head alias table.
+const HEAD: usize = 4096;
 
 impl Vocabulary {
     /// `words` pseudo-words with Zipf exponent `exponent`; deterministic in `seed`.
     pub(crate) fn new(side: Side, words: usize, exponent: f64, seed: u64) -> Vocabulary {
         let mut rng = Xoshiro256PlusPlus::seed_from_u64(seed);
         let mut by_rank: Vec<String> = Vec::with_capacity(words);
-        let mut seen: HashSet<String> = HashSet::with_capacity(words);
+        // Words seen so far, by 64-bit hash: a collision only makes us draw another word.
+        let mut seen: HashSet<u64> = HashSet::with_capacity(words);
+        let hash = |w: &str| w.bytes().fold(0x5eed, |h, b| mix(h ^ u64::from(b)));
         let mut punctuation = PUNCTUATION.iter().peekable();
         for rank in 0..words {
             if let Some(&&(r, p)) = punctuation.peek() {
                 if r == rank {
                     punctuation.next();
-                    seen.insert(p.to_string());
+                    seen.insert(hash(p));
                     by_rank.push(p.to_string());
                     continue;
                 }
             }
             loop {
                 let word = pseudo_word(side, rank, &mut rng);
-                if seen.insert(word.clone()) {
+                if seen.insert(hash(&word)) {
                     by_rank.push(word);
                     break;
                 }
@@ -231,19 +241,28 @@ impl Vocabulary {
                 translation: 0,
             });
         }
-        let table = AliasTable::new(&probability);
-        let draws = (0..words)
-            .map(|rank| Draw {
-                threshold: table.threshold[rank],
-                keep: id_of_rank[rank],
-                alias: id_of_rank[table.alias[rank] as usize],
-            })
-            .collect();
+        let split = HEAD.min(words - 1);
+        let draws = |ranks: &[f64], first: usize| -> Vec<Draw> {
+            let table = AliasTable::new(ranks);
+            (0..ranks.len())
+                .map(|k| Draw {
+                    threshold: table.threshold[k],
+                    keep: id_of_rank[first + k],
+                    alias: id_of_rank[first + table.alias[k] as usize],
+                })
+                .collect()
+        };
+        let head = draws(&probability[..split], 0);
+        let tail = draws(&probability[split..], split);
+        let head_mass: f64 = probability[..split].iter().sum();
+        let head_threshold = (head_mass * 18446744073709551616.0).min(u64::MAX as f64) as u64;
         Vocabulary {
             entries,
             long,
             id_of_rank,
-            draws,
+            head,
+            tail,
+            head_threshold,
         }
     }
 
@@ -293,9 +312,14 @@ impl Vocabulary {
     /// Draws a word id with its Zipf probability.
     #[inline]
     pub(crate) fn sample(&self, rng: &mut impl RngCore) -> u32 {
+        let table = if rng.next_u64() < self.head_threshold {
+            &self.head
+        } else {
+            &self.tail
+        };
         let x = rng.next_u64();
-        let column = (((x >> 32) * self.draws.len() as u64) >> 32) as usize;
-        let draw = self.draws[column];
+        let column = (((x >> 32) * table.len() as u64) >> 32) as usize;
+        let draw = table[column];
         if (x as u32) < draw.threshold {
             draw.keep
         } else {
@@ -326,7 +350,7 @@ fn pseudo_word(side: Side, rank: usize, rng: &mut impl RngCore) -> String {
     };
     let r = rng.next_u64();
     let jitter = (r & 0xffff) as f64 / 65536.0;
-    let syllables = (1.0 + 0.55 * ((rank + 1) as f64).log10() + 1.2 * jitter - 0.5)
+    let syllables = (1.0 + 0.42 * ((rank + 1) as f64).log10() + 1.2 * jitter - 0.5)
         .round()
         .clamp(1.0, 5.0) as usize;
     let mut word = String::new();
