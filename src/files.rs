@@ -118,6 +118,28 @@ impl Output {
                 temp: None,
             });
         }
+        // A device or pipe (`/dev/null`, a named pipe) is written in place: renaming a file over
+        // it would replace the device for everyone.
+        if let Ok(meta) = std::fs::metadata(path) {
+            if meta.is_dir() {
+                return Err(Error::io(
+                    path,
+                    "creating",
+                    io::Error::other("is a directory"),
+                ));
+            }
+            if !meta.is_file() {
+                let file = std::fs::OpenOptions::new()
+                    .write(true)
+                    .open(path)
+                    .map_err(|e| Error::io(path, "opening", e))?;
+                return Ok(Output {
+                    path: path.to_path_buf(),
+                    sink: Some(wrap(path, BufWriter::with_capacity(1 << 16, file))?),
+                    temp: None,
+                });
+            }
+        }
         let dir = match path.parent() {
             Some(p) if !p.as_os_str().is_empty() => p,
             _ => Path::new("."),
@@ -127,25 +149,19 @@ impl Output {
             .tempfile_in(dir)
             .map_err(|e| Error::io(path, "creating", e))?;
         let (file, temp) = named.into_parts();
+        // Temporary files are created private (0600); the finished output gets the permissions
+        // of the file it replaces, or the usual 0644.
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            let mode = std::fs::metadata(path).map_or(0o644, |m| m.permissions().mode() & 0o7777);
+            file.set_permissions(std::fs::Permissions::from_mode(mode))
+                .map_err(|e| Error::io(path, "creating", e))?;
+        }
         let buffered = BufWriter::with_capacity(1 << 16, file);
-        let name = path.to_string_lossy();
-        let sink = if name.ends_with(".gz") {
-            Sink::Gzip(flate2::write::GzEncoder::new(
-                buffered,
-                flate2::Compression::new(6),
-            ))
-        } else if name.ends_with(".zst") {
-            let mut enc = zstd::stream::write::Encoder::new(buffered, 3)
-                .map_err(|e| Error::io(path, "creating", e))?;
-            enc.include_checksum(true)
-                .map_err(|e| Error::io(path, "creating", e))?;
-            Sink::Zstd(enc)
-        } else {
-            Sink::Plain(buffered)
-        };
         Ok(Output {
             path: path.to_path_buf(),
-            sink: Some(sink),
+            sink: Some(wrap(path, buffered)?),
             temp: Some(temp),
         })
     }
@@ -175,9 +191,11 @@ impl Output {
                 .map_err(|e| e.into_error())
                 .map_err(err)?,
         };
+        let Some(temp) = self.temp.take() else {
+            return Ok(()); // a device or pipe, written in place
+        };
         file.sync_all().map_err(err)?;
         drop(file);
-        let temp = self.temp.take().expect("temporary path present for files");
         temp.persist(&path)
             .map_err(|e| Error::io(&path, "renaming into place", e.error))?;
         Ok(())
@@ -203,6 +221,25 @@ impl Write for Output {
     fn flush(&mut self) -> io::Result<()> {
         self.sink().flush()
     }
+}
+
+/// Compresses by the output name's extension.
+fn wrap(path: &Path, buffered: BufWriter<File>) -> Result<Sink> {
+    let name = path.to_string_lossy();
+    Ok(if name.ends_with(".gz") {
+        Sink::Gzip(flate2::write::GzEncoder::new(
+            buffered,
+            flate2::Compression::new(6),
+        ))
+    } else if name.ends_with(".zst") {
+        let mut enc = zstd::stream::write::Encoder::new(buffered, 3)
+            .map_err(|e| Error::io(path, "creating", e))?;
+        enc.include_checksum(true)
+            .map_err(|e| Error::io(path, "creating", e))?;
+        Sink::Zstd(enc)
+    } else {
+        Sink::Plain(buffered)
+    })
 }
 
 /// Parses a byte size such as `256M`, `4G`, `1.5G`, `64K` or `1000000` (powers of 1024).

@@ -430,3 +430,27 @@ fn packing_is_deterministic_and_sort_spills_agree() {
         "output depends on memory budget or threads"
     );
 }
+
+/// Writing to a device writes through it: renaming a finished file over `/dev/null` would
+/// replace the device for every process on the machine.
+#[cfg(unix)]
+#[test]
+fn output_to_a_device_leaves_the_device_in_place() {
+    use std::os::unix::fs::FileTypeExt;
+    let dir = tempfile::tempdir().unwrap();
+    let tsv = dir.path().join("t.tsv");
+    std::fs::write(&tsv, "source\ttarget\np\tq\n").unwrap();
+    baler_ok(&["pack", s(&tsv), "-o", "/dev/null", "-q"]);
+    let bale = dir.path().join("t.bale");
+    baler_ok(&["pack", s(&tsv), "-o", s(&bale), "-q"]);
+    baler_ok(&["dump", s(&bale), "-o", "/dev/null"]);
+    assert!(std::fs::metadata("/dev/null")
+        .unwrap()
+        .file_type()
+        .is_char_device());
+    use std::os::unix::fs::PermissionsExt;
+    assert_eq!(
+        std::fs::metadata(&bale).unwrap().permissions().mode() & 0o777,
+        0o644
+    );
+}
