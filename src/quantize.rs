@@ -12,7 +12,7 @@
 use crate::format::domain;
 
 /// The most distinct values kept when sampling a column for fitting.
-pub const DEFAULT_SAMPLE_SIZE: usize = 1 << 20;
+pub const DEFAULT_SAMPLE_SIZE: usize = 1 << 18;
 
 /// A fitted codebook for one score column.
 ///
@@ -146,7 +146,11 @@ impl Codebook {
 
     /// The error of representing `value` by its code, in the fitted domain.
     pub fn error(&self, value: f64) -> f64 {
-        let code = self.encode(value);
+        self.error_of(self.encode(value), value)
+    }
+
+    /// The error of representing `value` by `code`, in the fitted domain.
+    pub fn error_of(&self, code: u16, value: f64) -> f64 {
         (self.centres[usize::from(code)] - to_domain(self.domain, value)).abs()
     }
 }
@@ -235,6 +239,7 @@ pub struct Reservoir {
     seen: u64,
     items: Vec<f64>,
     state: u64,
+    extremes: [f64; 2],
 }
 
 impl Reservoir {
@@ -245,12 +250,20 @@ impl Reservoir {
             seen: 0,
             items: Vec::new(),
             state: 0x9E37_79B9_7F4A_7C15,
+            extremes: [0.0; 2],
         }
     }
 
     /// Offers one value.
     pub fn push(&mut self, value: f64) {
         self.seen += 1;
+        // The extremes always take part in fitting, so the codebook spans the whole column.
+        if self.seen == 1 {
+            self.extremes = [value, value];
+        } else {
+            self.extremes[0] = self.extremes[0].min(value);
+            self.extremes[1] = self.extremes[1].max(value);
+        }
         if self.items.len() < self.capacity {
             self.items.push(value);
             return;
@@ -267,9 +280,13 @@ impl Reservoir {
         }
     }
 
-    /// The sampled values.
-    pub fn values(&self) -> &[f64] {
-        &self.items
+    /// The sampled values, plus the smallest and largest value seen.
+    pub fn values(&self) -> Vec<f64> {
+        let mut v = self.items.clone();
+        if self.seen > 0 {
+            v.extend_from_slice(&self.extremes);
+        }
+        v
     }
 }
 

@@ -11,15 +11,17 @@ use std::path::Path;
 
 use crate::error::{Error, Result};
 use crate::format::{self, write_varint, Compression};
-use crate::quantize::Codebook;
 
 use super::PackOptions;
 
 /// One option as the packer holds it before encoding.
+#[derive(Default)]
 pub(super) struct PackedOption {
-    pub target: Vec<u8>,
     pub target_ref: u64,
+    /// Original scores (for ordering).
     pub scores: Vec<f64>,
+    /// Codebook codes, or the `f32` bits of unquantized scores.
+    pub codes: Vec<u32>,
     pub alignment: Vec<(u16, u16)>,
     pub counts: Vec<u64>,
 }
@@ -57,16 +59,16 @@ impl BlockBuilder {
         self.sources
     }
 
-    pub fn add_source(&mut self, options: &[PackedOption], codebooks: &[Option<Codebook>]) {
+    pub fn add_source(&mut self, options: &[PackedOption]) {
         self.sources += 1;
         write_varint(&mut self.option_counts, options.len() as u64);
         for o in options {
-            for (c, &s) in o.scores.iter().enumerate() {
+            for (c, &code) in o.codes.iter().enumerate() {
                 let col = &mut self.scores[c];
-                match (&codebooks[c], self.widths[c]) {
-                    (None, _) => col.extend_from_slice(&(s as f32).to_le_bytes()),
-                    (Some(b), 1) => col.push(b.encode(s) as u8),
-                    (Some(b), _) => col.extend_from_slice(&b.encode(s).to_le_bytes()),
+                match self.widths[c] {
+                    1 => col.push(code as u8),
+                    2 => col.extend_from_slice(&(code as u16).to_le_bytes()),
+                    _ => col.extend_from_slice(&code.to_le_bytes()),
                 }
             }
             write_varint(&mut self.target_refs, o.target_ref);

@@ -172,9 +172,10 @@ fn check_options(options: &PackOptions) -> Result<()> {
 }
 
 /// Encodes the part of a record the sort key does not hold.
-fn encode_value(buf: &mut Vec<u8>, position: u64, pair: &PhrasePair) {
+fn encode_value(buf: &mut Vec<u8>, position: u64, target: u32, pair: &PhrasePair) {
     buf.clear();
     write_varint(buf, position);
+    write_varint(buf, u64::from(target));
     write_varint(buf, pair.alignment.len() as u64);
     for &(i, j) in &pair.alignment {
         write_varint(buf, u64::from(i));
@@ -188,34 +189,50 @@ fn encode_value(buf: &mut Vec<u8>, position: u64, pair: &PhrasePair) {
     }
 }
 
-struct DecodedValue {
-    position: u64,
-    alignment: Vec<(u16, u16)>,
-    scores: Vec<f64>,
-    counts: Vec<u64>,
-}
-
-fn decode_value(v: &[u8], n_scores: usize, n_counts: usize) -> DecodedValue {
+/// Decodes a sorter value into `option` (reusing its buffers), computing each score's code once;
+/// returns the record's input position and provisional target number.
+fn decode_value(
+    v: &[u8],
+    codebooks: &[Option<Codebook>],
+    errors: &mut [ErrorStats],
+    option: &mut PackedOption,
+) -> (u64, u32) {
     // These bytes were written by `encode_value` in this process; a failure is a bug.
     let mut pos = 0;
     let mut next = || format::read_varint(v, &mut pos).expect("sorter record intact");
     let position = next();
+    let target = next() as u32;
     let links = next() as usize;
-    let alignment = (0..links).map(|_| (next() as u16, next() as u16)).collect();
-    let mut scores = Vec::with_capacity(n_scores);
-    for _ in 0..n_scores {
-        scores.push(f64::from_le_bytes(v[pos..pos + 8].try_into().unwrap()));
+    option.alignment.clear();
+    for _ in 0..links {
+        let i = next() as u16;
+        option.alignment.push((i, next() as u16));
+    }
+    option.scores.clear();
+    option.codes.clear();
+    for (book, err) in codebooks.iter().zip(errors.iter_mut()) {
+        let s = f64::from_le_bytes(v[pos..pos + 8].try_into().unwrap());
         pos += 8;
+        option.scores.push(s);
+        option.codes.push(match book {
+            Some(b) => {
+                let code = b.encode(s);
+                err.add_error(b.error_of(code, s));
+                u32::from(code)
+            }
+            None => {
+                err.add_error((s - f64::from(s as f32)).abs());
+                (s as f32).to_bits()
+            }
+        });
     }
-    let counts = (0..n_counts)
-        .map(|_| format::read_varint(v, &mut pos).expect("intact"))
-        .collect();
-    DecodedValue {
-        position,
-        alignment,
-        scores,
-        counts,
+    option.counts.clear();
+    while pos < v.len() {
+        option
+            .counts
+            .push(format::read_varint(v, &mut pos).expect("sorter record intact"));
     }
+    (position, target)
 }
 
 fn progress_bar(enabled: bool, message: &'static str) -> indicatif::ProgressBar {
@@ -254,7 +271,10 @@ where
     // Pass 1: sort, count targets, sample scores.
     let sort_budget = (options.memory as usize / 2).max(1 << 20);
     let mut sorter = ExternalSorter::new(sort_budget, options.temp_dir.clone())?;
-    let mut target_counts: HashMap<String, u64> = HashMap::default();
+    // Targets get provisional numbers in order of first appearance; pass 2 maps them to the
+    // final references through a vector, so each target is hashed once per pair, not twice.
+    let mut target_index: HashMap<String, u32> = HashMap::default();
+    let mut target_uses: Vec<u64> = Vec::new();
     let mut reservoirs: Vec<Reservoir> = (0..n_scores)
         .map(|_| Reservoir::new(DEFAULT_SAMPLE_SIZE))
         .collect();
@@ -271,14 +291,18 @@ where
         key.extend_from_slice(pair.source.as_bytes());
         key.push(0);
         key.extend_from_slice(pair.target.as_bytes());
-        encode_value(&mut value, position, &pair);
-        sorter.push(&key, &value)?;
-        match target_counts.get_mut(pair.target.as_str()) {
-            Some(c) => *c += 1,
+        let target = match target_index.get(pair.target.as_str()) {
+            Some(&t) => t,
             None => {
-                target_counts.insert(pair.target.clone(), 1);
+                let t = target_uses.len() as u32;
+                target_index.insert(pair.target.clone(), t);
+                target_uses.push(0);
+                t
             }
-        }
+        };
+        target_uses[target as usize] += 1;
+        encode_value(&mut value, position, target, &pair);
+        sorter.push(&key, &value)?;
         for (r, &s) in reservoirs.iter_mut().zip(&pair.scores) {
             r.push(s);
         }
@@ -290,22 +314,26 @@ where
     bar.finish_and_clear();
 
     // Targets by frequency, then vocabulary by frequency.
-    let mut targets: Vec<(String, u64)> = target_counts.into_iter().collect();
+    let mut targets: Vec<(String, u64, u32)> = target_index
+        .into_iter()
+        .map(|(t, id)| (t, target_uses[id as usize], id))
+        .collect();
+    drop(target_uses);
     targets.sort_unstable_by(|a, b| b.1.cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
     let (vocabulary_section, words) = build_vocabulary(&targets);
     let (targets_section, target_offsets) = build_targets(&targets, &words);
     let n_targets = targets.len() as u64;
     let n_words = words.len() as u64;
     drop(words);
-    let target_refs: HashMap<String, u64> = targets
-        .into_iter()
-        .zip(target_offsets)
-        .map(|((t, _), offset)| (t, offset))
-        .collect();
+    let mut target_refs = vec![0u64; targets.len()];
+    for ((_, _, id), offset) in targets.iter().zip(target_offsets) {
+        target_refs[*id as usize] = offset;
+    }
+    drop(targets);
 
     let codebooks: Vec<Option<Codebook>> = reservoirs
         .iter()
-        .map(|r| options.bits.map(|bits| Codebook::fit(r.values(), bits)))
+        .map(|r| options.bits.map(|bits| Codebook::fit(&r.values(), bits)))
         .collect();
     drop(reservoirs);
     let order_column =
@@ -341,12 +369,12 @@ where
         raw_path: &raw_path,
         builder: BlockBuilder::new(&widths, schema.alignment, n_counts),
         block_sizes: Vec::new(),
-        samples: BlockSample::new(options.dictionary_bytes * 100),
+        samples: BlockSample::new(options.dictionary_bytes * 32),
         max_block: 0,
         sources: 0,
-        codebooks: &codebooks,
         order_column,
         sources_per_block: options.sources_per_block,
+        spare: Vec::new(),
     };
     let mut errors = vec![ErrorStats::default(); n_scores];
     let mut group: Vec<PackedOption> = Vec::new();
@@ -362,12 +390,14 @@ where
             .position(|&b| b == 0)
             .expect("key holds a NUL separator");
         let (source, target) = (&k[..split], &k[split + 1..]);
-        let decoded = decode_value(v, n_scores, n_counts);
+        let mut option = writer.spare.pop().unwrap_or_default();
+        let (position, target_number) = decode_value(v, &codebooks, &mut errors, &mut option);
+        option.target_ref = target_refs[target_number as usize];
         if source == group_source.as_slice() && !group.is_empty() {
             if target == previous_target.as_slice() {
                 let (first, second) = (
-                    previous_position.min(decoded.position),
-                    previous_position.max(decoded.position),
+                    previous_position.min(position),
+                    previous_position.max(position),
                 );
                 return Err(Error::input(
                     name,
@@ -386,18 +416,8 @@ where
         }
         previous_target.clear();
         previous_target.extend_from_slice(target);
-        previous_position = decoded.position;
-        let target_str = std::str::from_utf8(target).expect("targets are UTF-8");
-        for (c, &s) in decoded.scores.iter().enumerate() {
-            errors[c].add(&codebooks[c], s);
-        }
-        group.push(PackedOption {
-            target: target.to_vec(),
-            target_ref: target_refs[target_str],
-            scores: decoded.scores,
-            alignment: decoded.alignment,
-            counts: decoded.counts,
-        });
+        previous_position = position;
+        group.push(option);
         done += 1;
         if done % 65536 == 0 {
             bar.set_position(done);
@@ -605,9 +625,9 @@ fn write_file(out: &Path, parts: &[(SectionKind, Part)]) -> Result<(Vec<(Section
 
 /// Numbers the words of the targets by frequency (each target weighted by the options using it);
 /// returns the vocabulary section and the word ids.
-fn build_vocabulary(targets: &[(String, u64)]) -> (Vec<u8>, HashMap<&str, u32>) {
+fn build_vocabulary(targets: &[(String, u64, u32)]) -> (Vec<u8>, HashMap<&str, u32>) {
     let mut freq: HashMap<&str, u64> = HashMap::default();
-    for (t, c) in targets {
+    for (t, c, _) in targets {
         for w in t.split(' ') {
             *freq.entry(w).or_insert(0) += c;
         }
@@ -636,11 +656,14 @@ fn build_vocabulary(targets: &[(String, u64)]) -> (Vec<u8>, HashMap<&str, u32>) 
 /// The target section: the count, then each target as a varint token count followed by varint
 /// token ids. Returns the section and each target's offset within the data after the count,
 /// which is how options refer to it.
-fn build_targets(targets: &[(String, u64)], words: &HashMap<&str, u32>) -> (Vec<u8>, Vec<u64>) {
+fn build_targets(
+    targets: &[(String, u64, u32)],
+    words: &HashMap<&str, u32>,
+) -> (Vec<u8>, Vec<u64>) {
     let mut section = Vec::new();
     section.extend_from_slice(&(targets.len() as u64).to_le_bytes());
     let mut offsets = Vec::with_capacity(targets.len());
-    for (t, _) in targets {
+    for (t, _, _) in targets {
         offsets.push((section.len() - 8) as u64);
         write_varint(&mut section, t.split(' ').count() as u64);
         for w in t.split(' ') {
@@ -678,11 +701,7 @@ struct ErrorStats {
 }
 
 impl ErrorStats {
-    fn add(&mut self, book: &Option<Codebook>, value: f64) {
-        let err = match book {
-            Some(b) => b.error(value),
-            None => (value - f64::from(value as f32)).abs(),
-        };
+    fn add_error(&mut self, err: f64) {
         self.n += 1;
         self.sum_sq += err * err;
         self.max = self.max.max(err);
@@ -781,9 +800,10 @@ struct SourceWriter<'a> {
     samples: BlockSample,
     max_block: usize,
     sources: u64,
-    codebooks: &'a [Option<Codebook>],
     order_column: Option<usize>,
     sources_per_block: u32,
+    /// Options whose buffers can be reused.
+    spare: Vec<PackedOption>,
 }
 
 struct WrittenSources {
@@ -800,17 +820,15 @@ impl SourceWriter<'_> {
             return Ok(());
         }
         if let Some(c) = self.order_column {
-            group.sort_by(|a, b| {
-                b.scores[c]
-                    .total_cmp(&a.scores[c])
-                    .then_with(|| a.target.cmp(&b.target))
-            });
+            // The group arrives in target byte order and the sort is stable, so ties stay in
+            // target byte order.
+            group.sort_by(|a, b| b.scores[c].total_cmp(&a.scores[c]));
         }
         self.fst_builder
             .insert(source, self.sources)
             .map_err(|e| Error::io(self.fst_path, "writing", std::io::Error::other(e)))?;
-        self.builder.add_source(group, self.codebooks);
-        group.clear();
+        self.builder.add_source(group);
+        self.spare.append(group);
         self.sources += 1;
         if self.builder.sources() == self.sources_per_block {
             self.write_block()?;
