@@ -9,7 +9,11 @@ fn main() {
         .map(|s| s.unwrap())
         .collect();
     let mut st = 42u64;
-    let order: Vec<usize> = (0..1_000_000)
+    let count: usize = args
+        .get(2)
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(1_000_000);
+    let order: Vec<usize> = (0..count)
         .map(|_| {
             st = st.wrapping_mul(6364136223846793005).wrapping_add(1);
             ((st >> 33) % q.len() as u64) as usize
@@ -33,7 +37,7 @@ fn main() {
         "fst {:.2} us, full {:.2} us, options/lookup {:.2} ({})",
         fst_t,
         all_t,
-        opts as f64 / 1e6,
+        opts as f64 / count as f64,
         n % 2
     );
 }

@@ -336,17 +336,43 @@ impl Table {
             }
         })
         .ok_or_else(|| self.damaged_index())?;
-        let mut spans = Vec::with_capacity(hits.len());
-        for (start, end, ordinal) in hits {
-            let mut options = Options::default();
-            self.decode_source(ordinal, &mut options)?;
-            spans.push(Span {
+        // Sub-phrases sharing a start are neighbours in byte order and often share a block:
+        // decode the hits block by block, each block once.
+        let mut order: Vec<usize> = (0..hits.len()).collect();
+        order.sort_by_key(|&i| hits[i].2);
+        let mut decoded: Vec<Option<Options>> = vec![None; hits.len()];
+        let per = u64::from(self.meta.sources_per_block);
+        let mut scratch = Vec::new();
+        let mut k = 0;
+        while k < order.len() {
+            let ordinal = hits[order[k]].2;
+            if ordinal >= self.meta.sources {
+                return Err(self.corrupt(format!(
+                    "the source index points at source {ordinal} of {}",
+                    self.meta.sources
+                )));
+            }
+            let block = ordinal / per;
+            let bytes = self.block_bytes(block, &mut scratch)?;
+            let n = self.sources_in_block(block);
+            while k < order.len() && hits[order[k]].2 / per == block {
+                let mut options = Options::default();
+                let layout =
+                    options::BlockLayout::parse(self, bytes, n, (hits[order[k]].2 % per) as usize)?;
+                layout.decode_source(self, bytes, &mut options)?;
+                decoded[order[k]] = Some(options);
+                k += 1;
+            }
+        }
+        Ok(hits
+            .into_iter()
+            .zip(decoded)
+            .map(|((start, end, _), options)| Span {
                 start,
                 end,
-                options,
-            });
-        }
-        Ok(spans)
+                options: options.expect("every hit decoded"),
+            })
+            .collect())
     }
 
     /// Every source phrase in byte order (read from the index alone, no blocks decoded).
