@@ -156,11 +156,14 @@ pub fn read_text(path: &Path) -> Result<Vec<Vec<String>>> {
     Ok(sentences)
 }
 
+/// Tokenized sentences, one per line of a text.
+pub type Sentences = Vec<Vec<String>>;
+
 /// Reads a test text and, optionally, its reference; they must have as many lines.
 pub fn read_test_set(
     test: &Path,
     reference: Option<&Path>,
-) -> Result<(Vec<Vec<String>>, Option<Vec<Vec<String>>>)> {
+) -> Result<(Sentences, Option<Sentences>)> {
     let source = read_text(test)?;
     let reference = match reference {
         Some(path) => {
@@ -358,6 +361,7 @@ impl Cell {
     fn csv(self) -> String {
         match self {
             Cell::Whole(n) => n.to_string(),
+            Cell::Real(x) if x != 0.0 && x.abs() < 1e-4 => format!("{x:e}"),
             Cell::Real(x) => format!("{x}"),
             Cell::Missing => String::new(),
         }
@@ -465,9 +469,9 @@ impl Comparison {
         }
         let _ = writeln!(
             out,
-            "({}: divergence is the mean Jensen-Shannon divergence in nats of {} against the \
+            "(divergence: the mean Jensen-Shannon divergence in nats of {} against the \
              base, ln 2 = 0.6931 for a source that lost every option; spans up to {} tokens)",
-            "note", self.column, self.max_length
+            self.column, self.max_length
         );
         out
     }

@@ -32,7 +32,7 @@ pub struct FoundSpan {
 
 enum Store {
     /// A packed table, looked up through its index; `column` is the probability's score index.
-    Packed { table: Table, column: usize },
+    Packed { table: Box<Table>, column: usize },
     /// A TSV table held in memory: sources in byte order with their options, and an index.
     Loaded {
         sources: Vec<(String, Vec<Choice>)>,
@@ -92,7 +92,7 @@ impl MeasuredTable {
                 name,
                 file_bytes,
                 store: Store::Packed {
-                    table,
+                    table: Box::new(table),
                     column: column_index,
                 },
                 longest_source: longest,

@@ -240,7 +240,9 @@ impl Recipe {
         })?;
         let at = |span: std::ops::Range<usize>, e: Error| -> Error {
             let reason = match e {
-                Error::InvalidArgument { option, reason } => format!("{option}: {reason}"),
+                Error::InvalidArgument { option, reason } => {
+                    format!("{}: {reason}", option.trim_start_matches("--"))
+                }
                 other => other.to_string(),
             };
             Error::input(&name, line_of(text, span.start), reason)
