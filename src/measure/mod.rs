@@ -292,49 +292,89 @@ pub fn compare(
     reference: Option<&[Vec<String>]>,
     options: &CompareOptions,
 ) -> Result<Comparison> {
-    if let (Some(t), Some(r)) = (test, reference) {
-        if t.len() != r.len() {
-            return Err(Error::invalid(
-                "--reference",
-                format!("{} sentences for {} test sentences", r.len(), t.len()),
-            ));
-        }
-    }
-    let reference = if test.is_some() { reference } else { None };
-    let max_length = options.max_length.unwrap_or(base.longest_source()).max(1);
+    let baseline = Baseline::new(base, test, reference, options)?;
     let mut tables = Vec::with_capacity(others.len() + 1);
-    let base_pass = match test {
-        Some(t) => Some(coverage::test_pass(base, t, reference, max_length, true)?),
-        None => None,
-    };
-    let occurrences = base_pass.as_ref().map(|p| &p.occurrences);
-    for (i, table) in std::iter::once(&base).chain(others.iter()).enumerate() {
-        let pass = if i == 0 {
-            None
-        } else {
-            match test {
-                Some(t) => Some(coverage::test_pass(table, t, reference, max_length, false)?),
-                None => None,
-            }
-        };
-        let pass = if i == 0 {
-            base_pass.as_ref()
-        } else {
-            pass.as_ref()
-        };
-        tables.push(TableReport {
-            name: table.name().to_string(),
-            size: size(table)?,
-            coverage: pass.map(|p| p.coverage.clone()),
-            agreement: agreement(base, table, occurrences)?,
-            reachability: pass.and_then(|p| p.reachability.clone()),
-        });
+    tables.push(baseline.report.clone());
+    for table in others {
+        tables.push(baseline.measure(table)?);
     }
     Ok(Comparison {
         column: PROBABILITY_COLUMN.to_string(),
-        max_length,
+        max_length: baseline.max_length,
         tables,
     })
+}
+
+/// The base's figures and test-span occurrences, computed once and measured against many
+/// tables (a sweep measures every setting against the same base).
+pub(crate) struct Baseline<'a> {
+    base: &'a MeasuredTable,
+    test: Option<&'a [Vec<String>]>,
+    reference: Option<&'a [Vec<String>]>,
+    pub(crate) max_length: usize,
+    occurrences: Option<std::collections::HashMap<String, u64>>,
+    pub(crate) report: TableReport,
+}
+
+impl<'a> Baseline<'a> {
+    pub(crate) fn new(
+        base: &'a MeasuredTable,
+        test: Option<&'a [Vec<String>]>,
+        reference: Option<&'a [Vec<String>]>,
+        options: &CompareOptions,
+    ) -> Result<Baseline<'a>> {
+        if let (Some(t), Some(r)) = (test, reference) {
+            if t.len() != r.len() {
+                return Err(Error::invalid(
+                    "--reference",
+                    format!("{} sentences for {} test sentences", r.len(), t.len()),
+                ));
+            }
+        }
+        let reference = if test.is_some() { reference } else { None };
+        let max_length = options.max_length.unwrap_or(base.longest_source()).max(1);
+        let pass = match test {
+            Some(t) => Some(coverage::test_pass(base, t, reference, max_length, true)?),
+            None => None,
+        };
+        let occurrences = pass.as_ref().map(|p| p.occurrences.clone());
+        let report = TableReport {
+            name: base.name().to_string(),
+            size: size(base)?,
+            coverage: pass.as_ref().map(|p| p.coverage.clone()),
+            agreement: agreement(base, base, occurrences.as_ref())?,
+            reachability: pass.and_then(|p| p.reachability),
+        };
+        Ok(Baseline {
+            base,
+            test,
+            reference,
+            max_length,
+            occurrences,
+            report,
+        })
+    }
+
+    /// The figures of `table` against the base.
+    pub(crate) fn measure(&self, table: &MeasuredTable) -> Result<TableReport> {
+        let pass = match self.test {
+            Some(t) => Some(coverage::test_pass(
+                table,
+                t,
+                self.reference,
+                self.max_length,
+                false,
+            )?),
+            None => None,
+        };
+        Ok(TableReport {
+            name: table.name().to_string(),
+            size: size(table)?,
+            coverage: pass.as_ref().map(|p| p.coverage.clone()),
+            agreement: agreement(self.base, table, self.occurrences.as_ref())?,
+            reachability: pass.and_then(|p| p.reachability),
+        })
+    }
 }
 
 /// One value of the rendered report.

@@ -5,7 +5,7 @@ use std::sync::mpsc;
 
 use serde::Serialize;
 
-use super::{compare, CompareOptions, MeasuredTable, TableReport, PROBABILITY_COLUMN};
+use super::{CompareOptions, MeasuredTable, TableReport, PROBABILITY_COLUMN};
 use crate::error::{Error, Result};
 use crate::files::{self, Output};
 use crate::format::Compression;
@@ -334,7 +334,7 @@ pub struct SweepReport {
 }
 
 /// Prunes and packs `input` at every setting of `options.variations`' grid into
-/// `out_dir/setting-NN.bale`, measures each against the unpruned input (as [`compare`]
+/// `out_dir/setting-NN.bale`, measures each against the unpruned input (as [`super::compare`]
 /// does), and writes `out_dir/sweep.csv` (one line per setting) and `out_dir/sweep.svg`
 /// ([`super::plot_svg`]). A TSV input not grouped by source is sorted once first.
 pub fn sweep(input: &Path, options: &SweepOptions) -> Result<SweepReport> {
@@ -366,36 +366,27 @@ pub fn sweep(input: &Path, options: &SweepOptions) -> Result<SweepReport> {
         indicatif::ProgressStyle::with_template("{bar:30} {pos}/{len} settings {msg}")
             .expect("a valid template"),
     );
+    let baseline = super::Baseline::new(
+        &base,
+        Some(&options.test),
+        options.reference.as_deref(),
+        &options.compare,
+    )?;
     let mut reports = Vec::with_capacity(settings.len());
-    let mut base_report = None;
-    let mut max_length = 0;
     for (i, setting) in settings.iter().enumerate() {
         bar.set_message(setting.label.clone());
         let path = options.out_dir.join(format!("setting-{:02}.bale", i + 1));
         let mut pack = setting.pack.clone();
-        pack.memory = if options.memory == 0 {
-            pack.memory
-        } else {
-            options.memory
-        };
+        if options.memory != 0 {
+            pack.memory = options.memory;
+        }
         pack.provenance
             .push(("sweep_setting".into(), setting.label.clone()));
         let mut prune = setting.prune.clone();
         prune.memory = options.memory;
         let (stats, _) = prune_and_pack(source, &path, &prune, &pack)?;
         let table = MeasuredTable::open(&path, PROBABILITY_COLUMN)?;
-        let mut comparison = compare(
-            &base,
-            &[&table],
-            Some(&options.test),
-            options.reference.as_deref(),
-            &options.compare,
-        )?;
-        max_length = comparison.max_length;
-        let figures = comparison.tables.pop().expect("two tables");
-        if base_report.is_none() {
-            base_report = comparison.tables.pop();
-        }
+        let figures = baseline.measure(&table)?;
         reports.push(SettingReport {
             label: setting.label.clone(),
             path,
@@ -408,8 +399,8 @@ pub fn sweep(input: &Path, options: &SweepOptions) -> Result<SweepReport> {
     let csv = options.out_dir.join("sweep.csv");
     let svg = options.out_dir.join("sweep.svg");
     let report = SweepReport {
-        base: base_report.expect("at least one setting"),
-        max_length,
+        base: baseline.report.clone(),
+        max_length: baseline.max_length,
         settings: reports,
         csv,
         svg,
