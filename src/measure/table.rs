@@ -162,6 +162,12 @@ impl MeasuredTable {
         })
     }
 
+    /// The same table under another name (reports show it instead of the path).
+    pub fn with_name(mut self, name: impl Into<String>) -> MeasuredTable {
+        self.name = name.into();
+        self
+    }
+
     /// The name given when opening (the path).
     pub fn name(&self) -> &str {
         &self.name

@@ -514,7 +514,10 @@ pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
     if let Some(path) = &recipe.stats {
         write_json(path, &stats)?;
     }
-    let base = MeasuredTable::open(&extracted, measure::PROBABILITY_COLUMN)?;
+    let mut base = MeasuredTable::open(&extracted, measure::PROBABILITY_COLUMN)?;
+    if recipe.extracted.is_none() {
+        base = base.with_name("extracted (not kept)");
+    }
     let table = MeasuredTable::open(&recipe.table, measure::PROBABILITY_COLUMN)?;
     let test = match &recipe.held_out {
         Some(h) => Some(measure::read_test_set(&h.source, h.reference.as_deref())?),
