@@ -228,6 +228,24 @@ fn packed_and_tsv_tables_measure_alike() {
     );
     // these values are exact in f32, so nothing diverges
     assert_eq!(y.agreement.divergence, 0.0);
+    // with a reference the packed table's spans come with their targets: same coverage
+    let reference = vec![words("the sharp drill bit")];
+    let r = compare(
+        &a,
+        &[&b],
+        Some(&test),
+        Some(&reference),
+        &CompareOptions::default(),
+    )
+    .unwrap();
+    assert_eq!(r.tables[0].coverage, r.tables[1].coverage);
+    assert_eq!(r.tables[0].reachability, r.tables[1].reachability);
+    // "the", "sharp", "drill", "bit", "drill bit" of 4 + 3 + 2 + 1 n-grams
+    let reach = r.tables[1].reachability.as_ref().unwrap();
+    assert_eq!(
+        (reach.by_order[0].reachable, reach.by_order[1].reachable),
+        (4, 1)
+    );
 }
 
 // ---- the demo data --------------------------------------------------------------------------

@@ -272,6 +272,28 @@ impl MeasuredTable {
         with_targets: bool,
     ) -> Result<Vec<FoundSpan>> {
         match &self.store {
+            Store::Packed { table, .. } if !with_targets => {
+                // the index alone answers whether a span is a source: no block is decoded
+                let mut found = Vec::new();
+                let mut key = String::new();
+                for start in 0..tokens.len() {
+                    key.clear();
+                    for end in start + 1..=(start + max_len).min(tokens.len()) {
+                        if end > start + 1 {
+                            key.push(' ');
+                        }
+                        key.push_str(tokens[end - 1]);
+                        if table.source_ordinal(&key)?.is_some() {
+                            found.push(FoundSpan {
+                                start,
+                                end,
+                                targets: Vec::new(),
+                            });
+                        }
+                    }
+                }
+                Ok(found)
+            }
             Store::Packed { table, .. } => Ok(table
                 .spans(tokens, max_len)?
                 .into_iter()
