@@ -725,3 +725,92 @@ fn bad_recipes_name_file_line_and_reason() {
         assert!(!dir.path().join("out.bale").exists());
     }
 }
+
+#[test]
+fn sweep_sorts_unsorted_input_once_and_varies_bounds() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("shuffled.tsv");
+    // sources out of byte order and not grouped
+    std::fs::write(
+        &input,
+        "source\ttarget\tp_t_given_s\tcount\n\
+         sierra\tsaw\t0.7\t7\nbroca\tbit\t0.6\t3\nsierra\thacksaw\t0.3\t3\nbroca\tdrill bit\t0.4\t2\n",
+    )
+    .unwrap();
+    let test = dir.path().join("test.txt");
+    std::fs::write(&test, "la sierra\nuna broca\n").unwrap();
+    let out = dir.path().join("sweep");
+    ok(
+        &[
+            "sweep",
+            s(&input),
+            "--test",
+            s(&test),
+            "--vary",
+            "min=count=1,count=3,count=5",
+            "-o",
+            s(&out),
+            "--quiet",
+        ],
+        None,
+    );
+    let csv = std::fs::read_to_string(out.join("sweep.csv")).unwrap();
+    let rows: Vec<Vec<&str>> = csv.lines().map(|l| l.split(',').collect()).collect();
+    let pairs = rows[0].iter().position(|c| *c == "pairs").unwrap();
+    let kept: Vec<&str> = rows[1..].iter().map(|r| r[pairs]).collect();
+    assert_eq!(kept, ["4", "3", "1"]);
+    assert_eq!(rows[1][0], "min=count=1");
+    // the sorted copy was temporary
+    let mut names: Vec<String> = std::fs::read_dir(&out)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    assert_eq!(
+        names,
+        [
+            "setting-01.bale",
+            "setting-02.bale",
+            "setting-03.bale",
+            "sweep.csv",
+            "sweep.svg"
+        ]
+    );
+    // one panel without a reference: one circle per setting
+    let svg = std::fs::read_to_string(out.join("sweep.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    assert_eq!(
+        doc.descendants()
+            .filter(|n| n.has_tag_name("circle"))
+            .count(),
+        3
+    );
+}
+
+#[test]
+fn build_without_a_held_out_set_reports_sizes_and_divergence() {
+    let dir = tempfile::tempdir().unwrap();
+    let recipe = dir.path().join("r.toml");
+    let corpus = |name: &str| s(&repo(&format!("demo-data/{name}"))).to_string();
+    std::fs::write(
+        &recipe,
+        format!(
+            "[corpus]\nsource = \"{}\"\ntarget = \"{}\"\nalignment = \"{}\"\n\
+             [[filter]]\ntop_k = 1\n[pack]\nbits = \"f32\"\n[output]\ntable = \"out/t.bale\"\n",
+            corpus("toolshed.en"),
+            corpus("toolshed.es"),
+            corpus("toolshed.align")
+        ),
+    )
+    .unwrap();
+    let csv = ok(&["build", s(&recipe), "--csv", "--quiet"], Some(dir.path()));
+    let rows: Vec<Vec<&str>> = csv.lines().map(|l| l.split(',').collect()).collect();
+    assert_eq!(rows.len(), 3);
+    assert_eq!(rows[1][0], "extracted (not kept)");
+    assert!(!rows[0].contains(&"token_coverage"));
+    let divergence = rows[0].iter().position(|c| *c == "divergence").unwrap();
+    assert!(rows[2][divergence].parse::<f64>().unwrap() > 0.0);
+    // only the table is left behind
+    let left: Vec<_> = std::fs::read_dir(dir.path().join("out")).unwrap().collect();
+    assert_eq!(left.len(), 1);
+}
