@@ -200,7 +200,8 @@ impl Setting {
 /// with `pack`: the pruner's output goes through a channel to the packer on another thread,
 /// with no intermediate file. `input` is a packed table or an interchange TSV grouped by
 /// source in byte order (as extraction, `baler prune` and `baler dump` write it). The packed
-/// file records the filters (`pruned_with`) and `pack.provenance`.
+/// file records the filters (`pruned_with`), the input's name (unless `pack.provenance`
+/// names an `input` already) and `pack.provenance`.
 ///
 /// # Examples
 /// ```
@@ -260,7 +261,9 @@ pub fn prune_and_pack(
         .unwrap_or("")
         .to_string();
     pack.provenance.insert(0, ("pruned_with".into(), filters));
-    pack.provenance.insert(0, ("input".into(), name.clone()));
+    if !pack.provenance.iter().any(|(k, _)| k == "input") {
+        pack.provenance.insert(0, ("input".into(), name.clone()));
+    }
     std::thread::scope(|scope| {
         let (sender, receiver) = mpsc::sync_channel::<Result<PhrasePair>>(4096);
         let header = &header_out;

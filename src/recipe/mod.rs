@@ -501,6 +501,23 @@ pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
     pack.progress = progress;
     pack.temp_dir
         .get_or_insert_with(|| work.path().to_path_buf());
+    if recipe.extracted.is_none() {
+        // the unpruned table is temporary: name what it was made from instead
+        let c = &recipe.corpus;
+        let alignment = c
+            .alignment
+            .as_ref()
+            .map_or(String::new(), |a| a.display().to_string());
+        pack.provenance.push((
+            "input".into(),
+            format!(
+                "extracted from {}, {}, {}",
+                c.source.display(),
+                c.target.display(),
+                alignment
+            ),
+        ));
+    }
     pack.provenance.push((
         "built_by".into(),
         format!("baler build {}", env!("CARGO_PKG_VERSION")),
