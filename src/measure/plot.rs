@@ -44,7 +44,8 @@ pub fn plot_svg(report: &SweepReport) -> Result<String> {
                 (lo.min(p.1), hi.max(p.1))
             });
         let pad = ((hi - lo) * 0.1).max(hi.abs() * 0.05).max(1.0);
-        let x_range = (lo - pad).max(0.0)..hi + pad;
+        // more room on the right, where the labels of the largest tables go
+        let x_range = (lo - pad).max(0.0)..hi + 3.0 * pad;
         for (panel, area) in areas.iter().enumerate() {
             let (title, y_label) = if panel == 0 {
                 ("Size against test coverage", "share of test tokens covered")
@@ -61,12 +62,13 @@ pub fn plot_svg(report: &SweepReport) -> Result<String> {
                     (lo.min(y(p)), hi.max(y(p)))
                 });
             let ypad = ((yhi - ylo) * 0.15).max(0.02);
-            let y_range = (ylo - ypad).max(0.0)..(yhi + ypad).min(1.05);
+            let y_range = (ylo - ypad).max(0.0)..(yhi + ypad).min(1.01);
+            let offsets = label_offsets(&points, &x_range, &y_range, y);
             let mut chart = ChartBuilder::on(area)
                 .caption(title, ("sans-serif", 18))
                 .margin(16)
                 .x_label_area_size(40)
-                .y_label_area_size(56)
+                .y_label_area_size(72)
                 .build_cartesian_2d(x_range.clone(), y_range)
                 .map_err(|e| failed(e.to_string()))?;
             chart
@@ -80,14 +82,49 @@ pub fn plot_svg(report: &SweepReport) -> Result<String> {
                 .draw()
                 .map_err(|e| failed(e.to_string()))?;
             chart
-                .draw_series(points.iter().map(|p| {
+                .draw_series(points.iter().zip(&offsets).map(|(p, &dy)| {
                     EmptyElement::at((p.1, y(p)))
                         + Circle::new((0, 0), 4, BLUE.filled())
-                        + Text::new(p.0.clone(), (6, -12), ("sans-serif", 11))
+                        + Text::new(p.0.clone(), (6, dy), ("sans-serif", 11))
                 }))
                 .map_err(|e| failed(e.to_string()))?;
         }
         root.present().map_err(|e| failed(e.to_string()))?;
     }
     Ok(svg)
+}
+
+/// Vertical pixel offsets of the labels: a label that would land on an earlier one (points
+/// close together, in plot pixels) is moved one line further down.
+fn label_offsets<F>(
+    points: &[(String, f64, f64, f64)],
+    x: &std::ops::Range<f64>,
+    y: &std::ops::Range<f64>,
+    value: F,
+) -> Vec<i32>
+where
+    F: Fn(&(String, f64, f64, f64)) -> f64,
+{
+    const LINE: i32 = 13;
+    let (width, height) = (f64::from(PANEL.0 - 100), f64::from(PANEL.1 - 100));
+    let px = |p: &(String, f64, f64, f64)| {
+        (
+            (p.1 - x.start) / (x.end - x.start) * width,
+            (y.end - value(p)) / (y.end - y.start) * height,
+        )
+    };
+    let mut placed: Vec<(f64, f64)> = Vec::new();
+    let mut offsets = Vec::with_capacity(points.len());
+    for p in points {
+        let (a, b) = px(p);
+        let mut dy = -LINE;
+        while placed.iter().any(|&(pa, pb)| {
+            (pa - a).abs() < 150.0 && (pb - (b + f64::from(dy))).abs() < f64::from(LINE)
+        }) {
+            dy += LINE;
+        }
+        placed.push((a, b + f64::from(dy)));
+        offsets.push(dy);
+    }
+    offsets
 }
