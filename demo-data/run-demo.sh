@@ -1,6 +1,7 @@
 #!/bin/sh
 # The main job on the shipped demo data: word-aligned English-Spanish text in, a pruned, packed,
-# verified phrase table out, then a few lookups. Builds baler first. Outputs go to demo-out/.
+# verified phrase table out with a report of what pruning cost (baler build on the recipe), then
+# a few lookups and a sweep over significance thresholds. Builds baler first. Outputs: demo-out/.
 set -eu
 cd "$(dirname "$0")/.."
 if ! command -v cargo >/dev/null 2>&1; then
@@ -12,15 +13,15 @@ baler=target/release/baler
 out=demo-out
 mkdir -p "$out"
 
-echo "== extract: phrase pairs consistent with the word alignment, scored and counted"
-$baler extract --source demo-data/toolshed.en --target demo-data/toolshed.es \
-    --alignment demo-data/toolshed.align -o "$out/toolshed.tsv" --quiet
-echo "== prune: Fisher significance (alpha+epsilon), then the 20 best options per phrase"
-$baler prune "$out/toolshed.tsv" -o "$out/toolshed.pruned.tsv" \
-    --significance alpha+epsilon --top-k 20 --by p_t_given_s --stats "$out/prune-stats.json"
-echo "== pack"
-$baler pack "$out/toolshed.pruned.tsv" -o "$out/toolshed.bale"
+echo "== build: extract, prune (significance, then top 20), pack, report on the held-out set"
+# the stages and their options are in the recipe; see demo-data/toolshed.recipe.toml
+$baler build demo-data/toolshed.recipe.toml --quiet
 echo "== inspect --verify"
 $baler inspect --verify "$out/toolshed.bale"
 echo "== lookup"
 $baler lookup "$out/toolshed.bale" "the cordless drill" "please" "the workshop" "a spaceship" || true
+echo "== sweep: size against coverage and reachability over significance thresholds"
+$baler sweep "$out/toolshed.tsv" --test demo-data/toolshed.test.en \
+    --reference demo-data/toolshed.test.es --vary significance=0,alpha-epsilon,alpha+epsilon,10 \
+    -o "$out/sweep" --quiet
+echo "wrote $out/sweep/sweep.csv and $out/sweep/sweep.svg"

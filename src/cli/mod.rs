@@ -1,12 +1,15 @@
 //! Flag definitions and dispatch. Exit codes: 0 success, 1 nothing found (lookup misses only),
 //! 2 error.
 
+mod build;
+mod compare;
 mod dump;
 mod extract;
 mod inspect;
 mod lookup;
 mod pack;
 mod prune;
+mod sweep;
 mod synth;
 
 use std::process::ExitCode;
@@ -37,6 +40,12 @@ enum Command {
     Inspect(inspect::Args),
     /// Generate a large synthetic phrase table for benchmarks.
     Synth(synth::Args),
+    /// Compare tables with a base: size, held-out coverage, retained mass, divergence.
+    Compare(compare::Args),
+    /// Prune and pack at every setting of a grid; measure each; plot size against coverage.
+    Sweep(sweep::Args),
+    /// Run a whole build (extract, prune, pack, report) from one recipe file.
+    Build(build::Args),
 }
 
 /// Parses the command line, runs it, and maps the outcome to an exit code.
@@ -60,6 +69,9 @@ pub fn main() -> ExitCode {
         Command::Dump(a) => dump::run(a),
         Command::Inspect(a) => inspect::run(a),
         Command::Synth(a) => synth::run(a),
+        Command::Compare(a) => compare::run(a),
+        Command::Sweep(a) => sweep::run(a),
+        Command::Build(a) => build::run(a),
     };
     match result {
         Ok(code) => code,

@@ -1,0 +1,65 @@
+//! `baler build`: run a whole build from one recipe file.
+
+use std::io::Write;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use baler::recipe::{self, Recipe};
+use baler::Error;
+
+/// Arguments of `baler build`.
+#[derive(clap::Args)]
+#[command(
+    after_help = "The recipe (TOML) lists the corpus, extraction options, filters in \
+    order, packing options, outputs and an optional held-out set; see the recipe module's \
+    documentation or demo-data/toolshed.recipe.toml. Input paths are relative to the recipe's \
+    folder, output paths to the current directory."
+)]
+pub struct Args {
+    /// The recipe file.
+    recipe: PathBuf,
+    /// Print the final report as JSON instead of the readable table.
+    #[arg(long, conflicts_with = "csv")]
+    json: bool,
+    /// Print the final report as CSV.
+    #[arg(long)]
+    csv: bool,
+    /// No progress bars and no stage summaries on stderr.
+    #[arg(short, long)]
+    quiet: bool,
+}
+
+pub fn run(args: Args) -> baler::Result<ExitCode> {
+    let recipe = Recipe::load(&args.recipe)?;
+    let started = std::time::Instant::now();
+    let report = recipe::build(&recipe, !args.quiet)?;
+    if !args.quiet {
+        let e = &report.extract;
+        eprintln!(
+            "baler build: extracted {} pairs ({} sources) from {} sentence pairs",
+            e.pairs, e.sources, e.corpus.sentence_pairs
+        );
+        eprint!("{}", report.prune.summary());
+        eprintln!(
+            "baler build: packed {} pairs into {} ({} bytes) in {:.1} s in all",
+            report.pack.meta.pairs,
+            recipe.table.display(),
+            report.pack.file_bytes,
+            started.elapsed().as_secs_f64()
+        );
+    }
+    let text = if args.json {
+        let mut s = serde_json::to_string_pretty(&report.comparison).expect("figures serialize");
+        s.push('\n');
+        s
+    } else if args.csv {
+        report.comparison.to_csv()
+    } else {
+        report.comparison.to_text()
+    };
+    std::io::stdout()
+        .lock()
+        .write_all(text.as_bytes())
+        .map_err(|e| Error::io("-", "writing", e))?;
+    Ok(ExitCode::SUCCESS)
+}

@@ -1,0 +1,72 @@
+//! `baler compare`: sizes, held-out coverage, retained mass, divergence and reachability of
+//! tables side by side with a base.
+
+use std::io::Write;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use baler::measure::{self, CompareOptions, MeasuredTable};
+use baler::Error;
+
+/// Arguments of `baler compare`.
+#[derive(clap::Args)]
+#[command(
+    after_help = "Divergence: per source phrase of BASE, the Jensen-Shannon divergence \
+    (nats) between its p_t_given_s and OTHER's, each normalized over its own options; ln 2 for \
+    a source with no option left. Coverage segments the test text greedily, longest match \
+    first."
+)]
+pub struct Args {
+    /// The base table (TSV or packed .bale).
+    base: PathBuf,
+    /// Tables to compare with it (TSV or packed).
+    #[arg(required = true, value_name = "OTHER")]
+    others: Vec<PathBuf>,
+    /// Held-out source text: one tokenized sentence per line.
+    #[arg(long, value_name = "SRC")]
+    test: PathBuf,
+    /// Its reference translation, line by line: adds the reachability of reference n-grams.
+    #[arg(long, value_name = "TGT")]
+    reference: Option<PathBuf>,
+    /// Longest test span looked up (default: the base's longest source phrase).
+    #[arg(long, value_name = "N")]
+    max_length: Option<usize>,
+    /// Print JSON instead of the readable table.
+    #[arg(long, conflicts_with = "csv")]
+    json: bool,
+    /// Print CSV (one line per table) instead of the readable table.
+    #[arg(long)]
+    csv: bool,
+}
+
+pub fn run(args: Args) -> baler::Result<ExitCode> {
+    if args.max_length == Some(0) {
+        return Err(Error::invalid("--max-length", "must be at least 1"));
+    }
+    let (test, reference) = measure::read_test_set(&args.test, args.reference.as_deref())?;
+    let base = MeasuredTable::open(&args.base, measure::PROBABILITY_COLUMN)?;
+    let others = args
+        .others
+        .iter()
+        .map(|p| MeasuredTable::open(p, measure::PROBABILITY_COLUMN))
+        .collect::<baler::Result<Vec<_>>>()?;
+    let refs: Vec<&MeasuredTable> = others.iter().collect();
+    let options = CompareOptions {
+        max_length: args.max_length,
+    };
+    let report = measure::compare(&base, &refs, Some(&test), reference.as_deref(), &options)?;
+    let text = if args.json {
+        let mut s = serde_json::to_string_pretty(&report).expect("figures serialize");
+        s.push('\n');
+        s
+    } else if args.csv {
+        report.to_csv()
+    } else {
+        report.to_text()
+    };
+    std::io::stdout()
+        .lock()
+        .write_all(text.as_bytes())
+        .map_err(|e| Error::io("-", "writing", e))?;
+    Ok(ExitCode::SUCCESS)
+}

@@ -1,0 +1,570 @@
+//! Build recipes: one TOML file that describes a whole build, from the word-aligned corpus to
+//! the packed table and a report on a held-out set, and the runner behind `baler build`.
+//!
+//! # The recipe
+//!
+//! ```toml
+//! [corpus]                      # paths relative to the recipe's folder
+//! source = "toolshed.en"
+//! target = "toolshed.es"
+//! alignment = "toolshed.align"
+//! # links_target_first = false
+//! # max_sentence_length = 100
+//!
+//! [extract]                     # all optional
+//! max_length = 7
+//! unaligned_edges = true
+//! discount = "none"             # or "good-turing", "kneser-ney"
+//! memory = "2G"
+//! # threads = 2                 # default: every core
+//!
+//! [[filter]]                    # filters run in the order written; one kind per [[filter]]
+//! significance = "alpha+epsilon"
+//! [[filter]]
+//! top_k = 20
+//! by = "p_t_given_s"            # optional ranking, as `baler prune --by`
+//! # other kinds: min = "COLUMN=VALUE", max = "COLUMN=VALUE", relative_entropy = 0.5
+//!
+//! [prune]                       # optional
+//! renormalize = []              # score columns to renormalize after the filters
+//!
+//! [pack]                        # all optional, defaults as `baler pack`
+//! bits = 8                      # or "f32"
+//! block_sources = 16
+//! compression = "zstd"
+//! zstd_level = 9
+//! dictionary_size = "64K"
+//!
+//! [output]                      # paths relative to the directory `baler build` runs in
+//! table = "demo-out/toolshed.bale"
+//! extracted = "demo-out/toolshed.tsv"   # optional: keep the unpruned table
+//! stats = "demo-out/prune-stats.json"   # optional: what each filter did
+//! report = "demo-out/report.json"       # optional: the compare report as JSON
+//!
+//! [held_out]                    # optional; relative to the recipe's folder
+//! source = "toolshed.test.en"
+//! reference = "toolshed.test.es"        # optional
+//! ```
+//!
+//! Inputs belong with the recipe, so they are found beside it wherever it is run from;
+//! outputs go where the build runs. Unknown keys are errors, and every error names the
+//! recipe's file and line.
+//!
+//! # Examples
+//! ```
+//! use baler::recipe::Recipe;
+//! let text = "[corpus]\nsource = \"a.en\"\ntarget = \"a.es\"\nalignment = \"a.align\"\n\
+//!             [[filter]]\ntop_k = 5\n[output]\ntable = \"out.bale\"\n";
+//! let recipe = Recipe::parse(text, "a.recipe.toml".as_ref(), "data".as_ref(), None)?;
+//! assert_eq!(recipe.corpus.source, std::path::Path::new("data/a.en"));
+//! assert_eq!(recipe.prune.filters.len(), 1);
+//! let bad = Recipe::parse("[corpus]\nsource = 3\n", "b.toml".as_ref(), ".".as_ref(), None);
+//! assert!(bad.unwrap_err().to_string().starts_with("b.toml:2:"));
+//! # Ok::<(), baler::Error>(())
+//! ```
+
+use std::path::{Path, PathBuf};
+
+use serde::Deserialize;
+use toml::Spanned;
+
+use crate::error::{Error, Result};
+use crate::extract::corpus::{CorpusOptions, CorpusPaths};
+use crate::extract::phrases::PhraseLimits;
+use crate::extract::score::Discount;
+use crate::extract::shard::ShardOptions;
+use crate::extract::{self, ExtractOptions, ExtractSummary};
+use crate::files::{self, Output};
+use crate::format::Compression;
+use crate::measure::{self, CompareOptions, Comparison, MeasuredTable};
+use crate::pack::{PackOptions, PackReport};
+use crate::prune::{Filter, PruneOptions, PruneStats, Ranking, Threshold};
+
+/// A held-out set to report on.
+#[derive(Clone, Debug, PartialEq)]
+pub struct HeldOut {
+    /// Source text, one tokenized sentence per line.
+    pub source: PathBuf,
+    /// Reference translation, line by line.
+    pub reference: Option<PathBuf>,
+    /// Longest test span looked up (`None`: the unpruned table's longest source phrase).
+    pub max_length: Option<usize>,
+}
+
+/// A parsed, resolved recipe: the options of every stage, and where things go.
+#[derive(Clone, Debug)]
+pub struct Recipe {
+    /// The recipe file.
+    pub file: PathBuf,
+    /// Its text, recorded in the packed table's provenance.
+    pub text: String,
+    /// The word-aligned corpus.
+    pub corpus: CorpusPaths,
+    /// Extraction options.
+    pub extract: ExtractOptions,
+    /// The filters in order, and the other prune options.
+    pub prune: PruneOptions,
+    /// Packing options (provenance is added by [`build`]).
+    pub pack: PackOptions,
+    /// The packed table to write.
+    pub table: PathBuf,
+    /// Where to keep the unpruned extracted table (a temporary file when `None`).
+    pub extracted: Option<PathBuf>,
+    /// Where to write the prune statistics as JSON.
+    pub stats: Option<PathBuf>,
+    /// Where to write the compare report as JSON.
+    pub report: Option<PathBuf>,
+    /// The held-out set.
+    pub held_out: Option<HeldOut>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct Spec {
+    corpus: CorpusSpec,
+    #[serde(default)]
+    extract: ExtractSpec,
+    #[serde(default, rename = "filter")]
+    filters: Vec<Spanned<FilterSpec>>,
+    #[serde(default)]
+    prune: PruneSpec,
+    #[serde(default)]
+    pack: PackSpec,
+    output: OutputSpec,
+    held_out: Option<HeldOutSpec>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct CorpusSpec {
+    source: String,
+    target: String,
+    alignment: String,
+    #[serde(default)]
+    links_target_first: bool,
+    max_sentence_length: Option<Spanned<usize>>,
+}
+
+#[derive(Deserialize, Default)]
+#[serde(deny_unknown_fields)]
+struct ExtractSpec {
+    max_length: Option<Spanned<usize>>,
+    unaligned_edges: Option<bool>,
+    discount: Option<Spanned<String>>,
+    memory: Option<Spanned<String>>,
+    threads: Option<Spanned<usize>>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct FilterSpec {
+    significance: Option<String>,
+    top_k: Option<usize>,
+    by: Option<String>,
+    min: Option<String>,
+    max: Option<String>,
+    relative_entropy: Option<f64>,
+}
+
+#[derive(Deserialize, Default)]
+#[serde(deny_unknown_fields)]
+struct PruneSpec {
+    #[serde(default)]
+    renormalize: Vec<String>,
+    #[serde(default)]
+    annotate: bool,
+}
+
+#[derive(Deserialize, Default)]
+#[serde(deny_unknown_fields)]
+struct PackSpec {
+    bits: Option<Spanned<toml::Value>>,
+    block_sources: Option<Spanned<u32>>,
+    compression: Option<Spanned<String>>,
+    zstd_level: Option<Spanned<i32>>,
+    dictionary_size: Option<Spanned<String>>,
+    memory: Option<Spanned<String>>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct OutputSpec {
+    table: String,
+    extracted: Option<String>,
+    stats: Option<String>,
+    report: Option<String>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct HeldOutSpec {
+    source: String,
+    reference: Option<String>,
+    max_length: Option<Spanned<usize>>,
+}
+
+/// 1-based line of byte `offset` in `text`.
+fn line_of(text: &str, offset: usize) -> u64 {
+    text.as_bytes()[..offset.min(text.len())]
+        .iter()
+        .filter(|&&b| b == b'\n')
+        .count() as u64
+        + 1
+}
+
+impl Recipe {
+    /// Reads and parses the recipe at `path`: inputs resolve against its folder, outputs
+    /// against the current directory.
+    pub fn load(path: &Path) -> Result<Recipe> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, "reading", e))?;
+        let dir = path.parent().unwrap_or(Path::new(""));
+        Recipe::parse(&text, path, dir, None)
+    }
+
+    /// Parses recipe `text` (from `file`, named in errors); relative input paths resolve
+    /// against `input_dir`, relative outputs against `output_dir` (left relative when `None`).
+    ///
+    /// # Errors
+    /// TOML syntax, unknown keys, wrong types and bad values, each as
+    /// [`Error::input`] with the recipe's file and line.
+    pub fn parse(
+        text: &str,
+        file: &Path,
+        input_dir: &Path,
+        output_dir: Option<&Path>,
+    ) -> Result<Recipe> {
+        let name = file.display().to_string();
+        let spec: Spec = toml::from_str(text).map_err(|e| {
+            let line = e.span().map_or(0, |s| line_of(text, s.start));
+            Error::input(&name, line, format!("bad recipe: {}", e.message()))
+        })?;
+        let at = |span: std::ops::Range<usize>, e: Error| -> Error {
+            let reason = match e {
+                Error::InvalidArgument { option, reason } => {
+                    format!("{}: {reason}", option.trim_start_matches("--"))
+                }
+                other => other.to_string(),
+            };
+            Error::input(&name, line_of(text, span.start), reason)
+        };
+        let input = |p: &str| input_dir.join(p);
+        let output = |p: &str| match output_dir {
+            Some(d) => d.join(p),
+            None => PathBuf::from(p),
+        };
+        let size = |s: &Spanned<String>, key: &str| {
+            files::parse_size(s.get_ref())
+                .map_err(|e| at(s.span(), Error::invalid(key, e.to_string())))
+        };
+
+        // corpus and extraction
+        let c = &spec.corpus;
+        let mut corpus_options = CorpusOptions {
+            links_target_first: c.links_target_first,
+            ..Default::default()
+        };
+        if let Some(n) = &c.max_sentence_length {
+            corpus_options.max_sentence_length = *n.get_ref();
+        }
+        corpus_options
+            .validate()
+            .map_err(|e| at(c.max_sentence_length.as_ref().map_or(0..0, |s| s.span()), e))?;
+        let x = &spec.extract;
+        let mut limits = PhraseLimits::default();
+        if let Some(n) = &x.max_length {
+            if !(1..=255).contains(n.get_ref()) {
+                return Err(at(
+                    n.span(),
+                    Error::invalid(
+                        "max_length",
+                        format!("{} is not between 1 and 255", n.get_ref()),
+                    ),
+                ));
+            }
+            limits.max_length = *n.get_ref();
+        }
+        if let Some(u) = x.unaligned_edges {
+            limits.unaligned_edges = u;
+        }
+        let discount = match &x.discount {
+            None => Discount::None,
+            Some(d) => match d.get_ref().as_str() {
+                "none" => Discount::None,
+                "good-turing" => Discount::GoodTuring,
+                "kneser-ney" => Discount::KneserNey,
+                other => {
+                    return Err(at(
+                        d.span(),
+                        Error::invalid(
+                            "discount",
+                            format!("{other:?} is not none, good-turing or kneser-ney"),
+                        ),
+                    ))
+                }
+            },
+        };
+        let mut shard = ShardOptions {
+            limits,
+            corpus: corpus_options,
+            ..Default::default()
+        };
+        if let Some(m) = &x.memory {
+            shard.memory = size(m, "memory")?;
+        }
+        shard.threads = match &x.threads {
+            Some(t) if *t.get_ref() == 0 => {
+                return Err(at(
+                    t.span(),
+                    Error::invalid("threads", "must be at least 1"),
+                ))
+            }
+            Some(t) => *t.get_ref(),
+            None => std::thread::available_parallelism().map_or(1, |n| n.get()),
+        };
+
+        // filters
+        let mut filters = Vec::new();
+        for f in &spec.filters {
+            let span = f.span();
+            let g = f.get_ref();
+            let kinds = [
+                g.significance.is_some(),
+                g.top_k.is_some(),
+                g.min.is_some(),
+                g.max.is_some(),
+                g.relative_entropy.is_some(),
+            ];
+            if kinds.iter().filter(|&&k| k).count() != 1 {
+                return Err(Error::input(
+                    &name,
+                    line_of(text, span.start),
+                    "each [[filter]] needs exactly one of significance, top_k, min, max, \
+                     relative_entropy",
+                ));
+            }
+            if g.by.is_some() && g.top_k.is_none() {
+                return Err(Error::input(
+                    &name,
+                    line_of(text, span.start),
+                    "`by` only applies to a top_k filter",
+                ));
+            }
+            let filter = if let Some(s) = &g.significance {
+                Threshold::parse(s).map(Filter::Significance)
+            } else if let Some(k) = g.top_k {
+                g.by.as_deref()
+                    .map_or(Ok(Ranking::default()), Ranking::parse)
+                    .map(|by| Filter::TopK { k, by })
+            } else if let Some(m) = &g.min {
+                Filter::bound("min", m, true)
+            } else if let Some(m) = &g.max {
+                Filter::bound("max", m, false)
+            } else {
+                Ok(Filter::RelativeEntropy(
+                    g.relative_entropy.expect("one kind"),
+                ))
+            };
+            filters.push(filter.map_err(|e| at(span.clone(), e))?);
+        }
+        let prune = PruneOptions {
+            filters,
+            annotate: spec.prune.annotate,
+            renormalize: spec.prune.renormalize.clone(),
+            ..Default::default()
+        };
+
+        // packing
+        let p = &spec.pack;
+        let mut pack = PackOptions::default();
+        if let Some(b) = &p.bits {
+            pack.bits = match b.get_ref() {
+                toml::Value::String(s) if s == "f32" => None,
+                toml::Value::Integer(n) if (1..=16).contains(n) => Some(*n as u8),
+                other => {
+                    return Err(at(
+                        b.span(),
+                        Error::invalid("bits", format!("{other} is neither 1..16 nor \"f32\"")),
+                    ))
+                }
+            };
+        }
+        if let Some(n) = &p.block_sources {
+            pack.sources_per_block = *n.get_ref();
+        }
+        if let Some(c) = &p.compression {
+            pack.compression = Compression::from_name(c.get_ref()).ok_or_else(|| {
+                at(
+                    c.span(),
+                    Error::invalid(
+                        "compression",
+                        format!("{:?} is not zstd or none", c.get_ref()),
+                    ),
+                )
+            })?;
+        }
+        if let Some(l) = &p.zstd_level {
+            pack.zstd_level = *l.get_ref();
+        }
+        if let Some(d) = &p.dictionary_size {
+            pack.dictionary_bytes = size(d, "dictionary_size")? as usize;
+        }
+        if let Some(m) = &p.memory {
+            pack.memory = size(m, "memory")?;
+        }
+
+        let o = &spec.output;
+        let held_out = spec.held_out.as_ref().map(|h| HeldOut {
+            source: input(&h.source),
+            reference: h.reference.as_deref().map(input),
+            max_length: h.max_length.as_ref().map(|n| *n.get_ref()),
+        });
+        if let Some(n) = spec.held_out.as_ref().and_then(|h| h.max_length.as_ref()) {
+            if *n.get_ref() == 0 {
+                return Err(at(
+                    n.span(),
+                    Error::invalid("max_length", "must be at least 1"),
+                ));
+            }
+        }
+        Ok(Recipe {
+            file: file.to_path_buf(),
+            text: text.to_string(),
+            corpus: CorpusPaths {
+                source: input(&c.source),
+                target: input(&c.target),
+                alignment: Some(input(&c.alignment)),
+            },
+            extract: ExtractOptions { shard, discount },
+            prune,
+            pack,
+            table: output(&o.table),
+            extracted: o.extracted.as_deref().map(output),
+            stats: o.stats.as_deref().map(output),
+            report: o.report.as_deref().map(output),
+            held_out,
+        })
+    }
+}
+
+/// What [`build`] did.
+#[derive(Clone, Debug)]
+pub struct BuildReport {
+    /// Extraction.
+    pub extract: ExtractSummary,
+    /// Pruning.
+    pub prune: PruneStats,
+    /// Packing.
+    pub pack: PackReport,
+    /// The unpruned table against the packed one (on the held-out set when there is one).
+    pub comparison: Comparison,
+}
+
+/// Runs `recipe`: extracts the corpus into the unpruned table (kept at `extracted`, or in a
+/// temporary folder beside the output), prunes it and packs the kept pairs straight into the
+/// output ([`measure::prune_and_pack`], no intermediate pruned file), recording the recipe's
+/// file name and text and the tool's version in the packed table's provenance, then compares
+/// the unpruned table with the packed one. `progress` draws progress bars on stderr.
+pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
+    for path in [
+        Some(&recipe.table),
+        recipe.extracted.as_ref(),
+        recipe.stats.as_ref(),
+        recipe.report.as_ref(),
+    ]
+    .into_iter()
+    .flatten()
+    {
+        if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
+            std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, "creating", e))?;
+        }
+    }
+    let mut extract_options = recipe.extract.clone();
+    extract_options.shard.progress = progress;
+    let work = match recipe.table.parent().filter(|d| !d.as_os_str().is_empty()) {
+        Some(dir) => tempfile::Builder::new()
+            .prefix(".baler-build-")
+            .tempdir_in(dir),
+        None => tempfile::Builder::new()
+            .prefix(".baler-build-")
+            .tempdir_in("."),
+    }
+    .map_err(|e| Error::io(&recipe.table, "creating a temporary folder beside", e))?;
+    if extract_options.shard.temp_dir.is_none() {
+        extract_options.shard.temp_dir = Some(work.path().to_path_buf());
+    }
+    let extracted = recipe
+        .extracted
+        .clone()
+        .unwrap_or_else(|| work.path().join("extracted.tsv"));
+    let summary = extract::extract(&recipe.corpus, &extract_options, &extracted)?;
+    let mut pack = recipe.pack.clone();
+    pack.progress = progress;
+    pack.temp_dir
+        .get_or_insert_with(|| work.path().to_path_buf());
+    if recipe.extracted.is_none() {
+        // the unpruned table is temporary: name what it was made from instead
+        let c = &recipe.corpus;
+        let alignment = c
+            .alignment
+            .as_ref()
+            .map_or(String::new(), |a| a.display().to_string());
+        pack.provenance.push((
+            "input".into(),
+            format!(
+                "extracted from {}, {}, {}",
+                c.source.display(),
+                c.target.display(),
+                alignment
+            ),
+        ));
+    }
+    pack.provenance.push((
+        "built_by".into(),
+        format!("baler build {}", env!("CARGO_PKG_VERSION")),
+    ));
+    pack.provenance
+        .push(("recipe_file".into(), recipe.file.display().to_string()));
+    pack.provenance.push(("recipe".into(), recipe.text.clone()));
+    let mut prune = recipe.prune.clone();
+    prune.progress = progress;
+    let (stats, packed) = measure::prune_and_pack(&extracted, &recipe.table, &prune, &pack)?;
+    if let Some(path) = &recipe.stats {
+        write_json(path, &stats)?;
+    }
+    let mut base = MeasuredTable::open(&extracted, measure::PROBABILITY_COLUMN)?;
+    if recipe.extracted.is_none() {
+        base = base.with_name("extracted (not kept)");
+    }
+    let table = MeasuredTable::open(&recipe.table, measure::PROBABILITY_COLUMN)?;
+    let test = match &recipe.held_out {
+        Some(h) => Some(measure::read_test_set(&h.source, h.reference.as_deref())?),
+        None => None,
+    };
+    let options = CompareOptions {
+        max_length: recipe.held_out.as_ref().and_then(|h| h.max_length),
+    };
+    let comparison = measure::compare(
+        &base,
+        &[&table],
+        test.as_ref().map(|t| t.0.as_slice()),
+        test.as_ref().and_then(|t| t.1.as_deref()),
+        &options,
+    )?;
+    if let Some(path) = &recipe.report {
+        write_json(path, &comparison)?;
+    }
+    Ok(BuildReport {
+        extract: summary,
+        prune: stats,
+        pack: packed,
+        comparison,
+    })
+}
+
+fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {
+    let mut out = Output::create(path)?;
+    serde_json::to_writer_pretty(&mut out, value)
+        .map_err(|e| Error::io(path, "writing", e.into()))?;
+    std::io::Write::write_all(&mut out, b"\n").map_err(|e| Error::io(path, "writing", e))?;
+    out.commit()
+}
