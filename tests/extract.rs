@@ -492,11 +492,14 @@ fn output_is_identical_across_threads_budgets_and_shards() {
         shards.push((s, t));
     }
     let merged = dir.path().join("merged.tsv.zst");
+    let index = dir.path().join("merged.index");
     let o = baler()
         .args(["extract", "merge", "-q"])
         .args(&runs)
         .arg("-o")
         .arg(&merged)
+        .arg("--index")
+        .arg(&index)
         .output()
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
@@ -504,8 +507,8 @@ fn output_is_identical_across_threads_budgets_and_shards() {
     for (k, (s, t)) in shards.iter().enumerate() {
         let tally = dir.path().join(format!("shard{k}.tally"));
         let o = baler()
-            .args(["extract", "tally", "-q", "--table"])
-            .arg(&merged)
+            .args(["extract", "tally", "-q", "--index"])
+            .arg(&index)
             .arg("--source")
             .arg(s)
             .arg("--target")

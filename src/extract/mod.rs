@@ -43,6 +43,7 @@
 
 pub mod corpus;
 mod counter;
+pub mod index;
 pub mod phrases;
 mod report;
 pub mod runs;
@@ -112,6 +113,7 @@ pub fn extract(
     }
     let work = shard::temp_dir(&options.shard.temp_dir, "baler-extract-work-")?;
     let merged_path = work.path().join("merged.tsv.zst");
+    let index_path = work.path().join("merged.index");
     let mut steps = [0.0; 4];
     let mut lap = Instant::now();
     let mut next_lap = |k: usize| {
@@ -126,14 +128,21 @@ pub fn extract(
         sources,
         targets,
     } = {
-        let mut merged = Output::create(&merged_path)?;
         let merge = MergeOptions {
             discount: options.discount,
             memory: options.shard.memory,
             temp_dir: Some(work.path().to_path_buf()),
+            index: Some(index_path.clone()),
         };
+        // A temporary file: fast compression, no sync to disk.
+        let werr = |e| crate::Error::io(&merged_path, "writing", e);
+        let file = std::fs::File::create(&merged_path).map_err(werr)?;
+        let mut merged =
+            zstd::stream::write::Encoder::new(std::io::BufWriter::with_capacity(1 << 20, file), 1)
+                .map_err(werr)?;
         let summary = score::merge_and_score(&runs.runs, &mut merged, &merged_path, &merge)?;
-        merged.commit()?;
+        let mut file = merged.finish().map_err(werr)?;
+        std::io::Write::flush(&mut file).map_err(werr)?;
         summary
     };
     drop(runs);
@@ -150,7 +159,7 @@ pub fn extract(
         alignment: None,
         ..paths.clone()
     };
-    let tally = sentences::tally(&merged_path, &counting, &tally_options, &tally_path)?;
+    let tally = sentences::tally(&index_path, &counting, &tally_options, &tally_path)?;
     next_lap(2);
     let mut output = Output::create(out)?;
     sentences::attach(&merged_path, &[tally_path], &mut output, out)?;

@@ -30,6 +30,7 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use super::counter::hash_bytes;
+use super::index::IndexWriter;
 use super::runs::{put_varint, take_varint, RunInfo, RunMerger, RunReader, PHRASE_KIND, WORD_KIND};
 use super::shard::combined_info;
 use crate::error::{Error, Result};
@@ -88,6 +89,9 @@ pub struct MergeOptions {
     pub memory: u64,
     /// Parent directory for temporary files.
     pub temp_dir: Option<PathBuf>,
+    /// Where to write the phrase index the sentence-level counting step reads
+    /// ([`super::sentences::tally`]); `None` writes none.
+    pub index: Option<PathBuf>,
 }
 
 impl Default for MergeOptions {
@@ -96,6 +100,7 @@ impl Default for MergeOptions {
             discount: Discount::None,
             memory: 2 << 30,
             temp_dir: None,
+            index: None,
         }
     }
 }
@@ -459,12 +464,20 @@ pub fn merge_and_score<W: Write>(
     let mut sorted = by_target.finish()?;
     let mut target: Vec<u8> = Vec::new();
     let mut targets = 0u64;
+    let mut index = match &options.index {
+        Some(_) => Some(IndexWriter::new(&options.temp_dir)?),
+        None => None,
+    };
     let mut tgroup = Group::default(); // phrase = source, "alignment" = the value bytes
     let mut flush_target =
         |target: &[u8], tgroup: &mut Group, by_source: &mut ExternalSorter| -> Result<()> {
             if tgroup.items.is_empty() {
                 return Ok(());
             }
+            let rank = match index.as_mut() {
+                Some(ix) => ix.add_target(target)?,
+                None => targets,
+            };
             targets += 1;
             let total: u64 = tgroup.items.iter().map(|i| i.3).sum();
             let distinct = tgroup.items.len() as u64;
@@ -478,7 +491,7 @@ pub fn merge_and_score<W: Write>(
                 key.push(0);
                 key.extend_from_slice(target);
                 value.clear();
-                for v in [count, source_total, total, source_distinct, distinct] {
+                for v in [count, source_total, total, source_distinct, distinct, rank] {
                     put_varint(&mut value, v);
                 }
                 value.extend_from_slice(rest);
@@ -536,7 +549,8 @@ pub fn merge_and_score<W: Write>(
     let mut target_ids: Vec<Option<u32>> = Vec::new();
     while let Some((k, v)) = sorted.next_record()? {
         let (s, t) = split_zero(k);
-        if row.source.as_bytes() != s || source_ids.is_empty() {
+        let new_source = row.source.as_bytes() != s || source_ids.is_empty();
+        if new_source {
             row.source.clear();
             row.source
                 .push_str(std::str::from_utf8(s).map_err(|_| damaged("not UTF-8"))?);
@@ -551,6 +565,10 @@ pub fn merge_and_score<W: Write>(
         let mut rest = v;
         let mut next = || take_varint(&mut rest).ok_or_else(|| damaged("value"));
         let (count, cs, ct, ns, nt) = (next()?, next()?, next()?, next()?, next()?);
+        let target_rank = next()?;
+        if let Some(ix) = index.as_mut() {
+            ix.add_row(s, new_source, target_rank)?;
+        }
         parse_links(rest, &mut row.alignment)?;
         if row
             .alignment
@@ -567,6 +585,9 @@ pub fn merge_and_score<W: Write>(
         writer.write_pair(&row).map_err(werr)?;
     }
     writer.get_mut().flush().map_err(werr)?;
+    if let (Some(ix), Some(path)) = (index, &options.index) {
+        ix.finish(path, info.corpus.sentence_pairs, info.max_sentence_length)?;
+    }
     Ok(MergeSummary {
         info,
         pairs,
