@@ -359,7 +359,7 @@ impl Group {
 
 /// Merges count runs and writes the scored table (without the sentence-level counts) to `out`
 /// as interchange TSV. See the module documentation for the passes and scores.
-pub fn merge_and_score<W: Write>(
+pub fn merge_and_score<W: Write + Send>(
     runs: &[PathBuf],
     out: W,
     output_name: &Path,
@@ -538,53 +538,55 @@ pub fn merge_and_score<W: Write>(
         CountColumn::CountTarget,
     ];
     let werr = |e| Error::io(output_name, "writing", e);
-    let mut writer = TsvWriter::new(out, &header).map_err(werr)?;
+    let writer = TsvWriter::new(out, &header).map_err(werr)?;
     let mut sorted = by_source.finish()?;
-    let mut row = PhrasePair {
-        scores: vec![0.0; 4],
-        counts: vec![0; 3],
-        ..Default::default()
-    };
-    let mut source_ids: Vec<Option<u32>> = Vec::new();
-    let mut target_ids: Vec<Option<u32>> = Vec::new();
-    while let Some((k, v)) = sorted.next_record()? {
-        let (s, t) = split_zero(k);
-        let new_source = row.source.as_bytes() != s || source_ids.is_empty();
-        if new_source {
-            row.source.clear();
-            row.source
-                .push_str(std::str::from_utf8(s).map_err(|_| damaged("not UTF-8"))?);
-            source_ids.clear();
-            source_ids.extend(row.source.split(' ').map(|w| words.source_id(w.as_bytes())));
-        }
-        row.target.clear();
-        row.target
-            .push_str(std::str::from_utf8(t).map_err(|_| damaged("not UTF-8"))?);
-        target_ids.clear();
-        target_ids.extend(row.target.split(' ').map(|w| words.target_id(w.as_bytes())));
-        let mut rest = v;
-        let mut next = || take_varint(&mut rest).ok_or_else(|| damaged("value"));
-        let (count, cs, ct, ns, nt) = (next()?, next()?, next()?, next()?, next()?);
-        let target_rank = next()?;
-        if let Some(ix) = index.as_mut() {
-            ix.add_row(s, new_source, target_rank)?;
-        }
-        parse_links(rest, &mut row.alignment)?;
-        if row
-            .alignment
-            .iter()
-            .any(|&(i, j)| usize::from(i) >= source_ids.len() || usize::from(j) >= target_ids.len())
-        {
-            return Err(damaged("alignment outside its phrase pair"));
-        }
-        let (p_t_given_s, p_s_given_t) = scorer.probabilities(count, cs, ct, ns, nt);
-        let (lex_t, lex_s) = words.lexical_weights_ids(&source_ids, &target_ids, &row.alignment);
-        row.scores
-            .copy_from_slice(&[p_t_given_s, p_s_given_t, lex_t, lex_s]);
-        row.counts.copy_from_slice(&[count, cs, ct]);
-        writer.write_pair(&row).map_err(werr)?;
-    }
-    writer.get_mut().flush().map_err(werr)?;
+    // Scoring, formatting and compressing the rows run on a second thread, fed batches of raw
+    // records in table order.
+    let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<u8>>(4);
+    let (words, scorer) = (&words, &scorer);
+    std::thread::scope(|scope| -> Result<()> {
+        let worker = scope.spawn(move || write_rows(rx, writer, words, scorer, output_name));
+        let mut batch = Vec::with_capacity(1 << 18);
+        let mut previous_source: Vec<u8> = Vec::new();
+        let mut first = true;
+        let fed = (|| -> Result<()> {
+            while let Some((k, v)) = sorted.next_record()? {
+                let (s, _) = split_zero(k);
+                let new_source = first || s != previous_source.as_slice();
+                if new_source {
+                    previous_source.clear();
+                    previous_source.extend_from_slice(s);
+                    first = false;
+                }
+                if let Some(ix) = index.as_mut() {
+                    let mut rest = v;
+                    for _ in 0..5 {
+                        take_varint(&mut rest).ok_or_else(|| damaged("value"))?;
+                    }
+                    let target_rank = take_varint(&mut rest).ok_or_else(|| damaged("value"))?;
+                    ix.add_row(s, new_source, target_rank)?;
+                }
+                put_varint(&mut batch, k.len() as u64);
+                batch.extend_from_slice(k);
+                put_varint(&mut batch, v.len() as u64);
+                batch.extend_from_slice(v);
+                if batch.len() >= 1 << 18 {
+                    let full = std::mem::replace(&mut batch, Vec::with_capacity(1 << 18));
+                    if tx.send(full).is_err() {
+                        return Ok(()); // the writer failed; its error is reported below
+                    }
+                }
+            }
+            if !batch.is_empty() {
+                let _ = tx.send(batch);
+            }
+            Ok(())
+        })();
+        drop(tx);
+        let written = worker.join().expect("row writer panicked");
+        written?;
+        fed
+    })?;
     if let (Some(ix), Some(path)) = (index, &options.index) {
         ix.finish(path, info.corpus.sentence_pairs, info.max_sentence_length)?;
     }
@@ -594,6 +596,68 @@ pub fn merge_and_score<W: Write>(
         sources,
         targets,
     })
+}
+
+/// Scores and writes the rows arriving in `rx`.
+fn write_rows<W: Write>(
+    rx: std::sync::mpsc::Receiver<Vec<u8>>,
+    mut writer: TsvWriter<W>,
+    words: &WordTable,
+    scorer: &Scorer,
+    output_name: &Path,
+) -> Result<()> {
+    let werr = |e| Error::io(output_name, "writing", e);
+    let mut row = PhrasePair {
+        scores: vec![0.0; 4],
+        counts: vec![0; 3],
+        ..Default::default()
+    };
+    let mut source_ids: Vec<Option<u32>> = Vec::new();
+    let mut target_ids: Vec<Option<u32>> = Vec::new();
+    for batch in rx {
+        let mut records = batch.as_slice();
+        while !records.is_empty() {
+            let mut field = || -> Result<&[u8]> {
+                let len = take_varint(&mut records).ok_or_else(|| damaged("batch"))? as usize;
+                let (f, rest) = records.split_at(len);
+                records = rest;
+                Ok(f)
+            };
+            let (k, v) = (field()?, field()?);
+            let (s, t) = split_zero(k);
+            if row.source.as_bytes() != s || source_ids.is_empty() {
+                row.source.clear();
+                row.source
+                    .push_str(std::str::from_utf8(s).map_err(|_| damaged("not UTF-8"))?);
+                source_ids.clear();
+                source_ids.extend(row.source.split(' ').map(|w| words.source_id(w.as_bytes())));
+            }
+            row.target.clear();
+            row.target
+                .push_str(std::str::from_utf8(t).map_err(|_| damaged("not UTF-8"))?);
+            target_ids.clear();
+            target_ids.extend(row.target.split(' ').map(|w| words.target_id(w.as_bytes())));
+            let mut rest = v;
+            let mut next = || take_varint(&mut rest).ok_or_else(|| damaged("value"));
+            let (count, cs, ct, ns, nt) = (next()?, next()?, next()?, next()?, next()?);
+            let _target_rank = next()?;
+            parse_links(rest, &mut row.alignment)?;
+            if row.alignment.iter().any(|&(i, j)| {
+                usize::from(i) >= source_ids.len() || usize::from(j) >= target_ids.len()
+            }) {
+                return Err(damaged("alignment outside its phrase pair"));
+            }
+            let (p_t_given_s, p_s_given_t) = scorer.probabilities(count, cs, ct, ns, nt);
+            let (lex_t, lex_s) =
+                words.lexical_weights_ids(&source_ids, &target_ids, &row.alignment);
+            row.scores
+                .copy_from_slice(&[p_t_given_s, p_s_given_t, lex_t, lex_s]);
+            row.counts.copy_from_slice(&[count, cs, ct]);
+            writer.write_pair(&row).map_err(werr)?;
+        }
+    }
+    writer.get_mut().flush().map_err(werr)?;
+    Ok(())
 }
 
 fn parse_links(text: &[u8], links: &mut Vec<(u16, u16)>) -> Result<()> {
