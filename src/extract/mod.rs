@@ -7,11 +7,17 @@
 //! 1. **map** ([`shard`]): a shard of the corpus becomes a sorted, compressed count run of
 //!    phrase pairs and word links ([`runs`]);
 //! 2. **reduce** ([`score`]): runs from any number of shards merge into the scored table,
-//!    sorted by source then target;
-//! 3. **map** ([`sentences::tally`]): each shard counts, for every pair of that table, the
-//!    sentence pairs containing its source, its target, and both;
+//!    sorted by source then target, and a phrase index of it ([`index`]);
+//! 3. **map** ([`sentences::tally`]): each shard counts, for every pair of that table (read
+//!    through the index), the sentence pairs containing its source, its target, and both;
 //! 4. **reduce** ([`sentences::attach`]): the tallies are summed and appended as the
 //!    `cooc`, `df_source` and `df_target` columns.
+//!
+//! Memory: the map step's count tables share `--memory` between the threads and spill to runs;
+//! the reduce step's two external sorts take half of it each; the counting step keeps the two
+//! index maps and takes the sources' rows in chunks that fit the rest, one corpus pass per
+//! chunk. Beyond the budget: the word translation table (one entry per distinct word link)
+//! and the options of the one source being scored are held in memory.
 //!
 //! [`extract`] runs the four steps on one machine. Every count is an integer summed by key,
 //! and every score is computed from the summed counts in one thread, so the output is

@@ -1,7 +1,7 @@
 //! The map step: one shard of the corpus into sorted, compressed count runs.
 //!
 //! One thread reads and validates the corpus in batches; worker threads extract phrase pairs
-//! and word links into their own [`CountTable`]s, which spill to a run whenever they reach
+//! and word links into their own count tables, which spill to a run whenever they reach
 //! their share of the memory budget. The counts are integers summed by key, so the merged
 //! result does not depend on how the sentences were split between threads.
 
