@@ -52,6 +52,7 @@ mod counter;
 pub mod index;
 pub mod phrases;
 mod report;
+mod resort;
 pub mod runs;
 pub mod score;
 pub mod sentences;

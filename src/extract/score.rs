@@ -2,8 +2,8 @@
 //!
 //! The merged runs arrive in key order: first the word-link counts, which become the word
 //! translation table in memory, then the phrase-pair counts by source, target and internal
-//! alignment. Three streaming passes follow, each bounded by the memory budget through
-//! [`ExternalSorter`]:
+//! alignment. Three streaming passes follow, joined by two external sorts of the re-keyed
+//! rows that spill past the memory budget:
 //!
 //! 1. in source order: sum the counts of each pair's alignments and keep the most frequent one
 //!    (ties go to the alignment first in byte order), sum `count_source` over each source, and
@@ -31,10 +31,10 @@ use std::path::{Path, PathBuf};
 
 use super::counter::hash_bytes;
 use super::index::IndexWriter;
+use super::resort::Resorter;
 use super::runs::{put_varint, take_varint, RunInfo, RunMerger, RunReader, PHRASE_KIND, WORD_KIND};
 use super::shard::combined_info;
 use crate::error::{Error, Result};
-use crate::sort::ExternalSorter;
 use crate::table::{CountColumn, Header, PhrasePair, TsvWriter};
 
 /// Score columns written by extraction, in order.
@@ -371,11 +371,13 @@ pub fn merge_and_score<W: Write + Send>(
         .collect::<Result<Vec<_>>>()?;
     let info = combined_info(runs, &readers)?;
     let mut merger = RunMerger::new(readers)?;
-    let budget = (options.memory / 2).max(1 << 20) as usize;
+    // Two sorters are alive at once in pass 2, and a sorter's buffers may hold up to twice
+    // what it counts (vectors grow by doubling): a quarter of the budget each.
+    let budget = (options.memory / 4).max(1 << 20) as usize;
 
     // Word table, then pass 1 (source order).
     let mut words = WordTable::default();
-    let mut by_target = ExternalSorter::new(budget, options.temp_dir.clone())?;
+    let mut by_target = Resorter::new(budget, options.temp_dir.clone());
     let mut histogram = vec![0u64; GOOD_TURING_MAX_COUNT as usize + 2];
     let mut source: Vec<u8> = Vec::new();
     let mut pair_target: Vec<u8> = Vec::new();
@@ -388,7 +390,7 @@ pub fn merge_and_score<W: Write + Send>(
     let mut key = Vec::new();
 
     let mut flush_source =
-        |source: &[u8], group: &mut Group, by_target: &mut ExternalSorter| -> Result<()> {
+        |source: &[u8], group: &mut Group, by_target: &mut Resorter| -> Result<()> {
             if group.items.is_empty() {
                 return Ok(());
             }
@@ -460,7 +462,7 @@ pub fn merge_and_score<W: Write + Send>(
     drop(merger);
 
     // Pass 2 (target order): count_target and distinct sources per target.
-    let mut by_source = ExternalSorter::new(budget, options.temp_dir.clone())?;
+    let mut by_source = Resorter::new(budget, options.temp_dir.clone());
     let mut sorted = by_target.finish()?;
     let mut target: Vec<u8> = Vec::new();
     let mut targets = 0u64;
@@ -470,7 +472,7 @@ pub fn merge_and_score<W: Write + Send>(
     };
     let mut tgroup = Group::default(); // phrase = source, "alignment" = the value bytes
     let mut flush_target =
-        |target: &[u8], tgroup: &mut Group, by_source: &mut ExternalSorter| -> Result<()> {
+        |target: &[u8], tgroup: &mut Group, by_source: &mut Resorter| -> Result<()> {
             if tgroup.items.is_empty() {
                 return Ok(());
             }
@@ -500,8 +502,9 @@ pub fn merge_and_score<W: Write + Send>(
             tgroup.clear();
             Ok(())
         };
-    while let Some((k, v)) = sorted.next_record()? {
-        let (t, s) = split_zero(k);
+    while let Some(record) = sorted.next_record()? {
+        let (t, rest) = split_zero(record);
+        let (s, v) = split_zero(rest);
         if t != target.as_slice() {
             flush_target(&target, &mut tgroup, &mut by_source)?;
             target.clear();
@@ -550,8 +553,10 @@ pub fn merge_and_score<W: Write + Send>(
         let mut previous_source: Vec<u8> = Vec::new();
         let mut first = true;
         let fed = (|| -> Result<()> {
-            while let Some((k, v)) = sorted.next_record()? {
-                let (s, _) = split_zero(k);
+            while let Some(record) = sorted.next_record()? {
+                let (s, rest) = split_zero(record);
+                let (t, v) = split_zero(rest);
+                let k = &record[..s.len() + 1 + t.len()];
                 let new_source = first || s != previous_source.as_slice();
                 if new_source {
                     previous_source.clear();

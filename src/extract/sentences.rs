@@ -471,6 +471,14 @@ pub fn tally(
     options: &TallyOptions,
     out: &Path,
 ) -> Result<TallyInfo> {
+    for (flag, path) in [("--source", &corpus.source), ("--target", &corpus.target)] {
+        if path.as_os_str() == files::STDIO {
+            return Err(Error::invalid(
+                flag,
+                "the corpus may be read once per chunk of the index: give a file, not -",
+            ));
+        }
+    }
     let mut index = IndexReader::open(index)?;
     let max_sentence_length = options
         .max_sentence_length
@@ -487,7 +495,8 @@ pub fn tally(
     let fixed = index.targets.as_fst().size()
         + index.sources.as_fst().size()
         + index.info.targets as usize * 4;
-    let chunk_budget = (options.memory as usize).saturating_sub(fixed).max(1 << 16);
+    // Half of what is left: the chunk's vectors grow by doubling.
+    let chunk_budget = ((options.memory as usize).saturating_sub(fixed) / 2).max(1 << 16);
     let dir = match out.parent() {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
