@@ -452,8 +452,18 @@ fn output_is_identical_across_threads_budgets_and_shards() {
         ("three.tsv", vec!["--threads", "3", "--memory", "1M"]),
     ] {
         let out = dir.path().join(name);
-        run_extract(&paths, &out, &[&["-q"][..], &extra].concat());
+        let o = run_extract(&paths, &out, &extra);
         assert!(std::fs::read(&out).unwrap() == expected, "{name} differs");
+        if name == "three.tsv" {
+            // The 1M budget must really have split the sentence-level counting into chunks.
+            let stderr = String::from_utf8_lossy(&o.stderr);
+            let passes: u64 = stderr
+                .split("; ")
+                .find_map(|part| part.strip_suffix(" counting pass(es)"))
+                .and_then(|n| n.parse().ok())
+                .expect("summary names the counting passes");
+            assert!(passes > 1, "{stderr}");
+        }
     }
     // Map/reduce by hand: split the corpus into three shards.
     let read = |p: &Path| std::fs::read_to_string(p).unwrap();
@@ -492,11 +502,14 @@ fn output_is_identical_across_threads_budgets_and_shards() {
         shards.push((s, t));
     }
     let merged = dir.path().join("merged.tsv.zst");
+    let index = dir.path().join("merged.index");
     let o = baler()
         .args(["extract", "merge", "-q"])
         .args(&runs)
         .arg("-o")
         .arg(&merged)
+        .arg("--index")
+        .arg(&index)
         .output()
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
@@ -504,8 +517,8 @@ fn output_is_identical_across_threads_budgets_and_shards() {
     for (k, (s, t)) in shards.iter().enumerate() {
         let tally = dir.path().join(format!("shard{k}.tally"));
         let o = baler()
-            .args(["extract", "tally", "-q", "--table"])
-            .arg(&merged)
+            .args(["extract", "tally", "-q", "--index"])
+            .arg(&index)
             .arg("--source")
             .arg(s)
             .arg("--target")

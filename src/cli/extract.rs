@@ -69,20 +69,23 @@ enum Step {
         /// The merged table (.tsv, .tsv.zst, .tsv.gz, or -).
         #[arg(short = 'o', long = "output", value_name = "TABLE")]
         output: PathBuf,
+        /// Also write the phrase index that `baler extract tally` reads.
+        #[arg(long, value_name = "INDEX")]
+        index: Option<PathBuf>,
     },
     /// Map: count in one corpus shard the sentence pairs containing each pair's source, target
     /// and both.
     Tally {
-        /// The merged table written by `baler extract merge`.
-        #[arg(long, value_name = "TABLE")]
-        table: PathBuf,
+        /// The phrase index written by `baler extract merge --index`.
+        #[arg(long, value_name = "INDEX")]
+        index: PathBuf,
         /// Source side of the shard, one tokenized sentence per line.
         #[arg(long, value_name = "SRC")]
         source: PathBuf,
         /// Target side of the shard.
         #[arg(long, value_name = "TGT")]
         target: PathBuf,
-        /// Skip sentence pairs longer than this (default: the table's max_sentence_length).
+        /// Skip sentence pairs longer than this (default: the extraction's, from the index).
         #[arg(long, value_name = "N")]
         max_sentence_length: Option<usize>,
         #[command(flatten)]
@@ -312,11 +315,13 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             scoring,
             resources,
             output,
+            index,
         }) => {
             let options = MergeOptions {
                 discount: scoring.discount.discount(),
                 memory: resources.memory,
                 temp_dir: resources.temp_dir.clone(),
+                index,
             };
             let mut out = Output::create(&output)?;
             let s = baler::extract::score::merge_and_score(&runs, &mut out, &output, &options)?;
@@ -336,7 +341,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             );
         }
         Some(Step::Tally {
-            table,
+            index,
             source,
             target,
             max_sentence_length,
@@ -355,7 +360,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
                 target,
                 alignment: None,
             };
-            let info = baler::extract::sentences::tally(&table, &corpus, &options, &output)?;
+            let info = baler::extract::sentences::tally(&index, &corpus, &options, &output)?;
             say(
                 resources.quiet,
                 format!(

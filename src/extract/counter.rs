@@ -44,15 +44,36 @@ pub(crate) fn hash_bytes(bytes: &[u8]) -> u64 {
 }
 
 impl CountTable {
+    #[cfg(test)]
     pub(crate) fn new() -> CountTable {
+        CountTable::with_budget(1 << 20)
+    }
+
+    /// A table that stays within about `budget` bytes: the arena and the entries are
+    /// allocated once (half and an eighth of the budget; untouched pages cost nothing) and
+    /// never grow past that, and the slots (at most two per entry, rounded up to a power of
+    /// two) take at most a quarter. Call [`CountTable::nearly_full`] between sentences.
+    pub(crate) fn with_budget(budget: usize) -> CountTable {
+        let arena = (budget / 2).min(u32::MAX as usize - (1 << 24)).max(1 << 16);
+        let entries = (budget / 8 / ENTRY_BYTES).max(1 << 10);
         CountTable {
-            arena: Vec::new(),
-            entries: Vec::new(),
+            arena: Vec::with_capacity(arena),
+            entries: Vec::with_capacity(entries),
             slots: vec![0; 1 << 12],
         }
     }
 
-    /// Bytes held.
+    /// True when the next sentence pair's keys might not fit in the reserved space: time to
+    /// spill. (A sentence pair larger than the margin still fits, by reallocating.)
+    pub(crate) fn nearly_full(&self) -> bool {
+        let arena_margin = (self.arena.capacity() / 8).min(1 << 20);
+        let entry_margin = (self.entries.capacity() / 8).min(1 << 14);
+        self.arena.len() + arena_margin > self.arena.capacity()
+            || self.entries.len() + entry_margin > self.entries.capacity()
+    }
+
+    /// Bytes reserved.
+    #[cfg(test)]
     pub(crate) fn memory_used(&self) -> usize {
         self.arena.capacity() + self.entries.capacity() * ENTRY_BYTES + self.slots.len() * 8
     }
@@ -125,9 +146,10 @@ impl CountTable {
             writer.push(key(e), e.count)?;
         }
         let n = writer.finish()?;
-        self.arena = Vec::new();
-        self.entries = Vec::new();
-        self.slots = vec![0; 1 << 12];
+        // Keep the allocations for the next round.
+        self.arena.clear();
+        self.entries.clear();
+        self.slots.iter_mut().for_each(|s| *s = 0);
         Ok(n)
     }
 }
@@ -149,6 +171,7 @@ mod tests {
         let path = dir.path().join("r");
         assert_eq!(table.spill(&path, &RunInfo::default()).unwrap(), 10_000);
         assert!(table.is_empty());
+        assert!(table.memory_used() < 4 << 20);
         let mut reader = RunReader::open(&path).unwrap();
         let mut keys = Vec::new();
         while reader.advance().unwrap() {

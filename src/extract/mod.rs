@@ -7,11 +7,17 @@
 //! 1. **map** ([`shard`]): a shard of the corpus becomes a sorted, compressed count run of
 //!    phrase pairs and word links ([`runs`]);
 //! 2. **reduce** ([`score`]): runs from any number of shards merge into the scored table,
-//!    sorted by source then target;
-//! 3. **map** ([`sentences::tally`]): each shard counts, for every pair of that table, the
-//!    sentence pairs containing its source, its target, and both;
+//!    sorted by source then target, and a phrase index of it ([`index`]);
+//! 3. **map** ([`sentences::tally`]): each shard counts, for every pair of that table (read
+//!    through the index), the sentence pairs containing its source, its target, and both;
 //! 4. **reduce** ([`sentences::attach`]): the tallies are summed and appended as the
 //!    `cooc`, `df_source` and `df_target` columns.
+//!
+//! Memory: the map step's count tables share `--memory` between the threads and spill to runs;
+//! the reduce step's two external sorts take half of it each; the counting step keeps the two
+//! index maps and takes the sources' rows in chunks that fit the rest, one corpus pass per
+//! chunk. Beyond the budget: the word translation table (one entry per distinct word link)
+//! and the options of the one source being scored are held in memory.
 //!
 //! [`extract`] runs the four steps on one machine. Every count is an integer summed by key,
 //! and every score is computed from the summed counts in one thread, so the output is
@@ -43,8 +49,10 @@
 
 pub mod corpus;
 mod counter;
+pub mod index;
 pub mod phrases;
 mod report;
+mod resort;
 pub mod runs;
 pub mod score;
 pub mod sentences;
@@ -112,6 +120,7 @@ pub fn extract(
     }
     let work = shard::temp_dir(&options.shard.temp_dir, "baler-extract-work-")?;
     let merged_path = work.path().join("merged.tsv.zst");
+    let index_path = work.path().join("merged.index");
     let mut steps = [0.0; 4];
     let mut lap = Instant::now();
     let mut next_lap = |k: usize| {
@@ -126,14 +135,21 @@ pub fn extract(
         sources,
         targets,
     } = {
-        let mut merged = Output::create(&merged_path)?;
         let merge = MergeOptions {
             discount: options.discount,
             memory: options.shard.memory,
             temp_dir: Some(work.path().to_path_buf()),
+            index: Some(index_path.clone()),
         };
+        // A temporary file: fast compression, no sync to disk.
+        let werr = |e| crate::Error::io(&merged_path, "writing", e);
+        let file = std::fs::File::create(&merged_path).map_err(werr)?;
+        let mut merged =
+            zstd::stream::write::Encoder::new(std::io::BufWriter::with_capacity(1 << 20, file), 1)
+                .map_err(werr)?;
         let summary = score::merge_and_score(&runs.runs, &mut merged, &merged_path, &merge)?;
-        merged.commit()?;
+        let mut file = merged.finish().map_err(werr)?;
+        std::io::Write::flush(&mut file).map_err(werr)?;
         summary
     };
     drop(runs);
@@ -150,7 +166,7 @@ pub fn extract(
         alignment: None,
         ..paths.clone()
     };
-    let tally = sentences::tally(&merged_path, &counting, &tally_options, &tally_path)?;
+    let tally = sentences::tally(&index_path, &counting, &tally_options, &tally_path)?;
     next_lap(2);
     let mut output = Output::create(out)?;
     sentences::attach(&merged_path, &[tally_path], &mut output, out)?;

@@ -2,8 +2,8 @@
 //!
 //! The merged runs arrive in key order: first the word-link counts, which become the word
 //! translation table in memory, then the phrase-pair counts by source, target and internal
-//! alignment. Three streaming passes follow, each bounded by the memory budget through
-//! [`ExternalSorter`]:
+//! alignment. Three streaming passes follow, joined by two external sorts of the re-keyed
+//! rows that spill past the memory budget:
 //!
 //! 1. in source order: sum the counts of each pair's alignments and keep the most frequent one
 //!    (ties go to the alignment first in byte order), sum `count_source` over each source, and
@@ -30,10 +30,11 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use super::counter::hash_bytes;
+use super::index::IndexWriter;
+use super::resort::Resorter;
 use super::runs::{put_varint, take_varint, RunInfo, RunMerger, RunReader, PHRASE_KIND, WORD_KIND};
 use super::shard::combined_info;
 use crate::error::{Error, Result};
-use crate::sort::ExternalSorter;
 use crate::table::{CountColumn, Header, PhrasePair, TsvWriter};
 
 /// Score columns written by extraction, in order.
@@ -88,6 +89,9 @@ pub struct MergeOptions {
     pub memory: u64,
     /// Parent directory for temporary files.
     pub temp_dir: Option<PathBuf>,
+    /// Where to write the phrase index the sentence-level counting step reads
+    /// ([`super::sentences::tally`]); `None` writes none.
+    pub index: Option<PathBuf>,
 }
 
 impl Default for MergeOptions {
@@ -96,6 +100,7 @@ impl Default for MergeOptions {
             discount: Discount::None,
             memory: 2 << 30,
             temp_dir: None,
+            index: None,
         }
     }
 }
@@ -354,7 +359,7 @@ impl Group {
 
 /// Merges count runs and writes the scored table (without the sentence-level counts) to `out`
 /// as interchange TSV. See the module documentation for the passes and scores.
-pub fn merge_and_score<W: Write>(
+pub fn merge_and_score<W: Write + Send>(
     runs: &[PathBuf],
     out: W,
     output_name: &Path,
@@ -366,11 +371,13 @@ pub fn merge_and_score<W: Write>(
         .collect::<Result<Vec<_>>>()?;
     let info = combined_info(runs, &readers)?;
     let mut merger = RunMerger::new(readers)?;
-    let budget = (options.memory / 2).max(1 << 20) as usize;
+    // Two sorters are alive at once in pass 2, and a sorter's buffers may hold up to twice
+    // what it counts (vectors grow by doubling): a quarter of the budget each.
+    let budget = (options.memory / 4).max(1 << 20) as usize;
 
     // Word table, then pass 1 (source order).
     let mut words = WordTable::default();
-    let mut by_target = ExternalSorter::new(budget, options.temp_dir.clone())?;
+    let mut by_target = Resorter::new(budget, options.temp_dir.clone());
     let mut histogram = vec![0u64; GOOD_TURING_MAX_COUNT as usize + 2];
     let mut source: Vec<u8> = Vec::new();
     let mut pair_target: Vec<u8> = Vec::new();
@@ -383,7 +390,7 @@ pub fn merge_and_score<W: Write>(
     let mut key = Vec::new();
 
     let mut flush_source =
-        |source: &[u8], group: &mut Group, by_target: &mut ExternalSorter| -> Result<()> {
+        |source: &[u8], group: &mut Group, by_target: &mut Resorter| -> Result<()> {
             if group.items.is_empty() {
                 return Ok(());
             }
@@ -455,16 +462,24 @@ pub fn merge_and_score<W: Write>(
     drop(merger);
 
     // Pass 2 (target order): count_target and distinct sources per target.
-    let mut by_source = ExternalSorter::new(budget, options.temp_dir.clone())?;
+    let mut by_source = Resorter::new(budget, options.temp_dir.clone());
     let mut sorted = by_target.finish()?;
     let mut target: Vec<u8> = Vec::new();
     let mut targets = 0u64;
+    let mut index = match &options.index {
+        Some(_) => Some(IndexWriter::new(&options.temp_dir)?),
+        None => None,
+    };
     let mut tgroup = Group::default(); // phrase = source, "alignment" = the value bytes
     let mut flush_target =
-        |target: &[u8], tgroup: &mut Group, by_source: &mut ExternalSorter| -> Result<()> {
+        |target: &[u8], tgroup: &mut Group, by_source: &mut Resorter| -> Result<()> {
             if tgroup.items.is_empty() {
                 return Ok(());
             }
+            let rank = match index.as_mut() {
+                Some(ix) => ix.add_target(target)?,
+                None => targets,
+            };
             targets += 1;
             let total: u64 = tgroup.items.iter().map(|i| i.3).sum();
             let distinct = tgroup.items.len() as u64;
@@ -478,7 +493,7 @@ pub fn merge_and_score<W: Write>(
                 key.push(0);
                 key.extend_from_slice(target);
                 value.clear();
-                for v in [count, source_total, total, source_distinct, distinct] {
+                for v in [count, source_total, total, source_distinct, distinct, rank] {
                     put_varint(&mut value, v);
                 }
                 value.extend_from_slice(rest);
@@ -487,8 +502,9 @@ pub fn merge_and_score<W: Write>(
             tgroup.clear();
             Ok(())
         };
-    while let Some((k, v)) = sorted.next_record()? {
-        let (t, s) = split_zero(k);
+    while let Some(record) = sorted.next_record()? {
+        let (t, rest) = split_zero(record);
+        let (s, v) = split_zero(rest);
         if t != target.as_slice() {
             flush_target(&target, &mut tgroup, &mut by_source)?;
             target.clear();
@@ -525,8 +541,77 @@ pub fn merge_and_score<W: Write>(
         CountColumn::CountTarget,
     ];
     let werr = |e| Error::io(output_name, "writing", e);
-    let mut writer = TsvWriter::new(out, &header).map_err(werr)?;
+    let writer = TsvWriter::new(out, &header).map_err(werr)?;
     let mut sorted = by_source.finish()?;
+    // Scoring, formatting and compressing the rows run on a second thread, fed batches of raw
+    // records in table order.
+    let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<u8>>(4);
+    let (words, scorer) = (&words, &scorer);
+    std::thread::scope(|scope| -> Result<()> {
+        let worker = scope.spawn(move || write_rows(rx, writer, words, scorer, output_name));
+        let mut batch = Vec::with_capacity(1 << 18);
+        let mut previous_source: Vec<u8> = Vec::new();
+        let mut first = true;
+        let fed = (|| -> Result<()> {
+            while let Some(record) = sorted.next_record()? {
+                let (s, rest) = split_zero(record);
+                let (t, v) = split_zero(rest);
+                let k = &record[..s.len() + 1 + t.len()];
+                let new_source = first || s != previous_source.as_slice();
+                if new_source {
+                    previous_source.clear();
+                    previous_source.extend_from_slice(s);
+                    first = false;
+                }
+                if let Some(ix) = index.as_mut() {
+                    let mut rest = v;
+                    for _ in 0..5 {
+                        take_varint(&mut rest).ok_or_else(|| damaged("value"))?;
+                    }
+                    let target_rank = take_varint(&mut rest).ok_or_else(|| damaged("value"))?;
+                    ix.add_row(s, new_source, target_rank)?;
+                }
+                put_varint(&mut batch, k.len() as u64);
+                batch.extend_from_slice(k);
+                put_varint(&mut batch, v.len() as u64);
+                batch.extend_from_slice(v);
+                if batch.len() >= 1 << 18 {
+                    let full = std::mem::replace(&mut batch, Vec::with_capacity(1 << 18));
+                    if tx.send(full).is_err() {
+                        return Ok(()); // the writer failed; its error is reported below
+                    }
+                }
+            }
+            if !batch.is_empty() {
+                let _ = tx.send(batch);
+            }
+            Ok(())
+        })();
+        drop(tx);
+        let written = worker.join().expect("row writer panicked");
+        written?;
+        fed
+    })?;
+    if let (Some(ix), Some(path)) = (index, &options.index) {
+        ix.finish(path, info.corpus.sentence_pairs, info.max_sentence_length)?;
+    }
+    Ok(MergeSummary {
+        info,
+        pairs,
+        sources,
+        targets,
+    })
+}
+
+/// Scores and writes the rows arriving in `rx`.
+fn write_rows<W: Write>(
+    rx: std::sync::mpsc::Receiver<Vec<u8>>,
+    mut writer: TsvWriter<W>,
+    words: &WordTable,
+    scorer: &Scorer,
+    output_name: &Path,
+) -> Result<()> {
+    let werr = |e| Error::io(output_name, "writing", e);
     let mut row = PhrasePair {
         scores: vec![0.0; 4],
         counts: vec![0; 3],
@@ -534,45 +619,50 @@ pub fn merge_and_score<W: Write>(
     };
     let mut source_ids: Vec<Option<u32>> = Vec::new();
     let mut target_ids: Vec<Option<u32>> = Vec::new();
-    while let Some((k, v)) = sorted.next_record()? {
-        let (s, t) = split_zero(k);
-        if row.source.as_bytes() != s || source_ids.is_empty() {
-            row.source.clear();
-            row.source
-                .push_str(std::str::from_utf8(s).map_err(|_| damaged("not UTF-8"))?);
-            source_ids.clear();
-            source_ids.extend(row.source.split(' ').map(|w| words.source_id(w.as_bytes())));
+    for batch in rx {
+        let mut records = batch.as_slice();
+        while !records.is_empty() {
+            let mut field = || -> Result<&[u8]> {
+                let len = take_varint(&mut records).ok_or_else(|| damaged("batch"))? as usize;
+                let (f, rest) = records.split_at(len);
+                records = rest;
+                Ok(f)
+            };
+            let (k, v) = (field()?, field()?);
+            let (s, t) = split_zero(k);
+            if row.source.as_bytes() != s || source_ids.is_empty() {
+                row.source.clear();
+                row.source
+                    .push_str(std::str::from_utf8(s).map_err(|_| damaged("not UTF-8"))?);
+                source_ids.clear();
+                source_ids.extend(row.source.split(' ').map(|w| words.source_id(w.as_bytes())));
+            }
+            row.target.clear();
+            row.target
+                .push_str(std::str::from_utf8(t).map_err(|_| damaged("not UTF-8"))?);
+            target_ids.clear();
+            target_ids.extend(row.target.split(' ').map(|w| words.target_id(w.as_bytes())));
+            let mut rest = v;
+            let mut next = || take_varint(&mut rest).ok_or_else(|| damaged("value"));
+            let (count, cs, ct, ns, nt) = (next()?, next()?, next()?, next()?, next()?);
+            let _target_rank = next()?;
+            parse_links(rest, &mut row.alignment)?;
+            if row.alignment.iter().any(|&(i, j)| {
+                usize::from(i) >= source_ids.len() || usize::from(j) >= target_ids.len()
+            }) {
+                return Err(damaged("alignment outside its phrase pair"));
+            }
+            let (p_t_given_s, p_s_given_t) = scorer.probabilities(count, cs, ct, ns, nt);
+            let (lex_t, lex_s) =
+                words.lexical_weights_ids(&source_ids, &target_ids, &row.alignment);
+            row.scores
+                .copy_from_slice(&[p_t_given_s, p_s_given_t, lex_t, lex_s]);
+            row.counts.copy_from_slice(&[count, cs, ct]);
+            writer.write_pair(&row).map_err(werr)?;
         }
-        row.target.clear();
-        row.target
-            .push_str(std::str::from_utf8(t).map_err(|_| damaged("not UTF-8"))?);
-        target_ids.clear();
-        target_ids.extend(row.target.split(' ').map(|w| words.target_id(w.as_bytes())));
-        let mut rest = v;
-        let mut next = || take_varint(&mut rest).ok_or_else(|| damaged("value"));
-        let (count, cs, ct, ns, nt) = (next()?, next()?, next()?, next()?, next()?);
-        parse_links(rest, &mut row.alignment)?;
-        if row
-            .alignment
-            .iter()
-            .any(|&(i, j)| usize::from(i) >= source_ids.len() || usize::from(j) >= target_ids.len())
-        {
-            return Err(damaged("alignment outside its phrase pair"));
-        }
-        let (p_t_given_s, p_s_given_t) = scorer.probabilities(count, cs, ct, ns, nt);
-        let (lex_t, lex_s) = words.lexical_weights_ids(&source_ids, &target_ids, &row.alignment);
-        row.scores
-            .copy_from_slice(&[p_t_given_s, p_s_given_t, lex_t, lex_s]);
-        row.counts.copy_from_slice(&[count, cs, ct]);
-        writer.write_pair(&row).map_err(werr)?;
     }
     writer.get_mut().flush().map_err(werr)?;
-    Ok(MergeSummary {
-        info,
-        pairs,
-        sources,
-        targets,
-    })
+    Ok(())
 }
 
 fn parse_links(text: &[u8], links: &mut Vec<(u16, u16)>) -> Result<()> {

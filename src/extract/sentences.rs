@@ -7,8 +7,9 @@
 //! each sentence pair counted once. [`attach`] sums the tallies of any number of shards and
 //! appends them to the table as columns.
 //!
-//! How: the table's distinct targets go into an `fst` map (target → rank), its sources into
-//! another, and each source's targets into a sorted list of ranks. For every sentence pair
+//! How: the reduce step writes a phrase index ([`super::index`]) beside the table: an `fst`
+//! map of the distinct targets (target → rank), another of the sources, and each source's
+//! targets as a sorted list of ranks. For every sentence pair
 //! and every start position, the source tokens are walked through the source map until no
 //! extracted source has that prefix (so the walk stops early), collecting the extracted sources
 //! present; likewise the targets. Each source's `cooc` counts are then the intersection of its
@@ -27,14 +28,13 @@ use std::sync::atomic::{AtomicU32, Ordering};
 use std::sync::{mpsc, Mutex};
 
 use fst::raw::{Fst, Output};
-use fst::{Map, MapBuilder};
 
 use super::corpus::{CorpusOptions, CorpusPaths, CorpusReader, CorpusStats, SentencePair};
+use super::index::IndexReader;
 use super::report::Progress;
 use super::runs::{put_varint, read_varint};
 use crate::error::{Error, Result};
 use crate::files;
-use crate::sort::ExternalSorter;
 
 const MAGIC: &[u8; 8] = b"BALERTLY";
 const VERSION: u32 = 1;
@@ -54,9 +54,8 @@ pub struct TallyInfo {
 /// Settings of [`tally`].
 #[derive(Clone, Debug)]
 pub struct TallyOptions {
-    /// Longest sentence kept; `None` takes the table's `max_sentence_length` metadata, which
-    /// must then be present (it must match the extraction so that the same sentence pairs are
-    /// counted).
+    /// Longest sentence kept; `None` takes the extraction's value recorded in the index (they
+    /// must match so that the same sentence pairs are counted).
     pub max_sentence_length: Option<usize>,
     /// Memory budget in bytes for the index.
     pub memory: u64,
@@ -91,6 +90,7 @@ struct TableLines {
     line_no: u64,
     line: String,
     previous: Vec<u8>,
+    scratch: Vec<u8>,
 }
 
 impl TableLines {
@@ -132,6 +132,7 @@ impl TableLines {
             line_no,
             line: String::new(),
             previous: Vec::new(),
+            scratch: Vec::new(),
         })
     }
 
@@ -152,19 +153,20 @@ impl TableLines {
             if self.line.is_empty() {
                 continue;
             }
+            let mut key = std::mem::take(&mut self.scratch);
             let (s, t) = self.fields()?;
-            let mut key = Vec::with_capacity(s.len() + t.len() + 1);
+            key.clear();
             key.extend_from_slice(s.as_bytes());
             key.push(0);
             key.extend_from_slice(t.as_bytes());
-            if self.line_no > 1 && !self.previous.is_empty() && key <= self.previous {
+            if !self.previous.is_empty() && key <= self.previous {
                 return Err(Error::input(
                     &self.name,
                     self.line_no,
                     "rows must be sorted by source, then target, without repeats",
                 ));
             }
-            self.previous = key;
+            self.scratch = std::mem::replace(&mut self.previous, key);
             return Ok(true);
         }
     }
@@ -191,42 +193,11 @@ impl TableLines {
     }
 }
 
-fn fst_error(e: fst::Error) -> Error {
-    Error::Unsupported(format!("building the phrase index: {e}"))
-}
-
-/// Every distinct target of the table, as an fst map to its rank in byte order.
-fn target_index(
-    table: &Path,
-    budget: usize,
-    temp: &Option<PathBuf>,
-) -> Result<(Map<Vec<u8>>, u64)> {
-    let mut lines = TableLines::open(table)?;
-    let mut sorter = ExternalSorter::new(budget, temp.clone())?;
-    let mut rows = 0u64;
-    while lines.next_row()? {
-        rows += 1;
-        sorter.push(lines.fields()?.1.as_bytes(), &[])?;
-    }
-    let mut sorted = sorter.finish()?;
-    let mut builder = MapBuilder::memory();
-    let mut last: Option<Vec<u8>> = None;
-    let mut rank = 0u64;
-    while let Some((k, _)) = sorted.next_record()? {
-        if last.as_deref() != Some(k) {
-            builder.insert(k, rank).map_err(fst_error)?;
-            rank += 1;
-            last = Some(k.to_vec());
-        }
-    }
-    let map = builder.into_map();
-    Ok((map, rows))
-}
-
 /// The sources of one chunk of the table, with their targets' ranks.
 struct Chunk {
-    sources: Map<Vec<u8>>,
-    // offsets[k]..offsets[k+1]: the rows of local source k within the chunk.
+    // Sources first_source.. have local numbers 0..; offsets[k]..offsets[k+1] are the rows of
+    // local source k within the chunk.
+    first_source: u64,
     offsets: Vec<u64>,
     targets: Vec<u32>,
     first_row: u64,
@@ -281,6 +252,7 @@ fn zeros(n: usize) -> Vec<AtomicU32> {
 fn count_sentence(
     pair: &SentencePair,
     targets: &Fst<Vec<u8>>,
+    sources: &Fst<Vec<u8>>,
     chunk: &Chunk,
     counters: &Counters,
     s_found: &mut Vec<u32>,
@@ -297,14 +269,14 @@ fn count_sentence(
     }
     s_found.clear();
     for i in 0..pair.source_len() {
-        walk(
-            chunk.sources.as_fst(),
-            &pair.source,
-            &pair.source_starts,
-            i,
-            s_found,
-        );
+        walk(sources, &pair.source, &pair.source_starts, i, s_found);
     }
+    let (first, n) = (chunk.first_source, chunk.offsets.len() as u64 - 1);
+    s_found.retain_mut(|s| {
+        let local = u64::from(*s).wrapping_sub(first);
+        *s = local as u32;
+        local < n
+    });
     s_found.sort_unstable();
     s_found.dedup();
     for &s in s_found.iter() {
@@ -333,6 +305,7 @@ fn count_chunk(
     corpus: &CorpusPaths,
     corpus_options: CorpusOptions,
     targets: &Fst<Vec<u8>>,
+    sources: &Fst<Vec<u8>>,
     chunk: &Chunk,
     options: &TallyOptions,
     label: &str,
@@ -355,7 +328,15 @@ fn count_chunk(
                 let (mut s_found, mut t_found) = (Vec::new(), Vec::new());
                 while let Ok(batch) = rx.lock().unwrap().recv() {
                     for pair in &batch {
-                        count_sentence(pair, targets, chunk, counters, &mut s_found, &mut t_found);
+                        count_sentence(
+                            pair,
+                            targets,
+                            sources,
+                            chunk,
+                            counters,
+                            &mut s_found,
+                            &mut t_found,
+                        );
                     }
                 }
             });
@@ -449,55 +430,59 @@ impl TallyWriter {
     }
 }
 
-/// Counts, for every row of `table`, the sentence pairs of the corpus shard at `corpus` that
-/// contain its source, its target, and both; writes the tally to `out` (under a temporary
+/// Counts, for every row of the table whose phrase `index` the reduce step wrote
+/// ([`super::score::MergeOptions::index`]), the sentence pairs of the corpus shard at `corpus`
+/// that contain its source, its target, and both; writes the tally to `out` (under a temporary
 /// name, renamed into place).
 ///
 /// # Examples
 /// ```
 /// use baler::extract::corpus::CorpusPaths;
 /// use baler::extract::sentences::{attach, tally, TallyOptions};
+/// use baler::extract::shard::{extract_shard, ShardOptions};
+/// use baler::extract::score::{merge_and_score, MergeOptions};
 /// let dir = tempfile::tempdir().unwrap();
 /// let write = |name: &str, text: &str| {
 ///     let p = dir.path().join(name);
 ///     std::fs::write(&p, text).unwrap();
 ///     p
 /// };
-/// let table = write("t.tsv", "# sentence_pairs=2\n# max_sentence_length=100\nsource\ttarget\nel\tthe\nmuelle\tpier\n");
 /// let corpus = CorpusPaths {
 ///     source: write("s", "el muelle\nel barco\n"),
 ///     target: write("e", "the pier\nthe boat\n"),
-///     alignment: None,
+///     alignment: Some(write("a", "0-0 1-1\n0-0 1-1\n")),
 /// };
+/// let run = dir.path().join("shard0.run");
+/// extract_shard(&corpus, &ShardOptions::default(), &run).unwrap();
+/// let (table, index) = (dir.path().join("merged.tsv"), dir.path().join("merged.index"));
+/// let options = MergeOptions { index: Some(index.clone()), ..Default::default() };
+/// merge_and_score(&[run], std::fs::File::create(&table).unwrap(), &table, &options).unwrap();
 /// let counts = dir.path().join("shard0.tally");
-/// tally(&table, &corpus, &TallyOptions::default(), &counts).unwrap();
+/// tally(&index, &corpus, &TallyOptions::default(), &counts).unwrap();
 /// let mut out = Vec::new();
 /// attach(&table, &[counts], &mut out, std::path::Path::new("-")).unwrap();
 /// let text = String::from_utf8(out).unwrap();
-/// assert!(text.ends_with("source\ttarget\tcooc\tdf_source\tdf_target\nel\tthe\t2\t2\t2\nmuelle\tpier\t1\t1\t1\n"));
+/// // "el" / "the": in both sentence pairs on both sides.
+/// assert!(text.contains("\nel\tthe\t0-0\t1\t1\t1\t1\t2\t2\t2\t2\t2\t2\n"));
 /// ```
 pub fn tally(
-    table: &Path,
+    index: &Path,
     corpus: &CorpusPaths,
     options: &TallyOptions,
     out: &Path,
 ) -> Result<TallyInfo> {
-    let lines = TableLines::open(table)?;
-    let max_sentence_length = match options.max_sentence_length {
-        Some(n) => n,
-        None => lines
-            .metadata_value("max_sentence_length")
-            .and_then(|v| v.parse().ok())
-            .ok_or_else(|| {
-                Error::invalid(
-                    "--max-sentence-length",
-                    format!(
-                        "{} has no `# max_sentence_length=N` metadata; give the value used for extraction",
-                        table.display()
-                    ),
-                )
-            })?,
-    };
+    for (flag, path) in [("--source", &corpus.source), ("--target", &corpus.target)] {
+        if path.as_os_str() == files::STDIO {
+            return Err(Error::invalid(
+                flag,
+                "the corpus may be read once per chunk of the index: give a file, not -",
+            ));
+        }
+    }
+    let mut index = IndexReader::open(index)?;
+    let max_sentence_length = options
+        .max_sentence_length
+        .unwrap_or(index.info.max_sentence_length);
     let corpus_options = CorpusOptions {
         max_sentence_length,
         links_target_first: false,
@@ -507,13 +492,11 @@ pub fn tally(
         alignment: None,
         ..corpus.clone()
     };
-    let budget = (options.memory as usize).max(1 << 20);
-    let (targets, rows) = target_index(table, budget / 2, &options.temp_dir)?;
-    if targets.len() > u32::MAX as usize {
-        return Err(Error::Unsupported("more than 2^32 distinct targets".into()));
-    }
-    let targets = targets.into_fst();
-    let chunk_budget = budget.saturating_sub(targets.size() + targets.len() * 4) / 2;
+    let fixed = index.targets.as_fst().size()
+        + index.sources.as_fst().size()
+        + index.info.targets as usize * 4;
+    // Half of what is left: the chunk's vectors grow by doubling.
+    let chunk_budget = ((options.memory as usize).saturating_sub(fixed) / 2).max(1 << 16);
     let dir = match out.parent() {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
@@ -524,57 +507,38 @@ pub fn tally(
         .map_err(|e| Error::io(out, "creating", e))?
         .into_temp_path();
     let mut writer: Option<TallyWriter> = None;
-    let mut lines = lines;
     let mut info = TallyInfo {
-        table_pairs: rows,
+        table_pairs: index.info.rows,
         ..Default::default()
     };
-    let mut row = 0u64;
-    let mut pending = lines.next_row()?;
-    while pending {
-        // Build one chunk of whole sources.
-        let mut builder = MapBuilder::memory();
+    let (mut row, mut source) = (0u64, 0u64);
+    loop {
         let mut chunk = Chunk {
-            sources: Map::default(),
+            first_source: source,
             offsets: vec![0],
             targets: Vec::new(),
             first_row: row,
         };
-        let mut source: Vec<u8> = Vec::new();
-        while pending {
-            let (s, t) = lines.fields()?;
-            if s.as_bytes() != source.as_slice() || chunk.targets.is_empty() {
-                if !chunk.targets.is_empty() {
-                    chunk.offsets.push(chunk.targets.len() as u64);
-                    if chunk.memory() + builder.bytes_written() as usize >= chunk_budget.max(1) {
-                        break;
-                    }
-                }
-                builder
-                    .insert(s, chunk.offsets.len() as u64 - 1)
-                    .map_err(fst_error)?;
-                source.clear();
-                source.extend_from_slice(s.as_bytes());
-            }
-            let rank = targets.get(t).ok_or_else(|| {
-                Error::input(
-                    &lines.name,
-                    lines.line_no,
-                    "target missing from the index (table changed while reading?)",
-                )
-            })?;
-            chunk.targets.push(rank.value() as u32);
-            row += 1;
-            pending = lines.next_row()?;
-        }
-        if !pending {
+        while index.sources_left() > 0 && chunk.memory() < chunk_budget {
+            index.next_source(&mut chunk.targets)?;
             chunk.offsets.push(chunk.targets.len() as u64);
+            source += 1;
         }
-        chunk.sources = builder.into_map();
+        row += chunk.targets.len() as u64;
         info.passes += 1;
         let label = format!("sentence counts (pass {})", info.passes);
-        let (counters, stats) =
-            count_chunk(&corpus, corpus_options, &targets, &chunk, options, &label)?;
+        let (counters, stats) = count_chunk(
+            &corpus,
+            corpus_options,
+            index.targets.as_fst(),
+            index.sources.as_fst(),
+            &chunk,
+            options,
+            &label,
+        )?;
+        if stats.sentence_pairs != index.info.sentence_pairs && info.passes == 1 {
+            // Not an error by itself: the index covers every shard, this corpus may be one.
+        }
         info.corpus = stats;
         if writer.is_none() {
             writer = Some(TallyWriter::create(&temp, &info)?);
@@ -589,31 +553,11 @@ pub fn tally(
                 writer.push(chunk.first_row + p as u64, [cooc, df_source, df_target])?;
             }
         }
+        if index.sources_left() == 0 {
+            break;
+        }
     }
-    if info.passes == 0 {
-        // An empty table: still read the corpus for its sentence count.
-        let empty = Chunk {
-            sources: Map::default(),
-            offsets: vec![0],
-            targets: Vec::new(),
-            first_row: 0,
-        };
-        let (_, stats) = count_chunk(
-            &corpus,
-            corpus_options,
-            &targets,
-            &empty,
-            options,
-            "sentence counts",
-        )?;
-        info.corpus = stats;
-        info.passes = 1;
-    }
-    let writer = match writer {
-        Some(w) => w,
-        None => TallyWriter::create(&temp, &info)?,
-    };
-    writer.finish()?;
+    writer.expect("at least one pass").finish()?;
     temp.persist(out)
         .map_err(|e| Error::io(out, "renaming into place", e.error))?;
     Ok(info)

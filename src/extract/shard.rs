@@ -1,7 +1,7 @@
 //! The map step: one shard of the corpus into sorted, compressed count runs.
 //!
 //! One thread reads and validates the corpus in batches; worker threads extract phrase pairs
-//! and word links into their own [`CountTable`]s, which spill to a run whenever they reach
+//! and word links into their own count tables, which spill to a run whenever they reach
 //! their share of the memory budget. The counts are integers summed by key, so the merged
 //! result does not depend on how the sentences were split between threads.
 
@@ -81,6 +81,7 @@ pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<Shard
     let mut reader = CorpusReader::open(paths, options.corpus)?;
     let progress = Progress::new("extract", reader.total_bytes(), options.progress);
     let counter = reader.progress_counter();
+    // The reader's batches in flight and the runs' buffers are small next to this.
     let budget = (options.memory as usize / threads).max(1 << 20);
     let settings = RunInfo {
         corpus: CorpusStats::default(),
@@ -155,7 +156,7 @@ fn work(
     final_stats: &Mutex<Option<CorpusStats>>,
     dir: &Path,
 ) -> Result<Vec<(PathBuf, RunInfo)>> {
-    let mut table = CountTable::new();
+    let mut table = CountTable::with_budget(budget);
     let mut scratch = Scratch::default();
     let mut written = Vec::new();
     let mut occurrences = 0u64;
@@ -176,10 +177,10 @@ fn work(
             Err(_) => break,
         };
         for pair in &batch {
+            if table.nearly_full() || table.arena_full() {
+                spill(&mut table, &mut occurrences, CorpusStats::default())?;
+            }
             occurrences += count_pair(pair, limits, &mut table, &mut scratch);
-        }
-        if table.memory_used() >= budget || table.arena_full() {
-            spill(&mut table, &mut occurrences, CorpusStats::default())?;
         }
     }
     // The reader's totals travel in worker 0's last run.
