@@ -714,3 +714,35 @@ fn discounting_is_applied_behind_a_flag() {
     assert!(sums.values().all(|&s| s < 1.0 + 1e-9 && s > 0.0));
     assert!(kn.text.contains("# discount=kneser-ney"));
 }
+
+/// The table shipped in demo-data/ is exactly what `baler extract` makes of the demo corpus
+/// (invented data: this guards the shipped file against drift, it is not an outside reference).
+#[test]
+fn shipped_demo_table_is_the_extraction_of_the_demo_corpus() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data");
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("toolshed.tsv");
+    let run = baler()
+        .args(["extract", "--source"])
+        .arg(root.join("toolshed.en"))
+        .arg("--target")
+        .arg(root.join("toolshed.es"))
+        .arg("--alignment")
+        .arg(root.join("toolshed.align"))
+        .arg("-o")
+        .arg(&out)
+        .arg("--quiet")
+        .output()
+        .unwrap();
+    assert!(
+        run.status.success(),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    let made = std::fs::read_to_string(&out).unwrap();
+    let shipped = std::fs::read_to_string(root.join("toolshed.tsv")).unwrap();
+    assert!(
+        made == shipped,
+        "demo-data/toolshed.tsv differs from a fresh extraction"
+    );
+}
