@@ -54,7 +54,17 @@ pub struct Table {
     compression: Compression,
     dictionary: Option<std::ops::Range<usize>>,
     decoders: Mutex<Vec<zstd::bulk::Decompressor<'static>>>,
+    block_cache: Vec<Mutex<CacheSlot>>,
 }
+
+/// One block-cache entry: block number and its decompressed bytes.
+type CacheSlot = Option<(u64, Arc<[u8]>)>;
+
+/// Decompressed blocks a [`Table`] keeps for reuse (direct-mapped by block number).
+pub const BLOCK_CACHE_SLOTS: usize = 1024;
+
+/// Tables whose blocks may exceed this many bytes are not cached (1024 × 16 KiB = 16 MiB at most).
+const MAX_CACHED_BLOCK_BYTES: u64 = 16 << 10;
 
 /// Size of one section, for reports.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -207,6 +217,7 @@ impl Table {
             compression,
             dictionary,
             decoders: Mutex::new(Vec::new()),
+            block_cache: (0..BLOCK_CACHE_SLOTS).map(|_| Mutex::new(None)).collect(),
         })
     }
 
@@ -353,7 +364,11 @@ impl Table {
                 )));
             }
             let block = ordinal / per;
-            let bytes = self.block_bytes(block, &mut scratch)?;
+            let cached = self.cached_block(block)?;
+            let bytes: &[u8] = match &cached {
+                Some(b) => b,
+                None => self.block_bytes(block, &mut scratch)?,
+            };
             let n = self.sources_in_block(block);
             while k < order.len() && hits[order[k]].2 / per == block {
                 let mut options = Options::default();
@@ -441,6 +456,11 @@ impl Table {
         let per = u64::from(self.meta.sources_per_block);
         let block = ordinal / per;
         let rank = (ordinal % per) as usize;
+        if let Some(bytes) = self.cached_block(block)? {
+            let layout =
+                options::BlockLayout::parse(self, &bytes, self.sources_in_block(block), rank)?;
+            return layout.decode_source(self, &bytes, options);
+        }
         let mut raw = std::mem::take(&mut options.scratch);
         let result = self.block_bytes(block, &mut raw).and_then(|bytes| {
             let layout =
@@ -449,6 +469,33 @@ impl Table {
         });
         options.scratch = raw;
         result
+    }
+
+    /// A decompressed block from the table's small direct-mapped cache (decompressing it on a
+    /// miss); `None` when blocks are stored raw and read straight from the map. Frequent
+    /// phrases (and the sub-phrases of one sentence) come back to the same blocks, so this saves
+    /// most decompressions in decoding; it holds at most [`BLOCK_CACHE_SLOTS`] blocks.
+    fn cached_block(&self, block: u64) -> Result<Option<Arc<[u8]>>> {
+        if self.compression == Compression::None {
+            return Ok(None);
+        }
+        let slot = &self.block_cache[(block % BLOCK_CACHE_SLOTS as u64) as usize];
+        if let Ok(guard) = slot.lock() {
+            if let Some((b, bytes)) = guard.as_ref() {
+                if *b == block {
+                    return Ok(Some(bytes.clone()));
+                }
+            }
+        }
+        if self.meta.max_block_bytes > MAX_CACHED_BLOCK_BYTES {
+            return Ok(None); // very large blocks: decompress per use, keep memory small
+        }
+        let mut raw = Vec::new();
+        let bytes: Arc<[u8]> = Arc::from(self.block_bytes(block, &mut raw)?);
+        if let Ok(mut guard) = slot.lock() {
+            *guard = Some((block, bytes.clone()));
+        }
+        Ok(Some(bytes))
     }
 
     fn sources_in_block(&self, block: u64) -> usize {
