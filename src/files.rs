@@ -35,6 +35,12 @@ pub fn open_input(path: &Path) -> Result<Box<dyn BufRead + Send>> {
     } else {
         Box::new(File::open(path).map_err(|e| Error::io(path, "opening", e))?)
     };
+    decompressing(path, raw)
+}
+
+/// Wraps the bytes `raw` read from `path` in a buffered reader, decompressing them when the
+/// name ends in `.gz` or `.zst`.
+pub fn decompressing(path: &Path, raw: Box<dyn Read + Send>) -> Result<Box<dyn BufRead + Send>> {
     let name = path.to_string_lossy();
     let reader: Box<dyn BufRead + Send> = if name.ends_with(".gz") {
         Box::new(BufReader::with_capacity(

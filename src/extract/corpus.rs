@@ -11,7 +11,7 @@
 //! a link past the end of its sentence, a NUL byte) is an error naming file, line and reason.
 
 use std::fs::File;
-use std::io::{self, BufRead, BufReader, Read};
+use std::io::{self, BufRead, Read};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Arc;
@@ -163,20 +163,7 @@ fn open_counted(path: &Path, count: Arc<AtomicU64>) -> Result<Box<dyn BufRead + 
         return files::open_input(path);
     }
     let file = File::open(path).map_err(|e| Error::io(path, "opening", e))?;
-    let raw = CountingRead { inner: file, count };
-    let name = path.to_string_lossy();
-    Ok(if name.ends_with(".gz") {
-        Box::new(BufReader::with_capacity(
-            1 << 16,
-            flate2::read::MultiGzDecoder::new(raw),
-        ))
-    } else if name.ends_with(".zst") {
-        let decoder =
-            zstd::stream::read::Decoder::new(raw).map_err(|e| Error::io(path, "opening", e))?;
-        Box::new(BufReader::with_capacity(1 << 16, decoder))
-    } else {
-        Box::new(BufReader::with_capacity(1 << 16, raw))
-    })
+    files::decompressing(path, Box::new(CountingRead { inner: file, count }))
 }
 
 struct Side {

@@ -336,16 +336,7 @@ impl MeasuredTable {
     }
 }
 
-/// A packed table by its `.bale` extension or, whatever its name, by the format's magic bytes.
-pub fn is_packed(path: &Path) -> bool {
-    if path.extension().is_some_and(|e| e == "bale") {
-        return true;
-    }
-    let mut magic = [0u8; 8];
-    std::fs::File::open(path)
-        .and_then(|mut f| std::io::Read::read_exact(&mut f, &mut magic))
-        .is_ok_and(|()| magic == crate::format::MAGIC)
-}
+pub use crate::read::is_packed;
 
 struct CountingReader<R> {
     inner: R,

@@ -177,16 +177,7 @@ pub fn prune_path(input: &Path, output: &Path, options: &PruneOptions) -> Result
     }
 }
 
-/// A packed table by its extension or, whatever its name, by the format's magic bytes.
-fn is_packed(path: &Path) -> bool {
-    if path.extension().is_some_and(|e| e == "bale") {
-        return true;
-    }
-    let mut magic = [0u8; 8];
-    std::fs::File::open(path)
-        .and_then(|mut f| std::io::Read::read_exact(&mut f, &mut magic))
-        .is_ok_and(|()| magic == crate::format::MAGIC)
-}
+use crate::read::is_packed;
 
 /// TSV records with their line numbers.
 struct Numbered<R> {

@@ -550,6 +550,24 @@ impl Table {
     }
 }
 
+/// Whether `path` holds a packed table: by its `.bale` extension or, whatever its name, by the
+/// format's magic bytes.
+///
+/// # Examples
+/// ```
+/// assert!(baler::read::is_packed(std::path::Path::new("missing.bale")));
+/// assert!(!baler::read::is_packed(std::path::Path::new("Cargo.toml")));
+/// ```
+pub fn is_packed(path: &Path) -> bool {
+    if path.extension().is_some_and(|e| e == "bale") {
+        return true;
+    }
+    let mut magic = [0u8; 8];
+    std::fs::File::open(path)
+        .and_then(|mut f| std::io::Read::read_exact(&mut f, &mut magic))
+        .is_ok_and(|()| magic == format::MAGIC)
+}
+
 /// What [`Table::verify`] checked.
 #[derive(Clone, Debug, Default, PartialEq, Eq)]
 pub struct VerifyReport {
