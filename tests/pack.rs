@@ -454,3 +454,51 @@ fn output_to_a_device_leaves_the_device_in_place() {
         0o644
     );
 }
+
+/// Round trip of the shipped demo table (every score and count column, alignments): pack, read
+/// back, compare within the error the file reports; the default and the f32 layouts.
+#[test]
+fn demo_table_round_trips() {
+    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data/toolshed.tsv");
+    let reader =
+        baler::table::TsvReader::new(baler::files::open_input(&path).unwrap(), "toolshed.tsv")
+            .unwrap();
+    let header = reader.header().clone();
+    let pairs: Vec<PhrasePair> = reader.collect::<baler::Result<_>>().unwrap();
+    assert!(pairs.len() > 5000 && header.schema.alignment && header.schema.counts.len() == 6);
+    let table = RandomTable { header, pairs };
+    check_round_trip(&table, &PackOptions::default());
+    check_round_trip(
+        &table,
+        &PackOptions {
+            bits: None,
+            ..Default::default()
+        },
+    );
+}
+
+/// Round trip of a generated table with counts and alignments, in small blocks.
+#[test]
+fn generated_table_round_trips() {
+    let options = baler::synth::SynthOptions {
+        pairs: 20_000,
+        counts: true,
+        alignment: true,
+        ..Default::default()
+    };
+    let mut generator = baler::synth::Generator::new(&options).unwrap();
+    let header = generator.header();
+    let mut pairs = Vec::new();
+    let mut pair = PhrasePair::default();
+    while generator.next_into(&mut pair) {
+        pairs.push(pair.clone());
+    }
+    let table = RandomTable { header, pairs };
+    check_round_trip(
+        &table,
+        &PackOptions {
+            sources_per_block: 4,
+            ..Default::default()
+        },
+    );
+}
