@@ -248,28 +248,8 @@ pub(crate) struct IndexReader {
 
 impl IndexReader {
     pub(crate) fn open(path: &Path) -> Result<IndexReader> {
-        let file = File::open(path).map_err(|e| Error::io(path, "opening", e))?;
-        let decoder =
-            zstd::stream::read::Decoder::new(file).map_err(|e| Error::io(path, "opening", e))?;
-        let mut input = BufReader::with_capacity(1 << 16, decoder);
-        let bad = |what: &str| {
-            Error::Unsupported(format!(
-                "{}: not a baler phrase index: {what}",
-                path.display()
-            ))
-        };
-        let mut head = [0u8; 16];
-        if input.read_exact(&mut head).is_err() || &head[..8] != MAGIC {
-            return Err(bad("wrong magic bytes"));
-        }
-        if u32::from_le_bytes(head[8..12].try_into().unwrap()) != VERSION {
-            return Err(bad("unsupported version"));
-        }
-        let mut json = vec![0u8; u32::from_le_bytes(head[12..].try_into().unwrap()) as usize];
-        input
-            .read_exact(&mut json)
-            .map_err(|_| bad("truncated header"))?;
-        let info: IndexInfo = serde_json::from_slice(&json).map_err(|e| bad(&e.to_string()))?;
+        let (mut input, info, bad) =
+            super::framed::open::<IndexInfo>(path, MAGIC, VERSION, "phrase index")?;
         let mut read_map = |what: &str| -> Result<Map<Vec<u8>>> {
             let mut len = [0u8; 8];
             input.read_exact(&mut len).map_err(|_| bad(what))?;

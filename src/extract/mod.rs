@@ -49,6 +49,7 @@
 
 pub mod corpus;
 mod counter;
+mod framed;
 pub mod index;
 pub mod phrases;
 mod report;

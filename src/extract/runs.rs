@@ -194,36 +194,7 @@ pub struct RunReader {
 impl RunReader {
     /// Opens `path` and reads its header.
     pub fn open(path: &Path) -> Result<RunReader> {
-        let file = File::open(path).map_err(|e| Error::io(path, "opening", e))?;
-        let decoder =
-            zstd::stream::read::Decoder::new(file).map_err(|e| Error::io(path, "opening", e))?;
-        let mut input = BufReader::with_capacity(1 << 16, decoder);
-        let bad = |reason: &str| {
-            Error::Unsupported(format!(
-                "{}: not a baler count run: {reason}",
-                path.display()
-            ))
-        };
-        let mut head = [0u8; 16];
-        input
-            .read_exact(&mut head)
-            .map_err(|_| bad("too short or not zstd"))?;
-        if &head[..8] != MAGIC {
-            return Err(bad("wrong magic bytes"));
-        }
-        let version = u32::from_le_bytes(head[8..12].try_into().unwrap());
-        if version != VERSION {
-            return Err(bad(&format!(
-                "format version {version}, this baler reads {VERSION}"
-            )));
-        }
-        let len = u32::from_le_bytes(head[12..16].try_into().unwrap()) as usize;
-        let mut json = vec![0u8; len];
-        input
-            .read_exact(&mut json)
-            .map_err(|_| bad("truncated header"))?;
-        let info: RunInfo =
-            serde_json::from_slice(&json).map_err(|e| bad(&format!("bad header: {e}")))?;
+        let (input, info, _) = super::framed::open::<RunInfo>(path, MAGIC, VERSION, "count run")?;
         Ok(RunReader {
             path: path.to_path_buf(),
             input,

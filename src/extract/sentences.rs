@@ -22,7 +22,7 @@
 //! numbers `(gap + 1, cooc, df_source, df_target)` for table rows with any non-zero count
 //! (`gap` = rows skipped since the previous record), and a 0 ending the records.
 
-use std::io::{BufRead, BufWriter, Read, Write};
+use std::io::{BufRead, BufWriter, Write};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU32, Ordering};
 use std::sync::{mpsc, Mutex};
@@ -565,8 +565,7 @@ pub fn tally(
 
 struct TallyReader {
     path: PathBuf,
-    input:
-        std::io::BufReader<zstd::stream::read::Decoder<'static, std::io::BufReader<std::fs::File>>>,
+    input: super::framed::FramedInput,
     info: TallyInfo,
     row: u64,
     counts: [u64; 3],
@@ -575,28 +574,7 @@ struct TallyReader {
 
 impl TallyReader {
     fn open(path: &Path) -> Result<TallyReader> {
-        let file = std::fs::File::open(path).map_err(|e| Error::io(path, "opening", e))?;
-        let decoder =
-            zstd::stream::read::Decoder::new(file).map_err(|e| Error::io(path, "opening", e))?;
-        let mut input = std::io::BufReader::with_capacity(1 << 16, decoder);
-        let bad = |what: &str| {
-            Error::Unsupported(format!(
-                "{}: not a baler sentence-count tally: {what}",
-                path.display()
-            ))
-        };
-        let mut head = [0u8; 16];
-        if input.read_exact(&mut head).is_err() || &head[..8] != MAGIC {
-            return Err(bad("wrong magic bytes"));
-        }
-        if u32::from_le_bytes(head[8..12].try_into().unwrap()) != VERSION {
-            return Err(bad("unsupported version"));
-        }
-        let mut json = vec![0u8; u32::from_le_bytes(head[12..].try_into().unwrap()) as usize];
-        input
-            .read_exact(&mut json)
-            .map_err(|_| bad("truncated header"))?;
-        let info = serde_json::from_slice(&json).map_err(|e| bad(&e.to_string()))?;
+        let (input, info, _) = super::framed::open(path, MAGIC, VERSION, "sentence-count tally")?;
         let mut r = TallyReader {
             path: path.to_path_buf(),
             input,

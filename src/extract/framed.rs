@@ -1,0 +1,51 @@
+//! The header shared by extraction's intermediate files (count runs, phrase indexes, tallies):
+//! a zstd stream opening with 8 magic bytes, a `u32` version, a `u32` length and that many bytes
+//! of JSON describing the file.
+
+use std::fs::File;
+use std::io::{BufReader, Read};
+use std::path::Path;
+
+use serde::de::DeserializeOwned;
+
+use crate::error::{Error, Result};
+
+/// A decompressing reader positioned after the header.
+pub(crate) type FramedInput = BufReader<zstd::stream::read::Decoder<'static, BufReader<File>>>;
+
+/// Opens an intermediate file of kind `what` (e.g. "count run"), checks its magic and version,
+/// and parses its JSON header. Errors read "PATH: not a baler WHAT: reason".
+pub(crate) fn open<T: DeserializeOwned>(
+    path: &Path,
+    magic: &[u8; 8],
+    version: u32,
+    what: &str,
+) -> Result<(FramedInput, T, impl Fn(&str) -> Error)> {
+    let file = File::open(path).map_err(|e| Error::io(path, "opening", e))?;
+    let decoder =
+        zstd::stream::read::Decoder::new(file).map_err(|e| Error::io(path, "opening", e))?;
+    let mut input = BufReader::with_capacity(1 << 16, decoder);
+    let shown = path.display().to_string();
+    let what = what.to_string();
+    let bad =
+        move |reason: &str| Error::Unsupported(format!("{shown}: not a baler {what}: {reason}"));
+    let mut head = [0u8; 16];
+    input
+        .read_exact(&mut head)
+        .map_err(|_| bad("too short or not zstd"))?;
+    if &head[..8] != magic {
+        return Err(bad("wrong magic bytes"));
+    }
+    let found = u32::from_le_bytes(head[8..12].try_into().unwrap());
+    if found != version {
+        return Err(bad(&format!(
+            "format version {found}, this baler reads {version}"
+        )));
+    }
+    let mut json = vec![0u8; u32::from_le_bytes(head[12..16].try_into().unwrap()) as usize];
+    input
+        .read_exact(&mut json)
+        .map_err(|_| bad("truncated header"))?;
+    let info = serde_json::from_slice(&json).map_err(|e| bad(&format!("bad header: {e}")))?;
+    Ok((input, info, bad))
+}
