@@ -271,10 +271,7 @@ where
     // Pass 1: sort, count targets, sample scores.
     let sort_budget = (options.memory as usize / 2).max(1 << 20);
     let mut sorter = ExternalSorter::new(sort_budget, options.temp_dir.clone())?;
-    // Targets get provisional numbers in order of first appearance; pass 2 maps them to the
-    // final references through a vector, so each target is hashed once per pair, not twice.
-    let mut target_index: HashMap<String, u32> = HashMap::default();
-    let mut target_uses: Vec<u64> = Vec::new();
+    let mut numbering = TargetNumbering::new(options.memory as usize / 4, options.temp_dir.clone());
     let mut reservoirs: Vec<Reservoir> = (0..n_scores)
         .map(|_| Reservoir::new(DEFAULT_SAMPLE_SIZE))
         .collect();
@@ -291,16 +288,7 @@ where
         key.extend_from_slice(pair.source.as_bytes());
         key.push(0);
         key.extend_from_slice(pair.target.as_bytes());
-        let target = match target_index.get(pair.target.as_str()) {
-            Some(&t) => t,
-            None => {
-                let t = target_uses.len() as u32;
-                target_index.insert(pair.target.clone(), t);
-                target_uses.push(0);
-                t
-            }
-        };
-        target_uses[target as usize] += 1;
+        let target = numbering.note(&pair.target)?;
         encode_value(&mut value, position, target, &pair);
         sorter.push(&key, &value)?;
         for (r, &s) in reservoirs.iter_mut().zip(&pair.scores) {
@@ -314,22 +302,13 @@ where
     bar.finish_and_clear();
 
     // Targets by frequency, then vocabulary by frequency.
-    let mut targets: Vec<(String, u64, u32)> = target_index
-        .into_iter()
-        .map(|(t, id)| (t, target_uses[id as usize], id))
-        .collect();
-    drop(target_uses);
-    targets.sort_unstable_by(|a, b| b.1.cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
-    let (vocabulary_section, words) = build_vocabulary(&targets);
-    let (targets_section, target_offsets) = build_targets(&targets, &words);
-    let n_targets = targets.len() as u64;
-    let n_words = words.len() as u64;
-    drop(words);
-    let mut target_refs = vec![0u64; targets.len()];
-    for ((_, _, id), offset) in targets.iter().zip(target_offsets) {
-        target_refs[*id as usize] = offset;
-    }
-    drop(targets);
+    let Numbered {
+        vocabulary_section,
+        targets_section,
+        n_targets,
+        n_words,
+        refs: target_refs,
+    } = numbering.finish()?;
 
     let codebooks: Vec<Option<Codebook>> = reservoirs
         .iter()
@@ -392,7 +371,7 @@ where
         let (source, target) = (&k[..split], &k[split + 1..]);
         let mut option = writer.spare.pop().unwrap_or_default();
         let (position, target_number) = decode_value(v, &codebooks, &mut errors, &mut option);
-        option.target_ref = target_refs[target_number as usize];
+        option.target_ref = target_refs.get(target_number, target)?;
         if source == group_source.as_slice() && !group.is_empty() {
             if target == previous_target.as_slice() {
                 let (first, second) = (
@@ -623,15 +602,11 @@ fn write_file(out: &Path, parts: &[(SectionKind, Part)]) -> Result<(Vec<(Section
     Ok((sections, total))
 }
 
-/// Numbers the words of the targets by frequency (each target weighted by the options using it);
-/// returns the vocabulary section and the word ids.
-fn build_vocabulary(targets: &[(String, u64, u32)]) -> (Vec<u8>, HashMap<&str, u32>) {
-    let mut freq: HashMap<&str, u64> = HashMap::default();
-    for (t, c, _) in targets {
-        for w in t.split(' ') {
-            *freq.entry(w).or_insert(0) += c;
-        }
-    }
+/// The vocabulary section from word frequencies (each word weighted by the options using the
+/// targets it occurs in), words numbered most frequent first; returns the section and the ids.
+fn build_vocabulary<'a>(
+    freq: impl IntoIterator<Item = (&'a str, u64)>,
+) -> (Vec<u8>, HashMap<&'a str, u32>) {
     let mut words: Vec<(&str, u64)> = freq.into_iter().collect();
     words.sort_unstable_by(|a, b| b.1.cmp(&a.1).then_with(|| a.0.cmp(b.0)));
     let mut section = Vec::new();
@@ -653,24 +628,198 @@ fn build_vocabulary(targets: &[(String, u64, u32)]) -> (Vec<u8>, HashMap<&str, u
     (section, ids)
 }
 
-/// The target section: the count, then each target as a varint token count followed by varint
-/// token ids. Returns the section and each target's offset within the data after the count,
-/// which is how options refer to it.
-fn build_targets(
-    targets: &[(String, u64, u32)],
-    words: &HashMap<&str, u32>,
-) -> (Vec<u8>, Vec<u64>) {
-    let mut section = Vec::new();
-    section.extend_from_slice(&(targets.len() as u64).to_le_bytes());
-    let mut offsets = Vec::with_capacity(targets.len());
-    for (t, _, _) in targets {
-        offsets.push((section.len() - 8) as u64);
-        write_varint(&mut section, t.split(' ').count() as u64);
-        for w in t.split(' ') {
-            write_varint(&mut section, u64::from(words[w]));
+/// Appends one target record (varint token count, varint word ids) to the targets section
+/// (whose first 8 bytes are the count); returns the record's reference.
+fn push_target(section: &mut Vec<u8>, target: &str, words: &HashMap<&str, u32>) -> u64 {
+    let offset = (section.len() - 8) as u64;
+    write_varint(section, target.split(' ').count() as u64);
+    for w in target.split(' ') {
+        write_varint(section, u64::from(words[w]));
+    }
+    offset
+}
+
+/// Numbers target phrases by frequency (most used first, ties by bytes). The table of distinct
+/// targets is kept in memory while it fits `budget`; past that, every target occurrence goes
+/// through an external sort instead, and pass 2 finds a target's number in an fst.
+struct TargetNumbering {
+    budget: usize,
+    temp_parent: Option<PathBuf>,
+    index: HashMap<String, u32>,
+    uses: Vec<u64>,
+    bytes: usize,
+    spill: Option<ExternalSorter>,
+}
+
+/// Bytes one distinct target is reckoned to take in the in-memory table, beyond its text.
+const TARGET_ENTRY_OVERHEAD: usize = 64;
+
+/// Numbered targets: the two sections and how pass 2 finds a target's reference.
+struct Numbered {
+    vocabulary_section: Vec<u8>,
+    targets_section: Vec<u8>,
+    n_targets: u64,
+    n_words: u64,
+    refs: TargetRefs,
+}
+
+enum TargetRefs {
+    /// By provisional number (order of first appearance).
+    ByNumber(Vec<u64>),
+    /// By rank in byte order, found in an fst of the distinct targets.
+    ByRank(fst::Map<Vec<u8>>, Vec<u64>),
+}
+
+impl TargetRefs {
+    fn get(&self, provisional: u32, target: &[u8]) -> Result<u64> {
+        match self {
+            TargetRefs::ByNumber(refs) => Ok(refs[provisional as usize]),
+            TargetRefs::ByRank(ranks, refs) => {
+                let rank = ranks.get(target).expect("every target was numbered");
+                Ok(refs[rank as usize])
+            }
         }
     }
-    (section, offsets)
+}
+
+impl TargetNumbering {
+    fn new(budget: usize, temp_parent: Option<PathBuf>) -> TargetNumbering {
+        TargetNumbering {
+            budget: budget.max(1),
+            temp_parent,
+            index: HashMap::default(),
+            uses: Vec::new(),
+            bytes: 0,
+            spill: None,
+        }
+    }
+
+    /// Counts one use of `target`; returns its provisional number (meaningful only while the
+    /// table stays in memory).
+    fn note(&mut self, target: &str) -> Result<u32> {
+        if let Some(spill) = &mut self.spill {
+            spill.push(target.as_bytes(), &[1])?;
+            return Ok(u32::MAX);
+        }
+        let t = match self.index.get(target) {
+            Some(&t) => t,
+            None => {
+                let t = self.uses.len() as u32;
+                self.index.insert(target.to_string(), t);
+                self.uses.push(0);
+                self.bytes += target.len() + TARGET_ENTRY_OVERHEAD;
+                t
+            }
+        };
+        self.uses[t as usize] += 1;
+        if self.bytes > self.budget {
+            // Too many distinct targets for memory: hand the counts so far to an external sort.
+            let mut spill = ExternalSorter::new(self.budget, self.temp_parent.clone())?;
+            let mut count = Vec::new();
+            for (target, t) in std::mem::take(&mut self.index) {
+                count.clear();
+                write_varint(&mut count, self.uses[t as usize]);
+                spill.push(target.as_bytes(), &count)?;
+            }
+            self.uses = Vec::new();
+            self.spill = Some(spill);
+        }
+        Ok(t)
+    }
+
+    fn finish(self) -> Result<Numbered> {
+        let Some(spill) = self.spill else {
+            let mut targets: Vec<(String, u64, u32)> = self
+                .index
+                .into_iter()
+                .map(|(t, id)| (t, self.uses[id as usize], id))
+                .collect();
+            targets.sort_unstable_by(|a, b| b.1.cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
+            let mut freq: HashMap<&str, u64> = HashMap::default();
+            for (t, c, _) in &targets {
+                for w in t.split(' ') {
+                    *freq.entry(w).or_insert(0) += c;
+                }
+            }
+            let (vocabulary_section, words) = build_vocabulary(freq);
+            let mut targets_section = (targets.len() as u64).to_le_bytes().to_vec();
+            let mut refs = vec![0u64; targets.len()];
+            for (t, _, id) in &targets {
+                refs[*id as usize] = push_target(&mut targets_section, t, &words);
+            }
+            return Ok(Numbered {
+                vocabulary_section,
+                targets_section,
+                n_targets: targets.len() as u64,
+                n_words: words.len() as u64,
+                refs: TargetRefs::ByNumber(refs),
+            });
+        };
+        // Distinct targets in byte order: sum their uses, rank them, and queue them for
+        // numbering by frequency.
+        let mut merged = spill.finish()?;
+        let mut ranks = fst::MapBuilder::memory();
+        let mut by_frequency = ExternalSorter::new(self.budget, self.temp_parent.clone())?;
+        let mut freq: HashMap<String, u64> = HashMap::default();
+        let mut current: Option<(Vec<u8>, u64)> = None;
+        let mut rank = 0u64;
+        let mut flush = |target: &[u8], uses: u64, rank: &mut u64| -> Result<()> {
+            ranks
+                .insert(target, *rank)
+                .expect("distinct targets arrive in byte order");
+            let mut key = (u64::MAX - uses).to_be_bytes().to_vec();
+            key.extend_from_slice(target);
+            let mut value = Vec::new();
+            write_varint(&mut value, *rank);
+            by_frequency.push(&key, &value)?;
+            for w in std::str::from_utf8(target)
+                .expect("targets are UTF-8")
+                .split(' ')
+            {
+                match freq.get_mut(w) {
+                    Some(c) => *c += uses,
+                    None => {
+                        freq.insert(w.to_string(), uses);
+                    }
+                }
+            }
+            *rank += 1;
+            Ok(())
+        };
+        while let Some((key, value)) = merged.next_record()? {
+            let uses = format::read_varint(value, &mut 0).expect("sorter record intact");
+            match &mut current {
+                Some((t, c)) if t.as_slice() == key => *c += uses,
+                _ => {
+                    if let Some((t, c)) = current.take() {
+                        flush(&t, c, &mut rank)?;
+                    }
+                    current = Some((key.to_vec(), uses));
+                }
+            }
+        }
+        if let Some((t, c)) = current.take() {
+            flush(&t, c, &mut rank)?;
+        }
+        let ranks = ranks.into_map();
+        let (vocabulary_section, words) =
+            build_vocabulary(freq.iter().map(|(w, &c)| (w.as_str(), c)));
+        let mut targets_section = rank.to_le_bytes().to_vec();
+        let mut refs = vec![0u64; rank as usize];
+        let mut ordered = by_frequency.finish()?;
+        while let Some((key, value)) = ordered.next_record()? {
+            let target = std::str::from_utf8(&key[8..]).expect("targets are UTF-8");
+            let r = format::read_varint(value, &mut 0).expect("sorter record intact");
+            refs[r as usize] = push_target(&mut targets_section, target, &words);
+        }
+        Ok(Numbered {
+            vocabulary_section,
+            targets_section,
+            n_targets: rank,
+            n_words: words.len() as u64,
+            refs: TargetRefs::ByRank(ranks, refs),
+        })
+    }
 }
 
 fn build_codebooks(codebooks: &[Option<Codebook>], widths: &[(u8, u8)]) -> Vec<u8> {
