@@ -80,22 +80,16 @@ impl Codebook {
             centres.push(to_domain(domain, 1.0));
         }
         let values = centres.iter().map(|&c| from_domain(domain, c)).collect();
-        let midpoints = centres
-            .windows(2)
-            .map(|w| w[0] + (w[1] - w[0]) / 2.0)
-            .collect();
-        Codebook {
-            domain,
-            centres,
-            values,
-            midpoints,
-            exact: false,
-        }
+        Codebook::assemble(domain, centres, values)
     }
 
     /// Builds the codebook of a stored file: `values` are the decoded (linear) values.
     pub fn from_values(domain: u8, values: Vec<f64>) -> Codebook {
         let centres: Vec<f64> = values.iter().map(|&v| to_domain(domain, v)).collect();
+        Codebook::assemble(domain, centres, values)
+    }
+
+    fn assemble(domain: u8, centres: Vec<f64>, values: Vec<f64>) -> Codebook {
         let midpoints = centres_midpoints(&centres);
         Codebook {
             domain,

@@ -275,23 +275,16 @@ impl MeasuredTable {
             Store::Packed { table, .. } if !with_targets => {
                 // the index alone answers whether a span is a source: no block is decoded
                 let mut found = Vec::new();
-                let mut key = String::new();
-                for start in 0..tokens.len() {
-                    key.clear();
-                    for end in start + 1..=(start + max_len).min(tokens.len()) {
-                        if end > start + 1 {
-                            key.push(' ');
-                        }
-                        key.push_str(tokens[end - 1]);
-                        if table.source_ordinal(&key)?.is_some() {
-                            found.push(FoundSpan {
-                                start,
-                                end,
-                                targets: Vec::new(),
-                            });
-                        }
+                for_each_subphrase(tokens, max_len, |start, end, key| {
+                    if table.source_ordinal(key)?.is_some() {
+                        found.push(FoundSpan {
+                            start,
+                            end,
+                            targets: Vec::new(),
+                        });
                     }
-                }
+                    Ok(())
+                })?;
                 Ok(found)
             }
             Store::Packed { table, .. } => Ok(table
@@ -300,40 +293,51 @@ impl MeasuredTable {
                 .map(|s| FoundSpan {
                     start: s.start,
                     end: s.end,
-                    targets: if with_targets {
-                        s.options.iter().map(|o| o.target().to_string()).collect()
-                    } else {
-                        Vec::new()
-                    },
+                    targets: s.options.iter().map(|o| o.target().to_string()).collect(),
                 })
                 .collect()),
             Store::Loaded { sources, index, .. } => {
                 let mut found = Vec::new();
-                let mut key = String::new();
-                for start in 0..tokens.len() {
-                    key.clear();
-                    for end in start + 1..=(start + max_len).min(tokens.len()) {
-                        if end > start + 1 {
-                            key.push(' ');
-                        }
-                        key.push_str(tokens[end - 1]);
-                        if let Some(&i) = index.get(key.as_str()) {
-                            found.push(FoundSpan {
-                                start,
-                                end,
-                                targets: if with_targets {
-                                    sources[i].1.iter().map(|c| c.target.clone()).collect()
-                                } else {
-                                    Vec::new()
-                                },
-                            });
-                        }
+                for_each_subphrase(tokens, max_len, |start, end, key| {
+                    if let Some(&i) = index.get(key) {
+                        let targets = if with_targets {
+                            sources[i].1.iter().map(|c| c.target.clone()).collect()
+                        } else {
+                            Vec::new()
+                        };
+                        found.push(FoundSpan {
+                            start,
+                            end,
+                            targets,
+                        });
                     }
-                }
+                    Ok(())
+                })?;
                 Ok(found)
             }
         }
     }
+}
+
+/// Calls `f(start, end, phrase)` for every sub-phrase of at most `max_len` tokens, by start
+/// then length, building each phrase from the previous one.
+fn for_each_subphrase(
+    tokens: &[&str],
+    max_len: usize,
+    mut f: impl FnMut(usize, usize, &str) -> Result<()>,
+) -> Result<()> {
+    let mut key = String::new();
+    for start in 0..tokens.len() {
+        key.clear();
+        for end in start + 1..=(start + max_len).min(tokens.len()) {
+            if end > start + 1 {
+                key.push(' ');
+            }
+            key.push_str(tokens[end - 1]);
+            f(start, end, &key)?;
+        }
+    }
+    Ok(())
 }
 
 pub use crate::read::is_packed;
