@@ -8,6 +8,7 @@
 mod options;
 mod sections;
 mod verify;
+mod words;
 
 pub use options::{Options, Span, TranslationOption};
 

@@ -18,6 +18,8 @@ pub struct Options {
     counts: Vec<u64>,
     links: Vec<(u16, u16)>,
     link_ends: Vec<usize>,
+    pub(super) ids: Vec<u32>,
+    pub(super) id_ends: Vec<usize>,
     pub(super) scratch: Vec<u8>,
 }
 
@@ -55,6 +57,8 @@ impl Options {
         self.counts.clear();
         self.links.clear();
         self.link_ends.clear();
+        self.ids.clear();
+        self.id_ends.clear();
     }
 
     fn n_scores(&self) -> usize {
@@ -69,8 +73,8 @@ impl Options {
 /// One translation option: a target phrase with its scores, counts and alignment.
 #[derive(Clone, Copy, Debug)]
 pub struct TranslationOption<'a> {
-    options: &'a Options,
-    index: usize,
+    pub(super) options: &'a Options,
+    pub(super) index: usize,
 }
 
 impl<'a> TranslationOption<'a> {
@@ -227,9 +231,10 @@ impl BlockLayout {
                 read_varint(bytes, &mut pos).ok_or_else(|| malformed("target references"))?;
             table
                 .sections
-                .append_target(data, offset, &mut out.text)
+                .append_target(data, offset, &mut out.text, &mut out.ids)
                 .map_err(|r| table.corrupt(r))?;
             out.ends.push(out.text.len());
+            out.id_ends.push(out.ids.len());
         }
         let schema = &table.shared_schema;
         if !schema.alignment && schema.counts.is_empty() {

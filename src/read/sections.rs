@@ -195,13 +195,14 @@ impl Sections {
     }
 
     /// Appends the words of the target whose record starts at `offset` in the target data,
-    /// space-separated, to `out`; returns its token count.
+    /// space-separated, to `out`, and their word ids to `ids`; returns its token count.
     #[inline]
     pub(crate) fn append_target(
         &self,
         data: &[u8],
         offset: u64,
         out: &mut String,
+        ids: &mut Vec<u32>,
     ) -> Result<usize, String> {
         let td = &data[self.target_data.clone()];
         if offset >= td.len() as u64 {
@@ -222,6 +223,8 @@ impl Sections {
                 out.push(' ');
             }
             out.push_str(self.word(data, w)?);
+            // `word` checked `w` against the vocabulary size, which the writer keeps below 2^32.
+            ids.push(u32::try_from(w).map_err(|_| format!("word id {w} exceeds 32 bits"))?);
         }
         Ok(n as usize)
     }
