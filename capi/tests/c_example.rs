@@ -322,10 +322,7 @@ fn corrupted_tables_are_error_codes_and_clean_under_valgrind() {
                 "{what}: {stderr}"
             );
         } else {
-            assert!(
-                matches!(out.status.code(), Some(0..=2)),
-                "{what}: {out:?}"
-            );
+            assert!(matches!(out.status.code(), Some(0..=2)), "{what}: {out:?}");
             if out.status.code() == Some(2) {
                 assert!(stderr.contains("status 4"), "{what}: {stderr}");
             }
