@@ -329,3 +329,27 @@ fn corrupted_tables_are_error_codes_and_clean_under_valgrind() {
         }
     }
 }
+
+#[test]
+fn one_table_shared_by_c_threads_agrees_with_one_thread() {
+    let f = fixture();
+    let program = f.dir.path().join("threads");
+    let o = Command::new(std::env::var("CC").unwrap_or_else(|_| "cc".into()))
+        .args(["-std=c11", "-Wall", "-Wextra", "-Werror", "-O1", "-pthread"])
+        .arg("-I")
+        .arg(workspace().join("include"))
+        .arg(workspace().join("capi/tests/threads.c"))
+        .arg("-L")
+        .arg(built())
+        .arg("-lbaler")
+        .arg(format!("-Wl,-rpath,{}", built().display()))
+        .arg("-o")
+        .arg(&program)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let mut args = vec![f.table.as_os_str()];
+    args.extend(PHRASES.iter().map(|p| os(p)));
+    let out = run(&program, &args);
+    assert_eq!(stdout_of(&out), "threads agree\n");
+}
