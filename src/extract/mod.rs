@@ -53,6 +53,7 @@ mod framed;
 pub mod index;
 pub mod phrases;
 mod report;
+mod resident;
 mod resort;
 pub mod runs;
 pub mod score;
@@ -119,6 +120,35 @@ pub fn extract(
             ));
         }
     }
+    shard::check_settings(paths, &options.shard)?;
+    let mut output = Output::create(out)?;
+    if let Some(done) =
+        resident::extract_resident(paths, &options.shard, options.discount, &mut output, out)?
+    {
+        output.commit()?;
+        return Ok(ExtractSummary {
+            corpus: done.info.corpus,
+            pair_occurrences: done.info.pair_occurrences,
+            pairs: done.pairs,
+            sources: done.sources,
+            targets: done.targets,
+            sentence_count_passes: 1,
+            seconds: started.elapsed().as_secs_f64(),
+            step_seconds: done.step_seconds,
+        });
+    }
+    extract_spilling(paths, options, output, started)
+}
+
+/// The map/reduce path on one machine: count runs, merge, tally, attach.
+fn extract_spilling(
+    paths: &CorpusPaths,
+    options: &ExtractOptions,
+    mut output: Output,
+    started: Instant,
+) -> Result<ExtractSummary> {
+    let out = output.path().to_path_buf();
+    let out = out.as_path();
     let work = shard::temp_dir(&options.shard.temp_dir, "baler-extract-work-")?;
     let merged_path = work.path().join("merged.tsv.zst");
     let index_path = work.path().join("merged.index");
@@ -169,7 +199,6 @@ pub fn extract(
     };
     let tally = sentences::tally(&index_path, &counting, &tally_options, &tally_path)?;
     next_lap(2);
-    let mut output = Output::create(out)?;
     sentences::attach(&merged_path, &[tally_path], &mut output, out)?;
     output.commit()?;
     next_lap(3);

@@ -65,8 +65,9 @@ pub(crate) fn temp_dir(parent: &Option<PathBuf>, prefix: &str) -> Result<tempfil
         .map_err(|e| Error::io(parent_path, "creating a temporary directory in", e))
 }
 
-/// Extracts the corpus into runs in a temporary directory (one or more per thread).
-pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<ShardRuns> {
+/// Checks the settings of an extraction before any work.
+pub(crate) fn check_settings(paths: &CorpusPaths, options: &ShardOptions) -> Result<()> {
+    options.corpus.validate()?;
     if options.limits.max_length == 0 {
         return Err(Error::invalid("--max-length", "must be at least 1"));
     }
@@ -76,6 +77,12 @@ pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<Shard
             "extraction needs an alignment file",
         ));
     }
+    Ok(())
+}
+
+/// Extracts the corpus into runs in a temporary directory (one or more per thread).
+pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<ShardRuns> {
+    check_settings(paths, options)?;
     let threads = options.threads.max(1);
     let dir = temp_dir(&options.temp_dir, "baler-extract-")?;
     let mut reader = CorpusReader::open(paths, options.corpus)?;
