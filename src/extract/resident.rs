@@ -28,7 +28,8 @@
 //! takes the map/reduce path.
 
 use std::io::Write;
-use std::sync::atomic::{AtomicU32, Ordering};
+use std::sync::atomic::{AtomicU32, AtomicUsize, Ordering};
+use std::sync::mpsc;
 
 use rustc_hash::FxHashMap;
 
@@ -90,6 +91,8 @@ impl Vocabulary {
 
 /// Phrases of one side as a prefix tree over word ids; node 0 is the empty phrase.
 struct PhraseTree {
+    /// The one-word phrases, by word id (most lookups start there).
+    first: Vec<u32>,
     children: FxHashMap<u64, u32>,
     parent: Vec<u32>,
     word: Vec<u32>,
@@ -100,6 +103,7 @@ struct PhraseTree {
 impl PhraseTree {
     fn new() -> PhraseTree {
         PhraseTree {
+            first: Vec::new(),
             children: FxHashMap::default(),
             parent: vec![NO_NODE],
             word: vec![0],
@@ -113,7 +117,18 @@ impl PhraseTree {
 
     fn child(&mut self, node: u32, word: u32) -> u32 {
         let next = self.parent.len() as u32;
-        let child = *self.children.entry(Self::key(node, word)).or_insert(next);
+        let child = if node == ROOT {
+            let w = word as usize;
+            if w >= self.first.len() {
+                self.first.resize((w + 1).max(self.first.len() * 2), NO_NODE);
+            }
+            if self.first[w] == NO_NODE {
+                self.first[w] = next;
+            }
+            self.first[w]
+        } else {
+            *self.children.entry(Self::key(node, word)).or_insert(next)
+        };
         if child == next {
             self.parent.push(node);
             self.word.push(word);
@@ -123,6 +138,9 @@ impl PhraseTree {
     }
 
     fn find(&self, node: u32, word: u32) -> Option<u32> {
+        if node == ROOT {
+            return self.first.get(word as usize).copied().filter(|&n| n != NO_NODE);
+        }
         self.children.get(&Self::key(node, word)).copied()
     }
 
@@ -218,6 +236,8 @@ struct Side {
     vocabulary: Vocabulary,
     sentences: Sentences,
     tree: PhraseTree,
+    /// The phrase node of every phrase-pair occurrence, in order.
+    occurrences: Vec<u32>,
 }
 
 impl Side {
@@ -226,6 +246,7 @@ impl Side {
             vocabulary: Vocabulary::default(),
             sentences: Sentences::default(),
             tree: PhraseTree::new(),
+            occurrences: Vec::new(),
         }
     }
 
@@ -239,38 +260,89 @@ impl Side {
         self.sentences.ends.push(self.sentences.words.len());
     }
 
-    /// The node of tokens `start..end` of the last sentence, through the memo of this
-    /// sentence's spans (`memo[start * max + length - 1]`).
-    fn span_node(&mut self, start: usize, end: usize, max: usize, memo: &mut [u32]) -> u32 {
-        let slot = start * max + (end - start - 1);
-        if memo[slot] != NO_NODE {
-            return memo[slot];
-        }
-        let sentence_start = self.sentences.words.len() - memo.len() / max;
-        let word = self.sentences.words[sentence_start + end - 1];
-        let parent = if end - start == 1 {
-            ROOT
-        } else {
-            self.span_node(start, end - 1, max, memo)
-        };
-        let node = self.tree.child(parent, word);
-        memo[slot] = node;
-        node
-    }
-
     fn bytes(&self) -> usize {
-        self.sentences.words.len() * 4
-            + self.tree.len() * PhraseTree::NODE_BYTES
-            + self.vocabulary.words.len() * 48
+        self.sentences.words.len() * 4 + self.vocabulary.words.len() * 48
     }
+}
+
+/// One side's spans of a batch of sentences, for [`intern_spans`].
+#[derive(Default)]
+struct SpanBatch {
+    words: Vec<u32>,
+    /// `sentence_ends[k]`: end of sentence `k` in `words`.
+    sentence_ends: Vec<usize>,
+    /// `(start, end)` token spans; `span_ends[k]`: end of sentence `k`'s spans.
+    spans: Vec<(u16, u16)>,
+    span_ends: Vec<usize>,
+}
+
+impl SpanBatch {
+    fn push(&mut self, words: &[u32], spans: impl Iterator<Item = (u16, u16)>) {
+        self.words.extend_from_slice(words);
+        self.sentence_ends.push(self.words.len());
+        self.spans.extend(spans);
+        self.span_ends.push(self.spans.len());
+    }
+}
+
+/// Turns one side's spans into phrase nodes (one thread per side, beside the reader).
+fn intern_spans(
+    batches: mpsc::Receiver<SpanBatch>,
+    max: usize,
+    nodes: &AtomicUsize,
+) -> (PhraseTree, Vec<u32>) {
+    let mut tree = PhraseTree::new();
+    let mut occurrences = Vec::new();
+    let mut memo = Vec::new();
+    for batch in batches {
+        let (mut word_start, mut span_start) = (0, 0);
+        for (&word_end, &span_end) in batch.sentence_ends.iter().zip(&batch.span_ends) {
+            let words = &batch.words[word_start..word_end];
+            memo.clear();
+            memo.resize(words.len() * max, NO_NODE);
+            for &(start, end) in &batch.spans[span_start..span_end] {
+                let (start, end) = (usize::from(start), usize::from(end));
+                let node = span_node(&mut tree, words, start, end, max, &mut memo);
+                tree.extracted[node as usize] = true;
+                occurrences.push(node);
+            }
+            (word_start, span_start) = (word_end, span_end);
+        }
+        nodes.store(tree.len(), Ordering::Relaxed);
+    }
+    (tree, occurrences)
+}
+
+/// The node of `words[start..end]`, through the memo of this sentence's spans
+/// (`memo[start * max + length - 1]`).
+fn span_node(
+    tree: &mut PhraseTree,
+    words: &[u32],
+    start: usize,
+    end: usize,
+    max: usize,
+    memo: &mut [u32],
+) -> u32 {
+    let slot = start * max + (end - start - 1);
+    if memo[slot] != NO_NODE {
+        return memo[slot];
+    }
+    let parent = if end - start == 1 {
+        ROOT
+    } else {
+        span_node(tree, words, start, end - 1, max, memo)
+    };
+    let node = tree.child(parent, words[end - 1]);
+    memo[slot] = node;
+    node
 }
 
 /// Everything [`read_and_extract`] gathers.
 struct Extracted {
     source: Side,
     target: Side,
-    /// `(source node, target node, alignment id)` of every phrase-pair occurrence.
-    occurrences: Vec<[u32; 3]>,
+    /// The internal alignment id of every phrase-pair occurrence.
+    occurrence_alignments: Vec<u32>,
     /// Internal alignments as text, by id.
     alignments: Vec<Box<str>>,
     /// Word-link counts (source word, target word), 0 being NULL.
@@ -278,7 +350,12 @@ struct Extracted {
     stats: CorpusStats,
 }
 
-/// Step 1. `None` when the job outgrows `memory`.
+/// Sentence pairs per batch sent to the span threads.
+const BATCH: usize = 1024;
+
+/// Step 1. `None` when the job outgrows `memory`. This thread reads the corpus, numbers the
+/// words, finds the phrase pairs and numbers their alignments; one thread per side numbers
+/// the phrases.
 fn read_and_extract(paths: &CorpusPaths, options: &ShardOptions) -> Result<Option<Extracted>> {
     let max = options.limits.max_length;
     let mut reader = CorpusReader::open(paths, options.corpus)?;
@@ -287,19 +364,59 @@ fn read_and_extract(paths: &CorpusPaths, options: &ShardOptions) -> Result<Optio
     let mut x = Extracted {
         source: Side::new(),
         target: Side::new(),
-        occurrences: Vec::new(),
+        occurrence_alignments: Vec::new(),
         alignments: Vec::new(),
         links: FastMap::default(),
         stats: CorpusStats::default(),
     };
+    let (source_nodes, target_nodes) = (AtomicUsize::new(0), AtomicUsize::new(0));
+    let (source_tx, source_rx) = mpsc::sync_channel::<SpanBatch>(4);
+    let (target_tx, target_rx) = mpsc::sync_channel::<SpanBatch>(4);
+    let fits = std::thread::scope(|scope| -> Result<bool> {
+        let source_thread = scope.spawn(|| intern_spans(source_rx, max, &source_nodes));
+        let target_thread = scope.spawn(|| intern_spans(target_rx, max, &target_nodes));
+        let read = read_spans(
+            &mut reader,
+            options,
+            &mut x,
+            &source_tx,
+            &target_tx,
+            || source_nodes.load(Ordering::Relaxed) + target_nodes.load(Ordering::Relaxed),
+            |sentences| progress.update(counter.load(Ordering::Relaxed), sentences),
+        );
+        drop((source_tx, target_tx));
+        let (tree, occurrences) = source_thread.join().expect("phrase thread panicked");
+        (x.source.tree, x.source.occurrences) = (tree, occurrences);
+        let (tree, occurrences) = target_thread.join().expect("phrase thread panicked");
+        (x.target.tree, x.target.occurrences) = (tree, occurrences);
+        read
+    });
+    progress.finish();
+    if !fits? {
+        return Ok(None);
+    }
+    x.stats = reader.stats();
+    Ok(Some(x))
+}
+
+/// The reading half of [`read_and_extract`]; false when the budget is exceeded.
+fn read_spans(
+    reader: &mut CorpusReader,
+    options: &ShardOptions,
+    x: &mut Extracted,
+    source_tx: &mpsc::SyncSender<SpanBatch>,
+    target_tx: &mpsc::SyncSender<SpanBatch>,
+    nodes: impl Fn() -> usize,
+    progress: impl Fn(u64),
+) -> Result<bool> {
     let mut alignment_ids: FxHashMap<Box<str>, u32> = FxHashMap::default();
     let mut alignment_bytes = 0usize;
     let mut pair = SentencePair::default();
     let mut finder = PhraseFinder::default();
     let mut spans: Vec<SpanPair> = Vec::new();
-    let (mut source_memo, mut target_memo) = (Vec::new(), Vec::new());
     let mut text = String::new();
     let (mut source_aligned, mut target_aligned) = (Vec::new(), Vec::new());
+    let (mut source_batch, mut target_batch) = (SpanBatch::default(), SpanBatch::default());
     let budget = options.memory as usize;
     while reader.next_pair(&mut pair)? {
         let (ns, nt) = (pair.source_len(), pair.target_len());
@@ -324,22 +441,13 @@ fn read_and_extract(paths: &CorpusPaths, options: &ShardOptions) -> Result<Optio
         for j in (0..nt).filter(|&j| !target_aligned[j]) {
             *x.links.entry((0, e[j])).or_insert(0) += 1;
         }
-        // Phrase pairs.
+        // Phrase pairs: spans to the phrase threads, alignments numbered here.
         spans.clear();
         finder.find(ns, nt, &pair.links, options.limits, |p| spans.push(p));
-        source_memo.clear();
-        source_memo.resize(ns * max, NO_NODE);
-        target_memo.clear();
-        target_memo.resize(nt * max, NO_NODE);
+        let span = |a: usize, b: usize| (a as u16, b as u16);
+        source_batch.push(f, spans.iter().map(|p| span(p.source_start, p.source_end)));
+        target_batch.push(e, spans.iter().map(|p| span(p.target_start, p.target_end)));
         for &p in &spans {
-            let s = x
-                .source
-                .span_node(p.source_start, p.source_end, max, &mut source_memo);
-            let t = x
-                .target
-                .span_node(p.target_start, p.target_end, max, &mut target_memo);
-            x.source.tree.extracted[s as usize] = true;
-            x.target.tree.extracted[t as usize] = true;
             text.clear();
             write_inside(&pair.links, p, &mut text);
             let a = match alignment_ids.get(text.as_str()) {
@@ -352,26 +460,29 @@ fn read_and_extract(paths: &CorpusPaths, options: &ShardOptions) -> Result<Optio
                     a
                 }
             };
-            x.occurrences.push([s, t, a]);
+            x.occurrence_alignments.push(a);
         }
-        if x.source.sentences.ends.len() % 1024 == 0 {
-            progress.update(counter.load(Ordering::Relaxed), reader.stats().sentence_pairs);
-            // The later steps hold about twice the occurrences again (sorted ranges and
-            // the pairs), and the sentence counters.
-            let used = x.occurrences.capacity() * 12 * 3
+        if source_batch.sentence_ends.len() == BATCH {
+            let ok = source_tx.send(std::mem::take(&mut source_batch)).is_ok()
+                && target_tx.send(std::mem::take(&mut target_batch)).is_ok();
+            assert!(ok, "the phrase threads outlive the reader");
+            progress(x.source.sentences.ends.len() as u64);
+            // The occurrences (three numbers each) are held about three times over at the
+            // peak of the later steps: as read, as sorted keys, and as pairs.
+            let used = x.occurrence_alignments.capacity() * 12 * 3
+                + nodes() * PhraseTree::NODE_BYTES
                 + x.source.bytes()
                 + x.target.bytes()
                 + x.links.len() * 24
                 + alignment_bytes;
             if used > budget {
-                progress.finish();
-                return Ok(None);
+                return Ok(false);
             }
         }
     }
-    progress.finish();
-    x.stats = reader.stats();
-    Ok(Some(x))
+    let ok = source_tx.send(source_batch).is_ok() && target_tx.send(target_batch).is_ok();
+    assert!(ok, "the phrase threads outlive the reader");
+    Ok(true)
 }
 
 /// Step 2's result: phrase and alignment numbers in table order.
@@ -448,23 +559,24 @@ fn split_by_weight(weights: &[u64], parts: usize) -> Vec<usize> {
     bounds
 }
 
-/// Step 3. Consumes the occurrences.
-fn aggregate(occurrences: Vec<[u32; 3]>, ranks: &Ranks, threads: usize) -> Table {
+/// Step 3. Consumes the occurrences: `[source node, target node, alignment id]`.
+fn aggregate(occurrences: [Vec<u32>; 3], ranks: &Ranks, threads: usize) -> Table {
     let sources = ranks.source_nodes.len();
     let targets = ranks.target_nodes.len();
     let mut per_source = vec![0u64; sources];
-    for o in &occurrences {
-        per_source[ranks.source_rank[o[0] as usize] as usize] += 1;
+    for &node in &occurrences[0] {
+        per_source[ranks.source_rank[node as usize] as usize] += 1;
     }
     let bounds = split_by_weight(&per_source, threads);
     drop(per_source);
     // Keys (source, target, alignment) in table order, bucketed by source range.
     let mut buckets: Vec<Vec<u128>> = vec![Vec::new(); threads];
     let bucket_of = |s: usize| bounds[1..].partition_point(|&b| b <= s);
-    for o in occurrences {
-        let s = ranks.source_rank[o[0] as usize];
-        let t = ranks.target_rank[o[1] as usize];
-        let a = ranks.alignment_rank[o[2] as usize];
+    let [sources_of, targets_of, alignments_of] = occurrences;
+    for k in 0..sources_of.len() {
+        let s = ranks.source_rank[sources_of[k] as usize];
+        let t = ranks.target_rank[targets_of[k] as usize];
+        let a = ranks.alignment_rank[alignments_of[k] as usize];
         let key = (u128::from(s) << 64) | (u128::from(t) << 32) | u128::from(a);
         buckets[bucket_of(s as usize)].push(key);
     }
@@ -720,24 +832,38 @@ fn write_table<W: Write>(
         header: &header,
         header_len,
     };
-    for round in blocks.chunks(threads.max(1)) {
-        let texts: Vec<Result<Vec<u8>>> = std::thread::scope(|scope| {
-            let handles: Vec<_> = round
-                .iter()
-                .map(|&block| {
-                    let context = &context;
-                    scope.spawn(move || context.format_block(block).map_err(werr))
-                })
-                .collect();
-            handles
-                .into_iter()
-                .map(|h| h.join().expect("row formatting thread panicked"))
-                .collect()
-        });
-        for text in texts {
-            out.write_all(&text?).map_err(werr)?;
+    // Threads take blocks in turn; this thread writes them in order as they arrive.
+    let next_block = AtomicUsize::new(0);
+    let (tx, rx) = mpsc::sync_channel::<(usize, std::io::Result<Vec<u8>>)>(threads * 2);
+    std::thread::scope(|scope| -> Result<()> {
+        for _ in 0..threads.max(1) {
+            let (context, blocks, next_block, tx) = (&context, &blocks, &next_block, tx.clone());
+            scope.spawn(move || loop {
+                let k = next_block.fetch_add(1, Ordering::Relaxed);
+                let Some(&block) = blocks.get(k) else { break };
+                if tx.send((k, context.format_block(block))).is_err() {
+                    break;
+                }
+            });
         }
-    }
+        drop(tx);
+        let mut waiting = std::collections::BTreeMap::new();
+        let mut next = 0;
+        let written = (|| -> Result<()> {
+            for (k, text) in &rx {
+                waiting.insert(k, text.map_err(werr)?);
+                while let Some(text) = waiting.remove(&next) {
+                    out.write_all(&text).map_err(werr)?;
+                    next += 1;
+                }
+            }
+            Ok(())
+        })();
+        // On an error, stop the threads: they find no more blocks.
+        next_block.store(blocks.len(), Ordering::Relaxed);
+        drop(rx);
+        written
+    })?;
     out.flush().map_err(werr)?;
     Ok(())
 }
@@ -782,7 +908,8 @@ impl RowContext<'_> {
         (r, first, end, first_pair): (usize, usize, usize, usize),
     ) -> std::io::Result<Vec<u8>> {
         let range = &self.table.ranges[r];
-        let mut writer = TsvWriter::new(Vec::new(), self.header)?;
+        let rows = range.offsets[end] - range.offsets[first];
+        let mut writer = TsvWriter::new(Vec::with_capacity(rows * 160), self.header)?;
         writer.get_mut().drain(..self.header_len);
         let mut row = PhrasePair {
             scores: vec![0.0; 4],
@@ -870,8 +997,12 @@ pub(crate) fn extract_resident<W: Write>(
     }
     next_lap(0);
     let ranks = rank(&x);
-    let occurrences = std::mem::take(&mut x.occurrences);
-    let pair_occurrences = occurrences.len() as u64;
+    let occurrences = [
+        std::mem::take(&mut x.source.occurrences),
+        std::mem::take(&mut x.target.occurrences),
+        std::mem::take(&mut x.occurrence_alignments),
+    ];
+    let pair_occurrences = occurrences[0].len() as u64;
     let table = aggregate(occurrences, &ranks, threads);
     next_lap(1);
     let max = options.limits.max_length;
