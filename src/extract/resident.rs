@@ -1014,6 +1014,7 @@ pub(crate) fn extract_resident<W: Write>(
         max_sentence_length: options.corpus.max_sentence_length,
         unaligned_edges: options.limits.unaligned_edges,
         pair_occurrences,
+        shards: Vec::new(),
     };
     write_table(
         &x,
