@@ -873,3 +873,70 @@ fn defect5_attach_refuses_a_repeated_tally() {
     );
     assert!(!out.exists());
 }
+
+/// Defect 4 of the reliability review: `extract tally --index <damaged index>` panicked or
+/// silently wrote wrong counts. Every intermediate (count run, phrase index, tally) carries a
+/// checksum verified on read: each damaged copy is a clear error (exit 2), never a panic.
+#[test]
+fn defect4_damaged_intermediates_are_errors() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), 200);
+    let (s, t, a) = (
+        paths.source.to_str().unwrap(),
+        paths.target.to_str().unwrap(),
+        paths.alignment.as_ref().unwrap().to_str().unwrap(),
+    );
+    let run = dir.path().join("a.run");
+    let r = run.to_str().unwrap();
+    let o = extract_step(
+        &["shard", "-q", "--source", s, "--target", t, "--alignment", a, "-o", r],
+        &[],
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let (table, index, tally) = (
+        dir.path().join("m.tsv"),
+        dir.path().join("m.index"),
+        dir.path().join("a.tally"),
+    );
+    let (tb, ix, ty) = (
+        table.to_str().unwrap(),
+        index.to_str().unwrap(),
+        tally.to_str().unwrap(),
+    );
+    let o = extract_step(&["merge", "-q", "-o", tb, "--index", ix], &[&run]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let tally_args = |index: &str, out: &str| {
+        let v = ["tally", "-q", "--index", index, "--source", s, "--target", t, "-o", out];
+        v.map(String::from)
+    };
+    let o = baler().arg("extract").args(tally_args(ix, ty)).output().unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let damaged = dir.path().join("damaged");
+    let out = dir.path().join("out");
+    for (file, kind) in [(&run, "run"), (&index, "index"), (&tally, "tally")] {
+        let bytes = std::fs::read(file).unwrap();
+        for k in 0..20 {
+            let mut copy = bytes.clone();
+            let at = 5 + k * (bytes.len() - 6) / 20;
+            copy[at] ^= 0x5A;
+            std::fs::write(&damaged, &copy).unwrap();
+            let d = damaged.to_str().unwrap();
+            let o = match kind {
+                "run" => extract_step(&["merge", "-q", "-o", out.to_str().unwrap()], &[&damaged]),
+                "index" => baler()
+                    .arg("extract")
+                    .args(tally_args(d, out.to_str().unwrap()))
+                    .output()
+                    .unwrap(),
+                _ => extract_step(
+                    &["attach", "--table", tb, "-o", out.to_str().unwrap()],
+                    &[&damaged],
+                ),
+            };
+            let stderr = String::from_utf8_lossy(&o.stderr);
+            assert_eq!(o.status.code(), Some(2), "{kind} damaged at {at}: {stderr}");
+            assert!(stderr.contains("damaged") || stderr.contains("not zstd"), "{stderr}");
+            assert!(!out.exists(), "{kind} damaged at {at} left an output");
+        }
+    }
+}

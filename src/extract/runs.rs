@@ -137,6 +137,7 @@ impl RunWriter {
         let mut encoder =
             zstd::stream::write::Encoder::new(BufWriter::with_capacity(1 << 16, file), 1)
                 .map_err(werr)?;
+        encoder.include_checksum(true).map_err(werr)?;
         let json = serde_json::to_vec(info).expect("run info serializes");
         encoder.write_all(MAGIC).map_err(werr)?;
         encoder.write_all(&VERSION.to_le_bytes()).map_err(werr)?;

@@ -385,6 +385,9 @@ impl TallyWriter {
         let file = std::fs::File::create(path).map_err(|e| Error::io(path, "creating", e))?;
         let mut encoder = zstd::stream::write::Encoder::new(BufWriter::new(file), 1)
             .map_err(|e| Error::io(path, "creating", e))?;
+        encoder
+            .include_checksum(true)
+            .map_err(|e| Error::io(path, "creating", e))?;
         let json = serde_json::to_vec(info).expect("tally info serializes");
         let mut head = MAGIC.to_vec();
         head.extend_from_slice(&VERSION.to_le_bytes());
