@@ -757,7 +757,11 @@ fn rows_follow_byte_order_with_control_bytes_inside_words() {
     let paths = CorpusPaths {
         source: write(dir.path(), "s", "x y\nx\u{1}\n\u{7}x y\nx y x\u{1}\n"),
         target: write(dir.path(), "t", "p q\np\u{2}\nr p q\np q p\u{2}\n"),
-        alignment: Some(write(dir.path(), "a", "0-0 1-1\n0-0\n0-1 1-2\n0-0 1-1 2-2\n")),
+        alignment: Some(write(
+            dir.path(),
+            "a",
+            "0-0 1-1\n0-0\n0-1 1-2\n0-0 1-1 2-2\n",
+        )),
     };
     let out = dir.path().join("table.tsv");
     run_extract(&paths, &out, &["-q"]);
@@ -806,7 +810,10 @@ fn defect5_merge_refuses_a_repeated_run() {
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let merged = dir.path().join("m.tsv");
-    let o = extract_step(&["merge", "-q", "-o", merged.to_str().unwrap()], &[&run, &run]);
+    let o = extract_step(
+        &["merge", "-q", "-o", merged.to_str().unwrap()],
+        &[&run, &run],
+    );
     assert!(!o.status.success());
     assert!(
         String::from_utf8_lossy(&o.stderr).contains("repeats corpus shard"),
@@ -830,7 +837,18 @@ fn defect5_attach_refuses_a_repeated_tally() {
     );
     let r = run.to_str().unwrap();
     let o = extract_step(
-        &["shard", "-q", "--source", s, "--target", t, "--alignment", a, "-o", r],
+        &[
+            "shard",
+            "-q",
+            "--source",
+            s,
+            "--target",
+            t,
+            "--alignment",
+            a,
+            "-o",
+            r,
+        ],
         &[],
     );
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
@@ -840,7 +858,14 @@ fn defect5_attach_refuses_a_repeated_tally() {
         dir.path().join("a.tally"),
     );
     let o = extract_step(
-        &["merge", "-q", "-o", table.to_str().unwrap(), "--index", index.to_str().unwrap()],
+        &[
+            "merge",
+            "-q",
+            "-o",
+            table.to_str().unwrap(),
+            "--index",
+            index.to_str().unwrap(),
+        ],
         &[&run],
     );
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
@@ -862,7 +887,13 @@ fn defect5_attach_refuses_a_repeated_tally() {
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let out = dir.path().join("final.tsv");
     let o = extract_step(
-        &["attach", "--table", table.to_str().unwrap(), "-o", out.to_str().unwrap()],
+        &[
+            "attach",
+            "--table",
+            table.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ],
         &[&tally, &tally],
     );
     assert!(!o.status.success());
@@ -889,7 +920,18 @@ fn defect4_damaged_intermediates_are_errors() {
     let run = dir.path().join("a.run");
     let r = run.to_str().unwrap();
     let o = extract_step(
-        &["shard", "-q", "--source", s, "--target", t, "--alignment", a, "-o", r],
+        &[
+            "shard",
+            "-q",
+            "--source",
+            s,
+            "--target",
+            t,
+            "--alignment",
+            a,
+            "-o",
+            r,
+        ],
         &[],
     );
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
@@ -906,10 +948,16 @@ fn defect4_damaged_intermediates_are_errors() {
     let o = extract_step(&["merge", "-q", "-o", tb, "--index", ix], &[&run]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let tally_args = |index: &str, out: &str| {
-        let v = ["tally", "-q", "--index", index, "--source", s, "--target", t, "-o", out];
+        let v = [
+            "tally", "-q", "--index", index, "--source", s, "--target", t, "-o", out,
+        ];
         v.map(String::from)
     };
-    let o = baler().arg("extract").args(tally_args(ix, ty)).output().unwrap();
+    let o = baler()
+        .arg("extract")
+        .args(tally_args(ix, ty))
+        .output()
+        .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let damaged = dir.path().join("damaged");
     let out = dir.path().join("out");
@@ -935,7 +983,10 @@ fn defect4_damaged_intermediates_are_errors() {
             };
             let stderr = String::from_utf8_lossy(&o.stderr);
             assert_eq!(o.status.code(), Some(2), "{kind} damaged at {at}: {stderr}");
-            assert!(stderr.contains("damaged") || stderr.contains("not zstd"), "{stderr}");
+            assert!(
+                stderr.contains("damaged") || stderr.contains("not zstd"),
+                "{stderr}"
+            );
             assert!(!out.exists(), "{kind} damaged at {at} left an output");
         }
     }

@@ -120,7 +120,8 @@ impl PhraseTree {
         let child = if node == ROOT {
             let w = word as usize;
             if w >= self.first.len() {
-                self.first.resize((w + 1).max(self.first.len() * 2), NO_NODE);
+                self.first
+                    .resize((w + 1).max(self.first.len() * 2), NO_NODE);
             }
             if self.first[w] == NO_NODE {
                 self.first[w] = next;
@@ -139,7 +140,11 @@ impl PhraseTree {
 
     fn find(&self, node: u32, word: u32) -> Option<u32> {
         if node == ROOT {
-            return self.first.get(word as usize).copied().filter(|&n| n != NO_NODE);
+            return self
+                .first
+                .get(word as usize)
+                .copied()
+                .filter(|&n| n != NO_NODE);
         }
         self.children.get(&Self::key(node, word)).copied()
     }
@@ -796,8 +801,12 @@ fn write_table<W: Write>(
         .map_err(werr)?
         .into_inner()
         .len();
-    out.write_all(&TsvWriter::new(Vec::new(), &header).map_err(werr)?.into_inner())
-        .map_err(werr)?;
+    out.write_all(
+        &TsvWriter::new(Vec::new(), &header)
+            .map_err(werr)?
+            .into_inner(),
+    )
+    .map_err(werr)?;
     let words = WordTable::from_ids(
         x.links.clone(),
         totals(&x.links, x.source.vocabulary.words.len(), |k| k.0),
@@ -921,10 +930,12 @@ impl RowContext<'_> {
         for k in first..end {
             let s = range.first_source as usize + k;
             let node = self.ranks.source_nodes[s];
-            self.x
-                .source
-                .tree
-                .text(node, &self.x.source.vocabulary, &mut scratch, &mut row.source);
+            self.x.source.tree.text(
+                node,
+                &self.x.source.vocabulary,
+                &mut scratch,
+                &mut row.source,
+            );
             self.x.source.tree.ids(node, &mut f);
             let (cs, ns) = (self.table.source_totals[s], self.table.source_distinct[s]);
             let df_source = self.counts.df_source[s].load(Ordering::Relaxed);
@@ -940,7 +951,8 @@ impl RowContext<'_> {
                 );
                 self.x.target.tree.ids(tnode, &mut e);
                 let (ct, nt) = (self.table.target_totals[t], self.table.target_distinct[t]);
-                row.alignment.clone_from(&self.links[pair.alignment as usize]);
+                row.alignment
+                    .clone_from(&self.links[pair.alignment as usize]);
                 let (p_t_given_s, p_s_given_t) =
                     self.scorer
                         .probabilities(pair.count, cs, ct, u64::from(ns), u64::from(nt));

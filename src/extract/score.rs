@@ -733,7 +733,14 @@ impl Scorer {
         }
     }
 
-    pub(crate) fn probabilities(&self, count: u64, cs: u64, ct: u64, ns: u64, nt: u64) -> (f64, f64) {
+    pub(crate) fn probabilities(
+        &self,
+        count: u64,
+        cs: u64,
+        ct: u64,
+        ns: u64,
+        nt: u64,
+    ) -> (f64, f64) {
         let (c, cs, ct) = (count as f64, cs as f64, ct as f64);
         match self.discount {
             Discount::None => (c / cs, c / ct),

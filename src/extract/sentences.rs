@@ -671,7 +671,9 @@ pub fn attach<W: Write>(
     let mut sentence_pairs = 0u64;
     let mut table_pairs = None;
     for (k, (r, path)) in readers.iter().zip(tallies).enumerate() {
-        let repeat = readers[..k].iter().position(|o| o.info.shard == r.info.shard);
+        let repeat = readers[..k]
+            .iter()
+            .position(|o| o.info.shard == r.info.shard);
         if let Some(first) = repeat.filter(|_| r.info.shard != 0) {
             return Err(Error::Unsupported(format!(
                 "{} counts the same corpus shard as {}: each shard's tally must be given once",
