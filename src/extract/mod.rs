@@ -19,9 +19,13 @@
 //! chunk. Beyond the budget: the word translation table (one entry per distinct word link)
 //! and the options of the one source being scored are held in memory.
 //!
-//! [`extract`] runs the four steps on one machine. Every count is an integer summed by key,
-//! and every score is computed from the summed counts in one thread, so the output is
-//! byte-identical whatever the number of threads or shards.
+//! [`extract`] runs the job on one machine. When the corpus fits `--memory` it does so in one
+//! pass in memory (words as integer ids, phrases as nodes of a prefix tree, no intermediate
+//! files; sums parallel by source range, sentence counts parallel by sentence); otherwise, or
+//! when some word holds a control byte after its first byte (so that word order and text order
+//! differ), it runs the four steps above. Every count is an integer summed by key and every
+//! score is computed from the summed counts, so the output is byte-identical whatever the path,
+//! the number of threads or shards.
 //!
 //! ```
 //! # fn main() -> baler::Result<()> {
