@@ -746,3 +746,248 @@ fn shipped_demo_table_is_the_extraction_of_the_demo_corpus() {
         "demo-data/toolshed.tsv differs from a fresh extraction"
     );
 }
+
+/// The table is sorted by the bytes of source, then target (the interchange format's order),
+/// also when a word holds a control byte after its first byte: there, comparing word by word
+/// and comparing the joined text disagree ("x\u{1}" sorts before "x y" as text), and the
+/// in-memory path must not take its word-order shortcut.
+#[test]
+fn rows_follow_byte_order_with_control_bytes_inside_words() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = CorpusPaths {
+        source: write(dir.path(), "s", "x y\nx\u{1}\n\u{7}x y\nx y x\u{1}\n"),
+        target: write(dir.path(), "t", "p q\np\u{2}\nr p q\np q p\u{2}\n"),
+        alignment: Some(write(
+            dir.path(),
+            "a",
+            "0-0 1-1\n0-0\n0-1 1-2\n0-0 1-1 2-2\n",
+        )),
+    };
+    let out = dir.path().join("table.tsv");
+    run_extract(&paths, &out, &["-q"]);
+    let text = std::fs::read_to_string(&out).unwrap();
+    let keys: Vec<Vec<u8>> = text
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .skip(1)
+        .map(|l| {
+            let mut f = l.split('\t');
+            let (s, t) = (f.next().unwrap(), f.next().unwrap());
+            [s.as_bytes(), &[0], t.as_bytes()].concat()
+        })
+        .collect();
+    assert!(keys.iter().any(|k| k.starts_with(b"x\x01\0")), "{text}");
+    assert!(keys.iter().any(|k| k.starts_with(b"x y\0")), "{text}");
+    assert!(keys.windows(2).all(|w| w[0] < w[1]), "{text}");
+}
+
+fn extract_step(args: &[&str], paths: &[&Path]) -> std::process::Output {
+    let mut c = baler();
+    c.arg("extract").args(args);
+    for p in paths {
+        c.arg(p);
+    }
+    c.output().unwrap()
+}
+
+/// Defect 5 of the reliability review: `merge a.run a.run` doubled every count. A run records
+/// the identity of its corpus shard, and a shard given twice is refused.
+#[test]
+fn defect5_merge_refuses_a_repeated_run() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), 50);
+    let run = dir.path().join("a.run");
+    let o = baler()
+        .args(["extract", "shard", "-q", "--source"])
+        .arg(&paths.source)
+        .arg("--target")
+        .arg(&paths.target)
+        .arg("--alignment")
+        .arg(paths.alignment.as_ref().unwrap())
+        .arg("-o")
+        .arg(&run)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let merged = dir.path().join("m.tsv");
+    let o = extract_step(
+        &["merge", "-q", "-o", merged.to_str().unwrap()],
+        &[&run, &run],
+    );
+    assert!(!o.status.success());
+    assert!(
+        String::from_utf8_lossy(&o.stderr).contains("repeats corpus shard"),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(!merged.exists());
+}
+
+/// Defect 5 of the reliability review: `attach` accepted the same tally twice (rows with
+/// count 2 and cooc 0). A tally records its shard's identity, and a repeat is refused.
+#[test]
+fn defect5_attach_refuses_a_repeated_tally() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), 50);
+    let run = dir.path().join("a.run");
+    let (s, t, a) = (
+        paths.source.to_str().unwrap(),
+        paths.target.to_str().unwrap(),
+        paths.alignment.as_ref().unwrap().to_str().unwrap(),
+    );
+    let r = run.to_str().unwrap();
+    let o = extract_step(
+        &[
+            "shard",
+            "-q",
+            "--source",
+            s,
+            "--target",
+            t,
+            "--alignment",
+            a,
+            "-o",
+            r,
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let (table, index, tally) = (
+        dir.path().join("m.tsv"),
+        dir.path().join("m.index"),
+        dir.path().join("a.tally"),
+    );
+    let o = extract_step(
+        &[
+            "merge",
+            "-q",
+            "-o",
+            table.to_str().unwrap(),
+            "--index",
+            index.to_str().unwrap(),
+        ],
+        &[&run],
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let o = extract_step(
+        &[
+            "tally",
+            "-q",
+            "--index",
+            index.to_str().unwrap(),
+            "--source",
+            s,
+            "--target",
+            t,
+            "-o",
+            tally.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let out = dir.path().join("final.tsv");
+    let o = extract_step(
+        &[
+            "attach",
+            "--table",
+            table.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[&tally, &tally],
+    );
+    assert!(!o.status.success());
+    assert!(
+        String::from_utf8_lossy(&o.stderr).contains("counts the same corpus shard"),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(!out.exists());
+}
+
+/// Defect 4 of the reliability review: `extract tally --index <damaged index>` panicked or
+/// silently wrote wrong counts. Every intermediate (count run, phrase index, tally) carries a
+/// checksum verified on read: each damaged copy is a clear error (exit 2), never a panic.
+#[test]
+fn defect4_damaged_intermediates_are_errors() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), 200);
+    let (s, t, a) = (
+        paths.source.to_str().unwrap(),
+        paths.target.to_str().unwrap(),
+        paths.alignment.as_ref().unwrap().to_str().unwrap(),
+    );
+    let run = dir.path().join("a.run");
+    let r = run.to_str().unwrap();
+    let o = extract_step(
+        &[
+            "shard",
+            "-q",
+            "--source",
+            s,
+            "--target",
+            t,
+            "--alignment",
+            a,
+            "-o",
+            r,
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let (table, index, tally) = (
+        dir.path().join("m.tsv"),
+        dir.path().join("m.index"),
+        dir.path().join("a.tally"),
+    );
+    let (tb, ix, ty) = (
+        table.to_str().unwrap(),
+        index.to_str().unwrap(),
+        tally.to_str().unwrap(),
+    );
+    let o = extract_step(&["merge", "-q", "-o", tb, "--index", ix], &[&run]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let tally_args = |index: &str, out: &str| {
+        let v = [
+            "tally", "-q", "--index", index, "--source", s, "--target", t, "-o", out,
+        ];
+        v.map(String::from)
+    };
+    let o = baler()
+        .arg("extract")
+        .args(tally_args(ix, ty))
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let damaged = dir.path().join("damaged");
+    let out = dir.path().join("out");
+    for (file, kind) in [(&run, "run"), (&index, "index"), (&tally, "tally")] {
+        let bytes = std::fs::read(file).unwrap();
+        for k in 0..20 {
+            let mut copy = bytes.clone();
+            let at = 5 + k * (bytes.len() - 6) / 20;
+            copy[at] ^= 0x5A;
+            std::fs::write(&damaged, &copy).unwrap();
+            let d = damaged.to_str().unwrap();
+            let o = match kind {
+                "run" => extract_step(&["merge", "-q", "-o", out.to_str().unwrap()], &[&damaged]),
+                "index" => baler()
+                    .arg("extract")
+                    .args(tally_args(d, out.to_str().unwrap()))
+                    .output()
+                    .unwrap(),
+                _ => extract_step(
+                    &["attach", "--table", tb, "-o", out.to_str().unwrap()],
+                    &[&damaged],
+                ),
+            };
+            let stderr = String::from_utf8_lossy(&o.stderr);
+            assert_eq!(o.status.code(), Some(2), "{kind} damaged at {at}: {stderr}");
+            assert!(
+                stderr.contains("damaged") || stderr.contains("not zstd"),
+                "{stderr}"
+            );
+            assert!(!out.exists(), "{kind} damaged at {at} left an output");
+        }
+    }
+}

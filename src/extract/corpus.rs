@@ -228,6 +228,8 @@ pub struct CorpusReader {
     stats: CorpusStats,
     bytes: Arc<AtomicU64>,
     total_bytes: Option<u64>,
+    source_sum: crc32fast::Hasher,
+    target_sum: crc32fast::Hasher,
 }
 
 impl CorpusReader {
@@ -252,12 +254,22 @@ impl CorpusReader {
             stats: CorpusStats::default(),
             bytes,
             total_bytes,
+            source_sum: crc32fast::Hasher::new(),
+            target_sum: crc32fast::Hasher::new(),
         })
     }
 
     /// What has been read so far.
     pub fn stats(&self) -> CorpusStats {
         self.stats
+    }
+
+    /// The identity of the shard read so far: CRC-32 checksums of its source and target lines
+    /// (the high and low 32 bits), whatever the alignment. Two runs or tallies of the same
+    /// shard carry the same identity, so that a repeated shard can be refused.
+    pub fn fingerprint(&self) -> u64 {
+        (u64::from(self.source_sum.clone().finalize()) << 32)
+            | u64::from(self.target_sum.clone().finalize())
     }
 
     /// Bytes of the source file consumed so far (compressed bytes for compressed input), for
@@ -291,6 +303,13 @@ impl CorpusReader {
                 return Err(reason);
             }
             self.stats.lines += 1;
+            for (sum, side) in [
+                (&mut self.source_sum, &self.source),
+                (&mut self.target_sum, &self.target),
+            ] {
+                sum.update(side.buf.as_bytes());
+                sum.update(b"\n");
+            }
             let ns = tokenize(&self.source.buf, &mut pair.source, &mut pair.source_starts);
             let nt = tokenize(&self.target.buf, &mut pair.target, &mut pair.target_starts);
             if ns == 0 || nt == 0 {

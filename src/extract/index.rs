@@ -208,6 +208,7 @@ impl IndexWriter {
         let werr = |e| Error::io(out, "writing", e);
         let file = File::create(&temp).map_err(werr)?;
         let mut enc = zstd::stream::write::Encoder::new(BufWriter::new(file), 1).map_err(werr)?;
+        enc.include_checksum(true).map_err(werr)?;
         let json = serde_json::to_vec(&self.info).expect("index info serializes");
         enc.write_all(MAGIC).map_err(werr)?;
         enc.write_all(&VERSION.to_le_bytes()).map_err(werr)?;

@@ -19,9 +19,13 @@
 //! chunk. Beyond the budget: the word translation table (one entry per distinct word link)
 //! and the options of the one source being scored are held in memory.
 //!
-//! [`extract`] runs the four steps on one machine. Every count is an integer summed by key,
-//! and every score is computed from the summed counts in one thread, so the output is
-//! byte-identical whatever the number of threads or shards.
+//! [`extract`] runs the job on one machine. When the corpus fits `--memory` it does so in one
+//! pass in memory (words as integer ids, phrases as nodes of a prefix tree, no intermediate
+//! files; sums parallel by source range, sentence counts parallel by sentence); otherwise, or
+//! when some word holds a control byte after its first byte (so that word order and text order
+//! differ), it runs the four steps above. Every count is an integer summed by key and every
+//! score is computed from the summed counts, so the output is byte-identical whatever the path,
+//! the number of threads or shards.
 //!
 //! ```
 //! # fn main() -> baler::Result<()> {
@@ -53,6 +57,7 @@ mod framed;
 pub mod index;
 pub mod phrases;
 mod report;
+mod resident;
 mod resort;
 pub mod runs;
 pub mod score;
@@ -119,6 +124,35 @@ pub fn extract(
             ));
         }
     }
+    shard::check_settings(paths, &options.shard)?;
+    let mut output = Output::create(out)?;
+    if let Some(done) =
+        resident::extract_resident(paths, &options.shard, options.discount, &mut output, out)?
+    {
+        output.commit()?;
+        return Ok(ExtractSummary {
+            corpus: done.info.corpus,
+            pair_occurrences: done.info.pair_occurrences,
+            pairs: done.pairs,
+            sources: done.sources,
+            targets: done.targets,
+            sentence_count_passes: 1,
+            seconds: started.elapsed().as_secs_f64(),
+            step_seconds: done.step_seconds,
+        });
+    }
+    extract_spilling(paths, options, output, started)
+}
+
+/// The map/reduce path on one machine: count runs, merge, tally, attach.
+fn extract_spilling(
+    paths: &CorpusPaths,
+    options: &ExtractOptions,
+    mut output: Output,
+    started: Instant,
+) -> Result<ExtractSummary> {
+    let out = output.path().to_path_buf();
+    let out = out.as_path();
     let work = shard::temp_dir(&options.shard.temp_dir, "baler-extract-work-")?;
     let merged_path = work.path().join("merged.tsv.zst");
     let index_path = work.path().join("merged.index");
@@ -169,7 +203,6 @@ pub fn extract(
     };
     let tally = sentences::tally(&index_path, &counting, &tally_options, &tally_path)?;
     next_lap(2);
-    let mut output = Output::create(out)?;
     sentences::attach(&merged_path, &[tally_path], &mut output, out)?;
     output.commit()?;
     next_lap(3);

@@ -43,6 +43,10 @@ pub struct RunInfo {
     pub unaligned_edges: bool,
     /// Phrase-pair occurrences extracted.
     pub pair_occurrences: u64,
+    /// The identities ([`super::corpus::CorpusReader::fingerprint`]) of the corpus shards
+    /// counted, so that a shard merged twice is refused.
+    #[serde(default)]
+    pub shards: Vec<u64>,
 }
 
 impl RunInfo {
@@ -68,6 +72,13 @@ impl RunInfo {
                 self.unaligned_edges
             )));
         }
+        if let Some(repeat) = other.shards.iter().find(|s| self.shards.contains(s)) {
+            return Err(Error::Unsupported(format!(
+                "{} repeats corpus shard {repeat:016x}, which the runs before it already counted: each shard must be merged once",
+                other_name.display()
+            )));
+        }
+        self.shards.extend_from_slice(&other.shards);
         self.corpus.add(&other.corpus);
         self.pair_occurrences += other.pair_occurrences;
         Ok(())
@@ -75,26 +86,15 @@ impl RunInfo {
 }
 
 /// Appends `v` as LEB128.
-pub(crate) fn put_varint(out: &mut Vec<u8>, mut v: u64) {
-    while v >= 0x80 {
-        out.push((v as u8) | 0x80);
-        v >>= 7;
-    }
-    out.push(v as u8);
-}
+pub(crate) use crate::format::write_varint as put_varint;
 
 /// Reads a LEB128 value from the front of `bytes`, advancing it.
+/// `None` when the bytes end early or the value overflows 64 bits.
 pub(crate) fn take_varint(bytes: &mut &[u8]) -> Option<u64> {
-    let mut v = 0u64;
-    for shift in (0..64).step_by(7) {
-        let (&b, rest) = bytes.split_first()?;
-        *bytes = rest;
-        v |= u64::from(b & 0x7f) << shift;
-        if b < 0x80 {
-            return Some(v);
-        }
-    }
-    None
+    let mut pos = 0;
+    let v = crate::format::read_varint(bytes, &mut pos)?;
+    *bytes = &bytes[pos..];
+    Some(v)
 }
 
 pub(crate) fn read_varint<R: Read>(r: &mut R) -> io::Result<Option<u64>> {
@@ -105,6 +105,9 @@ pub(crate) fn read_varint<R: Read>(r: &mut R) -> io::Result<Option<u64>> {
             0 if k == 0 => return Ok(None),
             0 => return Err(io::ErrorKind::UnexpectedEof.into()),
             _ => {}
+        }
+        if shift == 63 && byte[0] > 1 {
+            break; // past 64 bits
         }
         v |= u64::from(byte[0] & 0x7f) << shift;
         if byte[0] < 0x80 {
@@ -134,6 +137,7 @@ impl RunWriter {
         let mut encoder =
             zstd::stream::write::Encoder::new(BufWriter::with_capacity(1 << 16, file), 1)
                 .map_err(werr)?;
+        encoder.include_checksum(true).map_err(werr)?;
         let json = serde_json::to_vec(info).expect("run info serializes");
         encoder.write_all(MAGIC).map_err(werr)?;
         encoder.write_all(&VERSION.to_le_bytes()).map_err(werr)?;

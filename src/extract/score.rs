@@ -162,6 +162,22 @@ pub struct WordTable {
 }
 
 impl WordTable {
+    /// A table over word ids numbered by the caller (`0` is NULL on both sides): the link
+    /// counts, and each side's totals indexed by id.
+    pub(crate) fn from_ids(
+        joint: FastMap<(u32, u32), u64>,
+        source_totals: Vec<u64>,
+        target_totals: Vec<u64>,
+    ) -> WordTable {
+        WordTable {
+            source_ids: FastMap::default(),
+            target_ids: FastMap::default(),
+            joint,
+            source_totals,
+            target_totals,
+        }
+    }
+
     fn id(ids: &mut FastMap<Box<[u8]>, u32>, totals: &mut Vec<u64>, word: &[u8]) -> u32 {
         if word.is_empty() {
             if totals.is_empty() {
@@ -276,7 +292,7 @@ impl WordTable {
         self.lexical_weights_ids(&f, &e, links)
     }
 
-    fn lexical_weights_ids(
+    pub(crate) fn lexical_weights_ids(
         &self,
         f: &[Option<u32>],
         e: &[Option<u32>],
@@ -519,27 +535,7 @@ pub fn merge_and_score<W: Write + Send>(
 
     // Pass 3 (source order): scores.
     let scorer = Scorer::new(options.discount, &histogram, pairs);
-    let mut header = Header::default();
-    header
-        .metadata
-        .set("sentence_pairs", info.corpus.sentence_pairs.to_string());
-    header
-        .metadata
-        .set("max_length", info.max_length.to_string());
-    header
-        .metadata
-        .set("max_sentence_length", info.max_sentence_length.to_string());
-    header
-        .metadata
-        .set("unaligned_edges", info.unaligned_edges.to_string());
-    header.metadata.set("discount", options.discount.name());
-    header.schema.alignment = true;
-    header.schema.scores = SCORE_COLUMNS.iter().map(|s| s.to_string()).collect();
-    header.schema.counts = vec![
-        CountColumn::Count,
-        CountColumn::CountSource,
-        CountColumn::CountTarget,
-    ];
+    let header = scored_header(&info, options.discount, false);
     let werr = |e| Error::io(output_name, "writing", e);
     let writer = TsvWriter::new(out, &header).map_err(werr)?;
     let mut sorted = by_source.finish()?;
@@ -601,6 +597,27 @@ pub fn merge_and_score<W: Write + Send>(
         sources,
         targets,
     })
+}
+
+/// The header of a scored table: the extraction's settings as metadata, then the alignment,
+/// the [`SCORE_COLUMNS`] and the three phrase counts; with `sentence_counts`, also `cooc`,
+/// `df_source` and `df_target` (the columns [`super::sentences::attach`] appends).
+pub(crate) fn scored_header(info: &RunInfo, discount: Discount, sentence_counts: bool) -> Header {
+    let mut header = Header::default();
+    let meta = &mut header.metadata;
+    meta.set("sentence_pairs", info.corpus.sentence_pairs.to_string());
+    meta.set("max_length", info.max_length.to_string());
+    meta.set("max_sentence_length", info.max_sentence_length.to_string());
+    meta.set("unaligned_edges", info.unaligned_edges.to_string());
+    meta.set("discount", discount.name());
+    header.schema.alignment = true;
+    header.schema.scores = SCORE_COLUMNS.iter().map(|s| s.to_string()).collect();
+    header.schema.counts = if sentence_counts {
+        CountColumn::ALL.to_vec()
+    } else {
+        CountColumn::ALL[..3].to_vec()
+    };
+    header
 }
 
 /// Scores and writes the rows arriving in `rx`.
@@ -683,7 +700,7 @@ fn parse_links(text: &[u8], links: &mut Vec<(u16, u16)>) -> Result<()> {
 }
 
 /// Turns counts into the two conditional probabilities under a [`Discount`].
-struct Scorer {
+pub(crate) struct Scorer {
     discount: Discount,
     good_turing: Vec<f64>,
     kneser_ney: f64,
@@ -691,7 +708,7 @@ struct Scorer {
 }
 
 impl Scorer {
-    fn new(discount: Discount, histogram: &[u64], distinct_pairs: u64) -> Scorer {
+    pub(crate) fn new(discount: Discount, histogram: &[u64], distinct_pairs: u64) -> Scorer {
         let n = |c: usize| histogram.get(c).copied().unwrap_or(0) as f64;
         let mut good_turing = vec![0.0; GOOD_TURING_MAX_COUNT as usize + 1];
         for (c, slot) in good_turing.iter_mut().enumerate().skip(1) {
@@ -716,7 +733,14 @@ impl Scorer {
         }
     }
 
-    fn probabilities(&self, count: u64, cs: u64, ct: u64, ns: u64, nt: u64) -> (f64, f64) {
+    pub(crate) fn probabilities(
+        &self,
+        count: u64,
+        cs: u64,
+        ct: u64,
+        ns: u64,
+        nt: u64,
+    ) -> (f64, f64) {
         let (c, cs, ct) = (count as f64, cs as f64, ct as f64);
         match self.discount {
             Discount::None => (c / cs, c / ct),

@@ -49,6 +49,10 @@ pub struct TallyInfo {
     pub table_pairs: u64,
     /// Corpus passes made (one per chunk of the index).
     pub passes: u64,
+    /// The shard's identity ([`CorpusReader::fingerprint`]), so that a tally given twice is
+    /// refused.
+    #[serde(default)]
+    pub shard: u64,
 }
 
 /// Settings of [`tally`].
@@ -309,7 +313,7 @@ fn count_chunk(
     chunk: &Chunk,
     options: &TallyOptions,
     label: &str,
-) -> Result<(Counters, CorpusStats)> {
+) -> Result<(Counters, (CorpusStats, u64))> {
     let counters = Counters {
         df_source: zeros(chunk.offsets.len() - 1),
         df_target: zeros(targets.len()),
@@ -366,7 +370,7 @@ fn count_chunk(
     });
     progress.finish();
     result?;
-    Ok((counters, reader.stats()))
+    Ok((counters, (reader.stats(), reader.fingerprint())))
 }
 
 struct TallyWriter {
@@ -380,6 +384,9 @@ impl TallyWriter {
     fn create(path: &Path, info: &TallyInfo) -> Result<TallyWriter> {
         let file = std::fs::File::create(path).map_err(|e| Error::io(path, "creating", e))?;
         let mut encoder = zstd::stream::write::Encoder::new(BufWriter::new(file), 1)
+            .map_err(|e| Error::io(path, "creating", e))?;
+        encoder
+            .include_checksum(true)
             .map_err(|e| Error::io(path, "creating", e))?;
         let json = serde_json::to_vec(info).expect("tally info serializes");
         let mut head = MAGIC.to_vec();
@@ -536,10 +543,7 @@ pub fn tally(
             options,
             &label,
         )?;
-        if stats.sentence_pairs != index.info.sentence_pairs && info.passes == 1 {
-            // Not an error by itself: the index covers every shard, this corpus may be one.
-        }
-        info.corpus = stats;
+        (info.corpus, info.shard) = stats;
         if writer.is_none() {
             writer = Some(TallyWriter::create(&temp, &info)?);
         }
@@ -666,7 +670,17 @@ pub fn attach<W: Write>(
         .collect::<Result<Vec<_>>>()?;
     let mut sentence_pairs = 0u64;
     let mut table_pairs = None;
-    for r in &readers {
+    for (k, (r, path)) in readers.iter().zip(tallies).enumerate() {
+        let repeat = readers[..k]
+            .iter()
+            .position(|o| o.info.shard == r.info.shard);
+        if let Some(first) = repeat.filter(|_| r.info.shard != 0) {
+            return Err(Error::Unsupported(format!(
+                "{} counts the same corpus shard as {}: each shard's tally must be given once",
+                path.display(),
+                tallies[first].display()
+            )));
+        }
         sentence_pairs += r.info.corpus.sentence_pairs;
         match table_pairs {
             None => table_pairs = Some(r.info.table_pairs),

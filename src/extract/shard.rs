@@ -65,8 +65,9 @@ pub(crate) fn temp_dir(parent: &Option<PathBuf>, prefix: &str) -> Result<tempfil
         .map_err(|e| Error::io(parent_path, "creating a temporary directory in", e))
 }
 
-/// Extracts the corpus into runs in a temporary directory (one or more per thread).
-pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<ShardRuns> {
+/// Checks the settings of an extraction before any work.
+pub(crate) fn check_settings(paths: &CorpusPaths, options: &ShardOptions) -> Result<()> {
+    options.corpus.validate()?;
     if options.limits.max_length == 0 {
         return Err(Error::invalid("--max-length", "must be at least 1"));
     }
@@ -76,6 +77,12 @@ pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<Shard
             "extraction needs an alignment file",
         ));
     }
+    Ok(())
+}
+
+/// Extracts the corpus into runs in a temporary directory (one or more per thread).
+pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<ShardRuns> {
+    check_settings(paths, options)?;
     let threads = options.threads.max(1);
     let dir = temp_dir(&options.temp_dir, "baler-extract-")?;
     let mut reader = CorpusReader::open(paths, options.corpus)?;
@@ -89,8 +96,9 @@ pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<Shard
         max_sentence_length: options.corpus.max_sentence_length,
         unaligned_edges: options.limits.unaligned_edges,
         pair_occurrences: 0,
+        shards: Vec::new(),
     };
-    let final_stats: Mutex<Option<CorpusStats>> = Mutex::new(None);
+    let final_stats: Mutex<Option<(CorpusStats, u64)>> = Mutex::new(None);
     let (tx, rx) = mpsc::sync_channel::<Vec<SentencePair>>(threads * 2);
     let rx = Mutex::new(rx);
     let (read_result, worker_results) = std::thread::scope(|scope| {
@@ -121,7 +129,7 @@ pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<Shard
                 }
             }
         })();
-        *final_stats.lock().unwrap() = Some(reader.stats());
+        *final_stats.lock().unwrap() = Some((reader.stats(), reader.fingerprint()));
         drop(tx);
         let results: Vec<Result<Vec<(PathBuf, RunInfo)>>> = handles
             .into_iter()
@@ -153,17 +161,20 @@ fn work(
     limits: PhraseLimits,
     budget: usize,
     settings: &RunInfo,
-    final_stats: &Mutex<Option<CorpusStats>>,
+    final_stats: &Mutex<Option<(CorpusStats, u64)>>,
     dir: &Path,
 ) -> Result<Vec<(PathBuf, RunInfo)>> {
     let mut table = CountTable::with_budget(budget);
     let mut scratch = Scratch::default();
     let mut written = Vec::new();
     let mut occurrences = 0u64;
-    let mut spill = |table: &mut CountTable, occurrences: &mut u64, stats: CorpusStats| {
+    let mut spill = |table: &mut CountTable,
+                     occurrences: &mut u64,
+                     (stats, shards): (CorpusStats, Vec<u64>)| {
         let path = dir.join(format!("worker{worker:03}-{:05}.run", written.len()));
         let info = RunInfo {
             corpus: stats,
+            shards,
             pair_occurrences: std::mem::take(occurrences),
             ..settings.clone()
         };
@@ -178,16 +189,20 @@ fn work(
         };
         for pair in &batch {
             if table.nearly_full() || table.arena_full() {
-                spill(&mut table, &mut occurrences, CorpusStats::default())?;
+                spill(&mut table, &mut occurrences, Default::default())?;
             }
             occurrences += count_pair(pair, limits, &mut table, &mut scratch);
         }
     }
-    // The reader's totals travel in worker 0's last run.
-    let stats = if worker == 0 {
-        final_stats.lock().unwrap().take().unwrap_or_default()
-    } else {
-        CorpusStats::default()
+    // The reader's totals and the shard's identity travel in worker 0's last run.
+    let stats = match worker {
+        0 => final_stats
+            .lock()
+            .unwrap()
+            .take()
+            .map(|(stats, shard)| (stats, vec![shard]))
+            .unwrap_or_default(),
+        _ => Default::default(),
     };
     if !table.is_empty() || worker == 0 {
         spill(&mut table, &mut occurrences, stats)?;
@@ -308,6 +323,7 @@ pub(crate) fn combined_info(paths: &[PathBuf], readers: &[RunReader]) -> Result<
     let mut info = RunInfo {
         corpus: CorpusStats::default(),
         pair_occurrences: 0,
+        shards: Vec::new(),
         ..first.info().clone()
     };
     for (path, r) in paths.iter().zip(readers) {
