@@ -22,9 +22,11 @@
 #![deny(missing_docs)]
 
 pub mod error;
+pub mod evaluate;
 pub mod extract;
 pub mod files;
 pub mod format;
+pub mod lm;
 pub mod measure;
 mod mmap;
 pub mod pack;

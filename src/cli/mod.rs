@@ -4,8 +4,10 @@
 mod build;
 mod compare;
 mod dump;
+mod evaluate;
 mod extract;
 mod inspect;
+mod lm;
 mod lookup;
 mod pack;
 mod prune;
@@ -46,6 +48,10 @@ enum Command {
     Sweep(sweep::Args),
     /// Run a whole build (extract, prune, pack, report) from one recipe file.
     Build(build::Args),
+    /// Train or apply an n-gram language model of the target language.
+    Lm(lm::Args),
+    /// Score hypotheses against a reference: BLEU, chrF, paired bootstrap.
+    Evaluate(evaluate::Args),
 }
 
 /// Parses the command line, runs it, and maps the outcome to an exit code.
@@ -72,6 +78,8 @@ pub fn main() -> ExitCode {
         Command::Compare(a) => compare::run(a),
         Command::Sweep(a) => sweep::run(a),
         Command::Build(a) => build::run(a),
+        Command::Lm(a) => lm::run(a),
+        Command::Evaluate(a) => evaluate::run(a),
     };
     match result {
         Ok(code) => code,
