@@ -21,6 +21,7 @@
 //! ```
 #![deny(missing_docs)]
 
+pub mod decode;
 pub mod error;
 pub mod evaluate;
 pub mod extract;

@@ -13,6 +13,7 @@ mod pack;
 mod prune;
 mod sweep;
 mod synth;
+mod translate;
 
 use std::process::ExitCode;
 
@@ -52,6 +53,8 @@ enum Command {
     Lm(lm::Args),
     /// Score hypotheses against a reference: BLEU, chrF, paired bootstrap.
     Evaluate(evaluate::Args),
+    /// Translate tokenized text with a packed table and a language model.
+    Translate(translate::Args),
 }
 
 /// Parses the command line, runs it, and maps the outcome to an exit code.
@@ -80,6 +83,7 @@ pub fn main() -> ExitCode {
         Command::Build(a) => build::run(a),
         Command::Lm(a) => lm::run(a),
         Command::Evaluate(a) => evaluate::run(a),
+        Command::Translate(a) => translate::run(a),
     };
     match result {
         Ok(code) => code,
