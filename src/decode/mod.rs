@@ -539,7 +539,7 @@ impl<'a> Decoder<'a> {
         }
         let (mut lm, mut n_words, mut jump, mut copied) = (0.0, 0usize, 0.0, 0usize);
         let mut context = vec![BOS];
-        let mut last_end = 0;
+        let mut last_end = 0usize;
         let mut text: Vec<&str> = Vec::new();
         for s in &segments {
             if s.copied {
@@ -555,7 +555,7 @@ impl<'a> Decoder<'a> {
             }
             let offset = s.source.start / MAX_SEARCH_TOKENS * MAX_SEARCH_TOKENS;
             let (start, prev) = (s.source.start - offset, last_end);
-            let prev = if prev < offset { 0 } else { prev - offset };
+            let prev = prev.saturating_sub(offset);
             jump -= start.abs_diff(prev) as f64;
             last_end = s.source.end;
             for t in tokens(&s.target) {
