@@ -38,6 +38,7 @@ pub mod recipe;
 pub mod sort;
 pub mod synth;
 pub mod table;
+pub mod tune;
 
 pub use error::{Error, Result};
 pub use read::Table;

@@ -14,6 +14,7 @@ mod prune;
 mod sweep;
 mod synth;
 mod translate;
+mod tune;
 
 use std::process::ExitCode;
 
@@ -55,6 +56,8 @@ enum Command {
     Evaluate(evaluate::Args),
     /// Translate tokenized text with a packed table and a language model.
     Translate(translate::Args),
+    /// Fit the translation weights on a development set; write a weights file.
+    Tune(tune::Args),
 }
 
 /// Parses the command line, runs it, and maps the outcome to an exit code.
@@ -84,6 +87,7 @@ pub fn main() -> ExitCode {
         Command::Lm(a) => lm::run(a),
         Command::Evaluate(a) => evaluate::run(a),
         Command::Translate(a) => translate::run(a),
+        Command::Tune(a) => tune::run(a),
     };
     match result {
         Ok(code) => code,

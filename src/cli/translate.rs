@@ -4,8 +4,6 @@
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
-use std::sync::atomic::{AtomicUsize, Ordering};
-use std::sync::Mutex;
 use std::time::Instant;
 
 use baler::decode::{explanation, DecodeSettings, Decoder, Weights};
@@ -87,45 +85,6 @@ pub fn resolve_weights(
     Ok(w)
 }
 
-/// Translates `lines` with `threads` workers; results in input order.
-pub fn translate_all(
-    decoder: &Decoder<'_>,
-    lines: &[String],
-    threads: usize,
-    greedy: bool,
-) -> baler::Result<Vec<baler::decode::Translation>> {
-    let threads = if threads == 0 {
-        std::thread::available_parallelism().map_or(1, |n| n.get())
-    } else {
-        threads
-    };
-    let next = AtomicUsize::new(0);
-    let results: Mutex<Vec<Option<baler::Result<baler::decode::Translation>>>> =
-        Mutex::new((0..lines.len()).map(|_| None).collect());
-    std::thread::scope(|scope| {
-        for _ in 0..threads.min(lines.len()).max(1) {
-            scope.spawn(|| loop {
-                let i = next.fetch_add(1, Ordering::Relaxed);
-                if i >= lines.len() {
-                    break;
-                }
-                let t = if greedy {
-                    decoder.greedy(&lines[i])
-                } else {
-                    decoder.translate(&lines[i])
-                };
-                results.lock().expect("no worker panics")[i] = Some(t);
-            });
-        }
-    });
-    results
-        .into_inner()
-        .expect("no worker panics")
-        .into_iter()
-        .map(|r| r.expect("every line decoded"))
-        .collect()
-}
-
 pub fn run(args: Args) -> baler::Result<ExitCode> {
     let started = Instant::now();
     let table = baler::Table::open(&args.table)?;
@@ -146,7 +105,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     };
     let decoder = Decoder::new(&table, &lm, weights.clone(), settings);
     let lines = crate::cli::evaluate::read_lines(&args.input)?;
-    let out_of = translate_all(&decoder, &lines, args.threads, args.greedy)?;
+    let out_of = baler::decode::translate_all(&decoder, &lines, args.threads, args.greedy)?;
     let mut out = Output::create(&args.output)?;
     let werr = |e| Error::io(&args.output, "writing", e);
     for (i, t) in out_of.iter().enumerate() {

@@ -37,6 +37,8 @@
 use std::collections::BTreeMap;
 use std::fmt::Write as _;
 use std::path::Path;
+use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::Mutex;
 
 use rustc_hash::FxHashMap;
 
@@ -634,6 +636,45 @@ impl<'a> Decoder<'a> {
         }
         Ok(out)
     }
+}
+
+/// Translates `lines` with `threads` workers (0: every core); results in input order.
+pub fn translate_all(
+    decoder: &Decoder<'_>,
+    lines: &[String],
+    threads: usize,
+    greedy: bool,
+) -> Result<Vec<Translation>> {
+    let threads = if threads == 0 {
+        std::thread::available_parallelism().map_or(1, |n| n.get())
+    } else {
+        threads
+    };
+    let next = AtomicUsize::new(0);
+    let results: Mutex<Vec<Option<Result<Translation>>>> =
+        Mutex::new((0..lines.len()).map(|_| None).collect());
+    std::thread::scope(|scope| {
+        for _ in 0..threads.min(lines.len()).max(1) {
+            scope.spawn(|| loop {
+                let i = next.fetch_add(1, Ordering::Relaxed);
+                if i >= lines.len() {
+                    break;
+                }
+                let t = if greedy {
+                    decoder.greedy(&lines[i])
+                } else {
+                    decoder.translate(&lines[i])
+                };
+                results.lock().expect("no worker panics")[i] = Some(t);
+            });
+        }
+    });
+    results
+        .into_inner()
+        .expect("no worker panics")
+        .into_iter()
+        .map(|r| r.expect("every line decoded"))
+        .collect()
 }
 
 fn span_mask(start: usize, end: usize) -> u128 {
