@@ -787,3 +787,38 @@ fn damaged_model_is_reported_not_trusted() {
     let out = baler(&["lm", "score", s(&short)], Some("the ferry\n"));
     assert_eq!(out.status.code(), Some(2));
 }
+
+#[test]
+fn keep_test_phrases_keeps_only_sources_in_the_text() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut tsv = String::from("source\ttarget\tp_t_given_s\tp_s_given_t\n");
+    for r in ROWS {
+        tsv.push_str(r);
+        tsv.push('\n');
+    }
+    let input = dir.path().join("t.tsv");
+    std::fs::write(&input, tsv).unwrap();
+    let test = write(dir.path(), "test.src", &["le bac part", "au quai"]);
+    let out = dir.path().join("kept.tsv");
+    baler_ok(&[
+        "prune",
+        s(&input),
+        "--keep-test-phrases",
+        s(&test),
+        "-o",
+        s(&out),
+        "-q",
+    ]);
+    let mut sources: Vec<String> = std::fs::read_to_string(&out)
+        .unwrap()
+        .lines()
+        .skip_while(|l| l.starts_with('#'))
+        .skip(1)
+        .map(|l| l.split('\t').next().unwrap().to_string())
+        .collect();
+    sources.dedup();
+    assert_eq!(
+        sources,
+        ["au", "au quai", "bac", "bac part", "le", "le bac", "part", "quai"]
+    );
+}
