@@ -32,6 +32,7 @@ pub mod measure;
 mod mmap;
 pub mod pack;
 pub mod prune;
+pub mod quality;
 pub mod quantize;
 pub mod read;
 pub mod recipe;

@@ -11,6 +11,7 @@ mod lm;
 mod lookup;
 mod pack;
 mod prune;
+mod quality;
 mod sweep;
 mod synth;
 mod translate;

@@ -223,6 +223,9 @@ const NO_BACK: usize = usize::MAX;
 /// Hypotheses with equal coverage, last source end and LM history are recombined.
 type RecombinationKey = (u128, usize, [u32; 8]);
 
+/// An LM history, a candidate, and whether the phrase ends the sentence.
+type LmKey = ([u32; 8], u8, u32, bool);
+
 /// A decoder over one table and language model.
 pub struct Decoder<'a> {
     table: &'a Table,
@@ -433,6 +436,7 @@ impl<'a> Decoder<'a> {
         stacks[0].push(0);
         let mut seen: Vec<FxHashMap<RecombinationKey, usize>> = vec![FxHashMap::default(); n + 1];
         let mut context: Vec<u32> = Vec::with_capacity(16);
+        let mut lm_cache: FxHashMap<LmKey, (f64, [u32; 8], u8)> = FxHashMap::default();
         for covered in 0..n {
             let mut stack = std::mem::take(&mut stacks[covered]);
             stack.sort_by(|&a, &b| {
@@ -467,28 +471,38 @@ impl<'a> Decoder<'a> {
                             if guess < best_total[covered_now] - threshold {
                                 break;
                             }
-                            context.clear();
-                            context.extend_from_slice(&hyp.state[..hyp.state_len as usize]);
-                            let mut lm = 0.0;
-                            for &w in &c.ids {
-                                lm += self.ln_lm(&context, w);
-                                context.push(w);
-                            }
-                            if coverage == full {
-                                lm += self.ln_lm(&context, EOS);
-                            }
+                            // The LM score of a phrase depends only on the history and the
+                            // phrase: shared by every hypothesis with the same history.
+                            let key = (hyp.state, hyp.state_len, k as u32, coverage == full);
+                            let (lm, state, len) = match lm_cache.get(&key) {
+                                Some(&v) => v,
+                                None => {
+                                    context.clear();
+                                    context.extend_from_slice(&hyp.state[..hyp.state_len as usize]);
+                                    let mut lm = 0.0;
+                                    for &w in &c.ids {
+                                        lm += self.ln_lm(&context, w);
+                                        context.push(w);
+                                    }
+                                    if coverage == full {
+                                        lm += self.ln_lm(&context, EOS);
+                                    }
+                                    let mut state = [0u32; 8];
+                                    let len = context.len().min(keep);
+                                    state[..len].copy_from_slice(&context[context.len() - len..]);
+                                    lm_cache.insert(key, (lm, state, len as u8));
+                                    (lm, state, len as u8)
+                                }
+                            };
                             let score = hyp.score + c.local + w_lm * lm + w_jump * jump;
                             if score + future > best_total[covered_now] {
                                 best_total[covered_now] = score + future;
                             }
-                            let mut state = [0u32; 8];
-                            let len = context.len().min(keep);
-                            state[..len].copy_from_slice(&context[context.len() - len..]);
                             let new = Hyp {
                                 coverage,
                                 last_end: c.end,
                                 state,
-                                state_len: len as u8,
+                                state_len: len,
                                 score,
                                 future,
                                 back: h,
