@@ -6,14 +6,15 @@
 //! # fn main() -> baler::Result<()> {
 //! let dir = tempfile::tempdir().unwrap();
 //! let table_path = dir.path().join("t.bale");
-//! let tsv = "source\ttarget\tp_t_given_s\nle ferry\tthe ferry\t0.9\npart\tleaves\t0.8\n";
+//! let tsv = "source\ttarget\tp_t_given_s\nle ferry\tthe ferry\t0.9\npart\tleaves\t0.8\n\
+//!            maintenant\tnow\t0.7\n";
 //! baler::pack::pack_tsv(tsv.as_bytes(), "t.tsv", &table_path, &Default::default())?;
 //! let lm_path = dir.path().join("en.balm");
-//! baler::lm::build("the ferry leaves\n".as_bytes(), "en.txt", &Default::default())?.write(&lm_path)?;
+//! baler::lm::build("the ferry leaves now\n".as_bytes(), "en.txt", &Default::default())?.write(&lm_path)?;
 //! let lm = baler::lm::LanguageModel::open(&lm_path)?;
 //! let test = baler::quality::TestSet {
-//!     source: vec!["le ferry part".into()],
-//!     reference: vec!["the ferry leaves".into()],
+//!     source: vec!["le ferry part maintenant".into()],
+//!     reference: vec!["the ferry leaves now".into()],
 //! };
 //! let setup = baler::quality::QualitySetup::new(&lm, None);
 //! let q = baler::quality::measure(&baler::Table::open(&table_path)?, &test, &setup)?;

@@ -11,7 +11,7 @@ use baler::Error;
 /// Arguments of `baler sweep`.
 #[derive(clap::Args)]
 #[command(after_help = "NAME is a prune filter (significance, top-k, min, max, \
-    relative-entropy) or a pack option (bits, block-sources, compression, zstd-level, \
+    relative-entropy, keep-test-phrases) or a pack option (bits, block-sources, compression, zstd-level, \
     dictionary-size). Several --vary make a grid; filters run in the order of the --vary flags. \
     Writes DIR/setting-NN.bale for each setting, DIR/sweep.csv and DIR/sweep.svg.")]
 pub struct Args {
