@@ -21,20 +21,25 @@
 //! ```
 #![deny(missing_docs)]
 
+pub mod decode;
 pub mod error;
+pub mod evaluate;
 pub mod extract;
 pub mod files;
 pub mod format;
+pub mod lm;
 pub mod measure;
 mod mmap;
 pub mod pack;
 pub mod prune;
+pub mod quality;
 pub mod quantize;
 pub mod read;
 pub mod recipe;
 pub mod sort;
 pub mod synth;
 pub mod table;
+pub mod tune;
 
 pub use error::{Error, Result};
 pub use read::Table;

@@ -37,6 +37,8 @@ pub struct Args {
     /// Print CSV (one line per table) instead of the readable table.
     #[arg(long)]
     csv: bool,
+    #[command(flatten)]
+    quality: crate::cli::quality::QualityArgs,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
@@ -55,14 +57,25 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         max_length: args.max_length,
     };
     let report = measure::compare(&base, &refs, Some(&test), reference.as_deref(), &options)?;
+    let quality = crate::cli::quality::for_tables(
+        &args.quality,
+        &args.test,
+        args.reference.as_deref(),
+        &args.base,
+        &args.others,
+    )?;
     let text = if args.json {
-        let mut s = serde_json::to_string_pretty(&report).expect("figures serialize");
+        let mut value = serde_json::to_value(&report).expect("figures serialize");
+        if let Some(q) = &quality {
+            value["quality"] = serde_json::to_value(q).expect("figures serialize");
+        }
+        let mut s = serde_json::to_string_pretty(&value).expect("figures serialize");
         s.push('\n');
         s
     } else if args.csv {
         report.to_csv()
     } else {
-        report.to_text()
+        report.to_text() + &quality.as_ref().map_or(String::new(), |q| q.to_text())
     };
     std::io::stdout()
         .lock()

@@ -4,13 +4,18 @@
 mod build;
 mod compare;
 mod dump;
+mod evaluate;
 mod extract;
 mod inspect;
+mod lm;
 mod lookup;
 mod pack;
 mod prune;
+mod quality;
 mod sweep;
 mod synth;
+mod translate;
+mod tune;
 
 use std::process::ExitCode;
 
@@ -46,6 +51,14 @@ enum Command {
     Sweep(sweep::Args),
     /// Run a whole build (extract, prune, pack, report) from one recipe file.
     Build(build::Args),
+    /// Train or apply an n-gram language model of the target language.
+    Lm(lm::Args),
+    /// Score hypotheses against a reference: BLEU, chrF, paired bootstrap.
+    Evaluate(evaluate::Args),
+    /// Translate tokenized text with a packed table and a language model.
+    Translate(translate::Args),
+    /// Fit the translation weights on a development set; write a weights file.
+    Tune(tune::Args),
 }
 
 /// Parses the command line, runs it, and maps the outcome to an exit code.
@@ -72,6 +85,10 @@ pub fn main() -> ExitCode {
         Command::Compare(a) => compare::run(a),
         Command::Sweep(a) => sweep::run(a),
         Command::Build(a) => build::run(a),
+        Command::Lm(a) => lm::run(a),
+        Command::Evaluate(a) => evaluate::run(a),
+        Command::Translate(a) => translate::run(a),
+        Command::Tune(a) => tune::run(a),
     };
     match result {
         Ok(code) => code,

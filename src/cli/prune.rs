@@ -54,6 +54,10 @@ struct Flags {
     /// this, p' being the best monotone composition of shorter pairs of the table.
     #[arg(long, value_name = "THRESHOLD", action = clap::ArgAction::Append, allow_negative_numbers = true)]
     relative_entropy: Vec<f64>,
+    /// Keep only source phrases that occur in this tokenized text (e.g. a test set's source
+    /// side), as before decoding it.
+    #[arg(long, value_name = "FILE", action = clap::ArgAction::Append)]
+    keep_test_phrases: Vec<PathBuf>,
     /// After the filters, divide this score column by its sum over the options kept for each
     /// source, so that it sums to 1 again (repeatable). Scores are unchanged otherwise.
     #[arg(long, value_name = "COLUMN", action = clap::ArgAction::Append)]
@@ -76,7 +80,14 @@ pub struct Args {
     order: Vec<(usize, &'static str, String)>,
 }
 
-const FILTER_FLAGS: [&str; 5] = ["significance", "top_k", "min", "max", "relative_entropy"];
+const FILTER_FLAGS: [&str; 6] = [
+    "significance",
+    "top_k",
+    "min",
+    "max",
+    "relative_entropy",
+    "keep_test_phrases",
+];
 
 impl FromArgMatches for Args {
     fn from_arg_matches(matches: &ArgMatches) -> Result<Self, clap::Error> {
@@ -88,6 +99,11 @@ impl FromArgMatches for Args {
             };
             let values: Vec<String> = match id {
                 "top_k" => flags.top_k.iter().map(|v| v.to_string()).collect(),
+                "keep_test_phrases" => flags
+                    .keep_test_phrases
+                    .iter()
+                    .map(|v| v.to_string_lossy().into_owned())
+                    .collect(),
                 "relative_entropy" => flags
                     .relative_entropy
                     .iter()
@@ -163,6 +179,7 @@ fn filters(args: &Args) -> baler::Result<Vec<Filter>> {
             "min" => Filter::bound("--min", value, true)?,
             "max" => Filter::bound("--max", value, false)?,
             "relative_entropy" => Filter::RelativeEntropy(value.parse().expect("parsed by clap")),
+            "keep_test_phrases" => Filter::KeepTestPhrases(PathBuf::from(value)),
             _ => unreachable!("filter flags are listed in FILTER_FLAGS"),
         });
     }

@@ -11,7 +11,7 @@ use baler::Error;
 /// Arguments of `baler sweep`.
 #[derive(clap::Args)]
 #[command(after_help = "NAME is a prune filter (significance, top-k, min, max, \
-    relative-entropy) or a pack option (bits, block-sources, compression, zstd-level, \
+    relative-entropy, keep-test-phrases) or a pack option (bits, block-sources, compression, zstd-level, \
     dictionary-size). Several --vary make a grid; filters run in the order of the --vary flags. \
     Writes DIR/setting-NN.bale for each setting, DIR/sweep.csv and DIR/sweep.svg.")]
 pub struct Args {
@@ -38,6 +38,12 @@ pub struct Args {
     /// No progress bar and no summary.
     #[arg(short, long)]
     quiet: bool,
+    #[command(flatten)]
+    quality: crate::cli::quality::QualityArgs,
+    /// What to plot against size in DIR/quality.svg (with --lm): bleu, chrf, coverage, mass,
+    /// divergence, comma-separated.
+    #[arg(long, value_delimiter = ',', default_value = "bleu,chrf")]
+    plot: Vec<String>,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
@@ -62,6 +68,16 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         progress: !args.quiet,
     };
     let report = measure::sweep(&args.input, &options)?;
+    crate::cli::quality::for_sweep(
+        &args.quality,
+        &args.test,
+        args.reference.as_deref(),
+        &args.input,
+        &report,
+        &args.plot,
+        &args.output,
+        args.quiet,
+    )?;
     if !args.quiet {
         let mut out = std::io::stdout().lock();
         let werr = |e| Error::io("-", "writing", e);

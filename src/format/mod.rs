@@ -5,6 +5,7 @@
 //! form. In short: a 24-byte file header, a section table of 32-byte entries, then the sections,
 //! each starting on an 8-byte boundary. All integers are little-endian.
 
+pub mod lm;
 mod varint;
 
 pub use varint::{read_varint, write_varint, VarintReader};

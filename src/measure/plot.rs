@@ -1,130 +1,326 @@
-//! The sweep's picture: packed size against coverage (and reachability), one labelled point
-//! per setting, drawn with `plotters` into SVG.
+//! The sweep's pictures, drawn with `plotters` into SVG for a reader: packed size in MB on x,
+//! a chosen figure on y (BLEU, chrF, coverage, ...), the unpruned base as a pair of dashed
+//! reference lines, the settings of one series joined in order of size, labels placed so they
+//! do not overlap (with a leader line when moved away from their point), and a y range fitted
+//! to the data.
 
 use plotters::prelude::*;
 
 use super::SweepReport;
 use crate::error::{Error, Result};
 
-/// Width and height of the plot in pixels (one panel; two side by side with a reference).
-const PANEL: (u32, u32) = (640, 480);
+/// Width and height of one panel in pixels.
+const PANEL: (u32, u32) = (720, 520);
 
-/// Draws `report` as SVG: x is the packed file size in bytes, y the test-token coverage and,
-/// when the sweep had a reference, a second panel with the reachability of the reference.
-/// Every setting is one circle labelled with its setting label, in each panel.
-pub fn plot_svg(report: &SweepReport) -> Result<String> {
-    let with_reference = report
-        .settings
-        .iter()
-        .any(|s| s.figures.reachability.is_some());
-    let panels = if with_reference { 2 } else { 1 };
+/// One setting in a panel.
+#[derive(Clone, Debug)]
+pub struct PlotPoint {
+    /// The label drawn beside the point.
+    pub label: String,
+    /// Points of one series are joined by a line in order of size.
+    pub series: String,
+    /// Packed size in bytes.
+    pub bytes: u64,
+    /// The plotted figure.
+    pub value: f64,
+}
+
+/// One panel: a title, the y axis name, the base (size, value) and the points.
+#[derive(Clone, Debug)]
+pub struct Panel {
+    /// Title above the panel.
+    pub title: String,
+    /// Name of the y axis.
+    pub y_label: String,
+    /// The unpruned table's size in bytes and figure, drawn as reference lines.
+    pub base: Option<(u64, f64)>,
+    /// The settings.
+    pub points: Vec<PlotPoint>,
+}
+
+/// The series of a sweep label `name=value name=value ...`: every setting but the last one's
+/// value, so that the last varied option runs along each line.
+pub fn series_of(label: &str) -> String {
+    let mut parts: Vec<&str> = label.split(' ').collect();
+    if let Some(last) = parts.pop() {
+        let name = last.split('=').next().unwrap_or(last);
+        parts.push(name);
+    }
+    parts.join(" ")
+}
+
+const COLORS: [RGBColor; 6] = [
+    RGBColor(31, 119, 180),
+    RGBColor(214, 39, 40),
+    RGBColor(44, 160, 44),
+    RGBColor(148, 103, 189),
+    RGBColor(255, 127, 14),
+    RGBColor(23, 190, 207),
+];
+
+/// Draws panels side by side as SVG.
+pub fn plot_panels(panels: &[Panel]) -> Result<String> {
     let mut svg = String::new();
     let failed = |e: String| Error::Unsupported(format!("drawing the sweep plot failed: {e}"));
     {
-        let root =
-            SVGBackend::with_string(&mut svg, (PANEL.0 * panels, PANEL.1)).into_drawing_area();
+        let n = panels.len().max(1) as u32;
+        let root = SVGBackend::with_string(&mut svg, (PANEL.0 * n, PANEL.1)).into_drawing_area();
         root.fill(&WHITE).map_err(|e| failed(e.to_string()))?;
-        let areas = root.split_evenly((1, panels as usize));
-        let points: Vec<(String, f64, f64, f64)> = report
-            .settings
-            .iter()
-            .map(|s| {
-                let f = &s.figures;
-                (
-                    s.label.clone(),
-                    f.size.file_bytes as f64,
-                    f.coverage.as_ref().map_or(0.0, |c| c.token_coverage),
-                    f.reachability.as_ref().map_or(0.0, |r| r.share),
-                )
-            })
-            .collect();
-        let (lo, hi) = points
-            .iter()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), p| {
-                (lo.min(p.1), hi.max(p.1))
-            });
-        let pad = ((hi - lo) * 0.1).max(hi.abs() * 0.05).max(1.0);
-        // more room on the right, where the labels of the largest tables go
-        let x_range = (lo - pad).max(0.0)..hi + 3.0 * pad;
-        for (panel, area) in areas.iter().enumerate() {
-            let (title, y_label) = if panel == 0 {
-                ("Size against test coverage", "share of test tokens covered")
-            } else {
-                (
-                    "Size against reachability",
-                    "share of reference n-grams (1-4) reachable",
-                )
-            };
-            let y = |p: &(String, f64, f64, f64)| if panel == 0 { p.2 } else { p.3 };
-            let (ylo, yhi) = points
-                .iter()
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), p| {
-                    (lo.min(y(p)), hi.max(y(p)))
-                });
-            let ypad = ((yhi - ylo) * 0.15).max(0.02);
-            let y_range = (ylo - ypad).max(0.0)..(yhi + ypad).min(1.01);
-            let offsets = label_offsets(&points, &x_range, &y_range, y);
-            let mut chart = ChartBuilder::on(area)
-                .caption(title, ("sans-serif", 18))
-                .margin(16)
-                .x_label_area_size(40)
-                .y_label_area_size(72)
-                .build_cartesian_2d(x_range.clone(), y_range)
-                .map_err(|e| failed(e.to_string()))?;
-            chart
-                .configure_mesh()
-                .x_desc("packed size (bytes)")
-                .y_desc(y_label)
-                .x_labels(6)
-                .y_labels(6)
-                .x_label_formatter(&|v| format!("{v:.0}"))
-                .y_label_formatter(&|v| format!("{v:.3}"))
-                .draw()
-                .map_err(|e| failed(e.to_string()))?;
-            chart
-                .draw_series(points.iter().zip(&offsets).map(|(p, &dy)| {
-                    EmptyElement::at((p.1, y(p)))
-                        + Circle::new((0, 0), 4, BLUE.filled())
-                        + Text::new(p.0.clone(), (6, dy), ("sans-serif", 11))
-                }))
-                .map_err(|e| failed(e.to_string()))?;
+        let areas = root.split_evenly((1, n as usize));
+        for (panel, area) in panels.iter().zip(areas.iter()) {
+            draw_panel(panel, area).map_err(failed)?;
         }
         root.present().map_err(|e| failed(e.to_string()))?;
     }
     Ok(svg)
 }
 
-/// Vertical pixel offsets of the labels: a label that would land on an earlier one (points
-/// close together, in plot pixels) is moved one line further down.
-fn label_offsets<F>(
-    points: &[(String, f64, f64, f64)],
-    x: &std::ops::Range<f64>,
-    y: &std::ops::Range<f64>,
-    value: F,
-) -> Vec<i32>
-where
-    F: Fn(&(String, f64, f64, f64)) -> f64,
-{
-    const LINE: i32 = 13;
-    let (width, height) = (f64::from(PANEL.0 - 100), f64::from(PANEL.1 - 100));
-    let px = |p: &(String, f64, f64, f64)| {
-        (
-            (p.1 - x.start) / (x.end - x.start) * width,
-            (y.end - value(p)) / (y.end - y.start) * height,
-        )
-    };
-    let mut placed: Vec<(f64, f64)> = Vec::new();
-    let mut offsets = Vec::with_capacity(points.len());
-    for p in points {
-        let (a, b) = px(p);
-        let mut dy = -LINE;
-        while placed.iter().any(|&(pa, pb)| {
-            (pa - a).abs() < 150.0 && (pb - (b + f64::from(dy))).abs() < f64::from(LINE)
-        }) {
-            dy += LINE;
-        }
-        placed.push((a, b + f64::from(dy)));
-        offsets.push(dy);
+fn mb(bytes: u64) -> f64 {
+    bytes as f64 / 1e6
+}
+
+fn draw_panel(
+    panel: &Panel,
+    area: &DrawingArea<SVGBackend<'_>, plotters::coord::Shift>,
+) -> std::result::Result<(), String> {
+    let e = |x: &dyn std::fmt::Display| x.to_string();
+    let xs = panel
+        .points
+        .iter()
+        .map(|p| mb(p.bytes))
+        .chain(panel.base.map(|b| mb(b.0)));
+    let ys = panel
+        .points
+        .iter()
+        .map(|p| p.value)
+        .chain(panel.base.map(|b| b.1));
+    let (xlo, xhi) = xs.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| {
+        (a.min(x), b.max(x))
+    });
+    let (ylo, yhi) = ys.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), y| {
+        (a.min(y), b.max(y))
+    });
+    if !xlo.is_finite() {
+        return Ok(());
     }
-    offsets
+    let xpad = ((xhi - xlo) * 0.08).max(xhi.abs() * 0.02).max(0.001);
+    // Room on the right for the labels of the largest tables.
+    let x_range = (xlo - xpad).max(0.0)..xhi + 4.0 * xpad;
+    let ypad = ((yhi - ylo) * 0.12).max(yhi.abs() * 0.005).max(1e-3);
+    let y_range = ylo - ypad..yhi + ypad;
+    let mut chart = ChartBuilder::on(area)
+        .caption(&panel.title, ("sans-serif", 18))
+        .margin(16)
+        .x_label_area_size(42)
+        .y_label_area_size(64)
+        .build_cartesian_2d(x_range.clone(), y_range.clone())
+        .map_err(|x| e(&x))?;
+    chart
+        .configure_mesh()
+        .x_desc("packed size (MB)")
+        .y_desc(panel.y_label.as_str())
+        .x_labels(7)
+        .y_labels(7)
+        .x_label_formatter(&|v| format!("{v:.2}"))
+        .y_label_formatter(&|v| format!("{v:.3}"))
+        .light_line_style(WHITE)
+        .draw()
+        .map_err(|x| e(&x))?;
+    if let Some((bytes, value)) = panel.base {
+        let grey = RGBColor(120, 120, 120);
+        let dashed = |from: (f64, f64), to: (f64, f64)| {
+            DashedLineSeries::new([from, to], 6, 4, grey.stroke_width(1))
+        };
+        chart
+            .draw_series(dashed((x_range.start, value), (x_range.end, value)))
+            .map_err(|x| e(&x))?;
+        chart
+            .draw_series(dashed((mb(bytes), y_range.start), (mb(bytes), y_range.end)))
+            .map_err(|x| e(&x))?;
+        chart
+            .draw_series(std::iter::once(Text::new(
+                format!("unpruned: {value:.3}, {:.2} MB", mb(bytes)),
+                (x_range.start, value),
+                ("sans-serif", 11).into_font().color(&grey),
+            )))
+            .map_err(|x| e(&x))?;
+    }
+    // Series, each joined in order of size.
+    let mut names: Vec<String> = panel.points.iter().map(|p| p.series.clone()).collect();
+    names.sort();
+    names.dedup();
+    for (k, name) in names.iter().enumerate() {
+        let color = COLORS[k % COLORS.len()];
+        let mut pts: Vec<(f64, f64)> = panel
+            .points
+            .iter()
+            .filter(|p| &p.series == name)
+            .map(|p| (mb(p.bytes), p.value))
+            .collect();
+        pts.sort_by(|a, b| a.0.total_cmp(&b.0));
+        chart
+            .draw_series(LineSeries::new(pts, color.stroke_width(2)))
+            .map_err(|x| e(&x))?
+            .label(name.as_str())
+            .legend(move |(x, y)| PathElement::new([(x, y), (x + 16, y)], color.stroke_width(2)));
+    }
+    chart
+        .configure_series_labels()
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK.mix(0.3))
+        .position(SeriesLabelPosition::LowerRight)
+        .draw()
+        .map_err(|x| e(&x))?;
+    // Points and labels.
+    let plot = chart.plotting_area();
+    let to_px = |x: f64, y: f64| plot.map_coordinate(&(x, y));
+    let (px_lo, px_hi) = (
+        to_px(x_range.start, y_range.end),
+        to_px(x_range.end, y_range.start),
+    );
+    let placed = place_labels(
+        &panel
+            .points
+            .iter()
+            .map(|p| (to_px(mb(p.bytes), p.value), p.label.len()))
+            .collect::<Vec<_>>(),
+        (px_lo, px_hi),
+    );
+    for (p, (dx, dy)) in panel.points.iter().zip(placed) {
+        let k = names.iter().position(|n| n == &p.series).unwrap_or(0);
+        let color = COLORS[k % COLORS.len()];
+        let at = (mb(p.bytes), p.value);
+        let far = dx.abs() > 12 || dy.abs() > 12;
+        let element = EmptyElement::at(at)
+            + Circle::new((0, 0), 4, color.filled())
+            + Text::new(p.label.clone(), (dx, dy), ("sans-serif", 11));
+        if far {
+            let end = (dx, dy + 6);
+            chart
+                .draw_series(std::iter::once(
+                    EmptyElement::at(at)
+                        + PathElement::new([(0, 0), end], BLACK.mix(0.4).stroke_width(1)),
+                ))
+                .map_err(|x| e(&x))?;
+        }
+        chart
+            .draw_series(std::iter::once(element))
+            .map_err(|x| e(&x))?;
+    }
+    Ok(())
+}
+
+/// Pixel offsets (from each point) of labels `len` characters long: the first of a ring of
+/// candidate positions, nearest first, whose box overlaps no label placed before it and no
+/// point, and stays inside the plot; labels are placed from left to right.
+fn place_labels(
+    points: &[((i32, i32), usize)],
+    bounds: ((i32, i32), (i32, i32)),
+) -> Vec<(i32, i32)> {
+    const CHAR_W: i32 = 6;
+    const LINE_H: i32 = 13;
+    let mut order: Vec<usize> = (0..points.len()).collect();
+    order.sort_by_key(|&i| points[i].0);
+    let mut boxes: Vec<(i32, i32, i32, i32)> = Vec::new();
+    let mut out = vec![(6, -LINE_H); points.len()];
+    let overlaps = |a: (i32, i32, i32, i32), b: (i32, i32, i32, i32)| {
+        a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3
+    };
+    for i in order {
+        let ((x, y), len) = points[i];
+        let w = CHAR_W * len as i32;
+        let mut candidates = Vec::new();
+        for ring in 0..8 {
+            let r = ring * LINE_H;
+            for (dx, dy) in [
+                (6, -LINE_H - r),
+                (6, 2 + r),
+                (-w - 6, -LINE_H - r),
+                (-w - 6, 2 + r),
+                (6 + 2 * r, -LINE_H / 2),
+                (-w - 6 - 2 * r, -LINE_H / 2),
+            ] {
+                candidates.push((dx, dy));
+            }
+        }
+        let chosen = candidates
+            .iter()
+            .copied()
+            .find(|&(dx, dy)| {
+                let b = (x + dx, y + dy, x + dx + w, y + dy + LINE_H);
+                let inside = b.0 >= bounds.0 .0
+                    && b.2 <= bounds.1 .0 + 40
+                    && b.1 >= bounds.0 .1
+                    && b.3 <= bounds.1 .1;
+                inside
+                    && !boxes.iter().any(|&o| overlaps(o, b))
+                    && !points
+                        .iter()
+                        .any(|&((px, py), _)| overlaps((px - 4, py - 4, px + 4, py + 4), b))
+            })
+            .unwrap_or((6, -LINE_H));
+        boxes.push((
+            x + chosen.0,
+            y + chosen.1,
+            x + chosen.0 + w,
+            y + chosen.1 + LINE_H,
+        ));
+        out[i] = chosen;
+    }
+    out
+}
+
+/// Draws `report` as SVG: packed size against test coverage and, when the sweep had a
+/// reference, a second panel with the reachability of the reference.
+pub fn plot_svg(report: &SweepReport) -> Result<String> {
+    let with_reference = report
+        .settings
+        .iter()
+        .any(|s| s.figures.reachability.is_some());
+    let point = |s: &super::SettingReport, v: f64| PlotPoint {
+        label: s.label.clone(),
+        series: series_of(&s.label),
+        bytes: s.figures.size.file_bytes,
+        value: v,
+    };
+    let base_size = report.base.size.file_bytes;
+    let mut panels = vec![Panel {
+        title: "Size against test coverage".into(),
+        y_label: "share of test tokens covered".into(),
+        base: report
+            .base
+            .coverage
+            .as_ref()
+            .map(|c| (base_size, c.token_coverage)),
+        points: report
+            .settings
+            .iter()
+            .map(|s| {
+                point(
+                    s,
+                    s.figures
+                        .coverage
+                        .as_ref()
+                        .map_or(0.0, |c| c.token_coverage),
+                )
+            })
+            .collect(),
+    }];
+    if with_reference {
+        panels.push(Panel {
+            title: "Size against reachability".into(),
+            y_label: "share of reference n-grams (1-4) reachable".into(),
+            base: report
+                .base
+                .reachability
+                .as_ref()
+                .map(|r| (base_size, r.share)),
+            points: report
+                .settings
+                .iter()
+                .map(|s| point(s, s.figures.reachability.as_ref().map_or(0.0, |r| r.share)))
+                .collect(),
+        });
+    }
+    plot_panels(&panels)
 }

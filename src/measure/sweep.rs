@@ -25,12 +25,13 @@ pub struct Variation {
 
 impl Variation {
     /// The options that can vary: the prune filters, then the pack options.
-    pub const NAMES: [&'static str; 10] = [
+    pub const NAMES: [&'static str; 11] = [
         "significance",
         "top-k",
         "min",
         "max",
         "relative-entropy",
+        "keep-test-phrases",
         "bits",
         "block-sources",
         "compression",
@@ -120,6 +121,10 @@ impl Setting {
                 .prune
                 .filters
                 .push(Filter::RelativeEntropy(number(value)?)),
+            "keep-test-phrases" => self
+                .prune
+                .filters
+                .push(Filter::KeepTestPhrases(PathBuf::from(value))),
             "bits" => {
                 self.pack.bits = if value == "f32" {
                     None

@@ -65,6 +65,7 @@ pub mod fisher;
 mod input;
 mod pipeline;
 mod stats;
+pub mod testset;
 mod topk;
 
 pub use corpus::SentenceCounts;
@@ -158,6 +159,8 @@ pub enum Filter {
     },
     /// Keep pairs whose relative-entropy score ([`entropy`]) is at least this value.
     RelativeEntropy(f64),
+    /// Keep only sources that occur in this tokenized text ([`testset`]).
+    KeepTestPhrases(std::path::PathBuf),
 }
 
 impl Filter {
@@ -203,6 +206,7 @@ impl Filter {
                 if *minimum { "min" } else { "max" }
             ),
             Filter::RelativeEntropy(v) => format!("--relative-entropy {v}"),
+            Filter::KeepTestPhrases(p) => format!("--keep-test-phrases {}", p.display()),
         }
     }
 }

@@ -20,6 +20,7 @@ enum Stage {
     TopK(usize, ResolvedRanking),
     Bound(Column, bool, f64),
     Entropy(f64, usize),
+    TestPhrases(super::testset::TestPhrases),
 }
 
 /// Where the three counts of the Fisher test are, and the test itself.
@@ -201,6 +202,9 @@ impl Pruner {
                     })?;
                     stats.threshold = Some(*v);
                     Stage::Entropy(*v, column)
+                }
+                Filter::KeepTestPhrases(path) => {
+                    Stage::TestPhrases(super::testset::TestPhrases::from_path(path)?)
                 }
             };
             stages.push(stage);
@@ -515,6 +519,10 @@ impl Pruner {
                     v <= *value
                 }
             })),
+            Stage::TestPhrases(phrases) => {
+                let found = phrases.contains(&group[0].pair.source);
+                keep.extend(group.iter().map(|_| found));
+            }
             Stage::Entropy(..) => unreachable!("entropy runs over the whole table"),
         };
         let after = keep.iter().filter(|&&k| k).count();

@@ -1,0 +1,98 @@
+//! `baler tune`: fit the translation weights on a development set and write a weights file.
+
+use std::io::Write;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use baler::decode::DecodeSettings;
+use baler::files::Output;
+use baler::lm::LanguageModel;
+use baler::tune::{coordinate_ascent, TuneSettings};
+use baler::Error;
+
+/// Arguments of `baler tune`.
+#[derive(clap::Args)]
+pub struct Args {
+    /// The packed phrase table.
+    table: PathBuf,
+    /// The target-language model.
+    #[arg(long)]
+    lm: PathBuf,
+    /// Development source text, one tokenized sentence a line.
+    #[arg(long)]
+    source: PathBuf,
+    /// Its reference translations.
+    #[arg(long)]
+    reference: PathBuf,
+    /// Start from these weights instead of the defaults.
+    #[arg(long)]
+    weights: Option<PathBuf>,
+    /// The weights file to write.
+    #[arg(short, long)]
+    output: PathBuf,
+    /// Rounds over all weights (the step halves after each).
+    #[arg(long, default_value_t = 2)]
+    rounds: usize,
+    /// Hypotheses kept per stack while tuning.
+    #[arg(long, default_value_t = 30)]
+    beam: usize,
+    /// Decoding threads (0: every core).
+    #[arg(long, default_value_t = 0)]
+    threads: usize,
+    /// Print no progress.
+    #[arg(short, long)]
+    quiet: bool,
+}
+
+pub fn run(args: Args) -> baler::Result<ExitCode> {
+    let table = baler::Table::open(&args.table)?;
+    let lm = LanguageModel::open(&args.lm)?;
+    let start =
+        crate::cli::translate::resolve_weights(table.schema(), args.weights.as_deref(), &[])?;
+    let source = crate::cli::evaluate::read_lines(&args.source)?;
+    let reference = crate::cli::evaluate::read_lines(&args.reference)?;
+    if source.len() != reference.len() {
+        return Err(Error::input(
+            args.reference.to_string_lossy(),
+            0,
+            format!(
+                "{} lines, but the source has {}",
+                reference.len(),
+                source.len()
+            ),
+        ));
+    }
+    let settings = TuneSettings {
+        rounds: args.rounds,
+        threads: args.threads,
+        search: DecodeSettings {
+            beam: args.beam,
+            ..DecodeSettings::default()
+        },
+        ..TuneSettings::default()
+    };
+    let quiet = args.quiet;
+    let tuned = coordinate_ascent(&table, &lm, start, &source, &reference, &settings, |t| {
+        if !quiet {
+            if t.feature.is_empty() {
+                eprintln!("baler tune: start weights: BLEU {:.2}", t.bleu);
+            } else {
+                eprintln!(
+                    "baler tune: {} = {:.4}: BLEU {:.2}",
+                    t.feature, t.value, t.bleu
+                );
+            }
+        }
+    })?;
+    let mut out = Output::create(&args.output)?;
+    write!(
+        out,
+        "# development BLEU {:.2} (start {:.2})\n{}",
+        tuned.bleu,
+        tuned.start_bleu,
+        tuned.weights.to_text()
+    )
+    .map_err(|e| Error::io(&args.output, "writing", e))?;
+    out.commit()?;
+    Ok(ExitCode::SUCCESS)
+}
