@@ -98,9 +98,9 @@ impl Pruner {
         // widen the schema: corpus counts, then the annotation column
         let mut corpus_slots = None;
         if let (CountSource::Corpus { .. }, true) = (&options.counts, needs_test) {
-            let counts = corpus.ok_or_else(|| {
-                Error::Unsupported("corpus counts must be computed before pruning".into())
-            })?;
+            let counts = corpus.ok_or(Error::Internal(
+                "corpus counts must be computed before pruning",
+            ))?;
             for c in [
                 CountColumn::Cooc,
                 CountColumn::DfSource,
@@ -215,9 +215,8 @@ impl Pruner {
                 )
             })?);
         }
-        if !options.filters.is_empty() {
-            let described: Vec<String> = options.filters.iter().map(|f| f.describe()).collect();
-            let mut value = described.join(" ");
+        let mut value = options.describe();
+        if !value.is_empty() {
             if let Some(earlier) = out.metadata.get("pruned_with") {
                 value = format!("{earlier} | {value}"); // pruned before: keep the history
             }

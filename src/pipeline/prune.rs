@@ -1,19 +1,19 @@
-//! Running the pruner over files: input in any order, TSV or packed output.
+//! Pruning a file: input in any order, TSV or packed output; and pruning straight into a pack.
 
 use std::io::BufRead;
 use std::path::Path;
-use std::sync::mpsc;
 
-use super::pipeline::Outcome;
-use super::{CountSource, Filter, PruneOptions, PruneStats, Pruner, SentenceCounts};
+use super::{into_pack, Packing, TableInput};
 use crate::error::{Error, Result};
-use crate::files::{self, Output, STDIO};
-use crate::pack::{self, PackOptions};
-use crate::read::Table;
+use crate::files::{self, Output, TempDir, STDIO};
+use crate::pack::PackReport;
+use crate::prune::pipeline::Outcome;
+use crate::prune::{CountSource, Filter, PruneOptions, PruneStats, Pruner, SentenceCounts};
+use crate::read::is_packed;
 use crate::sort::ExternalSorter;
 use crate::table::{CountColumn, Header, PhrasePair, TsvReader, TsvWriter};
 
-type Records<'a> = Box<dyn Iterator<Item = Result<(PhrasePair, u64)>> + 'a>;
+pub(super) type Records<'a> = Box<dyn Iterator<Item = Result<(PhrasePair, u64)>> + 'a>;
 
 /// Prunes the table at `input` into `output` and returns what each filter did.
 ///
@@ -24,16 +24,20 @@ type Records<'a> = Box<dyn Iterator<Item = Result<(PhrasePair, u64)>> + 'a>;
 ///   filter runs, which holds the pairs reaching it). Otherwise the pass stops at the first
 ///   source out of order, discards its partial output, and starts again through
 ///   [`ExternalSorter`] within [`PruneOptions::memory`]; options of a source keep their input
-///   order.
+///   order. An output that cannot be taken back (standard output, a pipe) is never restarted:
+///   the input's order is checked first.
 /// * `output` is TSV (optionally compressed, `-` for stdout) or, by its `.bale` extension, a
-///   packed table. It appears only when complete.
+///   packed table, written with `packing`'s settings; settings not given there are the input
+///   table's when it is packed (and the defaults otherwise), and its provenance is carried
+///   forward. It appears only when complete.
 /// * [`CountSource::Corpus`] reads the table once more to collect its phrases and then the
 ///   corpus (holding every distinct phrase and pair of the table in memory);
 ///   [`CountSource::PhraseCounts`] reads it once more to sum `count`.
 ///
 /// # Examples
 /// ```
-/// use baler::prune::{prune_path, Filter, PruneOptions, Ranking};
+/// use baler::pipeline::{prune_file, Packing};
+/// use baler::prune::{Filter, PruneOptions, Ranking};
 /// let dir = tempfile::tempdir().unwrap();
 /// let (input, output) = (dir.path().join("in.tsv"), dir.path().join("out.tsv"));
 /// std::fs::write(&input, "source\ttarget\tp_t_given_s\n\
@@ -42,81 +46,77 @@ type Records<'a> = Box<dyn Iterator<Item = Result<(PhrasePair, u64)>> + 'a>;
 ///     filters: vec![Filter::TopK { k: 1, by: Ranking::default() }],
 ///     ..Default::default()
 /// };
-/// let stats = prune_path(&input, &output, &options)?;
+/// let stats = prune_file(&input, &output, &options, &Packing::default())?;
 /// assert!(stats.sorted_externally); // "ancla" came after "velero"
 /// assert_eq!(std::fs::read_to_string(&output).unwrap(),
 ///            "# pruned_with=--top-k 1 --by p_t_given_s\nsource\ttarget\tp_t_given_s\n\
 ///             ancla\tanchor\t0.9\nvelero\tsailing ship\t0.6\n");
 /// # Ok::<(), baler::Error>(())
 /// ```
-pub fn prune_path(input: &Path, output: &Path, options: &PruneOptions) -> Result<PruneStats> {
+pub fn prune_file(
+    input: &Path,
+    output: &Path,
+    options: &PruneOptions,
+    packing: &Packing,
+) -> Result<PruneStats> {
     let name = input.to_string_lossy().into_owned();
     let memory = if options.memory == 0 {
-        512 << 20
+        crate::settings::DEFAULT_MEMORY
     } else {
         options.memory
     };
+    let mut inputs = vec![input];
+    if let CountSource::Corpus { source, target } = &options.counts {
+        inputs.extend([source.as_path(), target.as_path()]);
+    }
+    files::check_output(output, &inputs)?;
     // stdin is copied once so that it can be read again (sorting, counting passes)
-    let spool;
+    let spool_dir;
+    let spooled;
     let path: &Path = if input.as_os_str() == STDIO {
-        let mut file = tempfile::NamedTempFile::new()
-            .map_err(|e| Error::io(std::env::temp_dir(), "creating a temporary file in", e))?;
-        std::io::copy(&mut std::io::stdin().lock(), file.as_file_mut())
-            .map_err(|e| Error::io(STDIO, "reading", e))?;
-        spool = file;
-        spool.path()
+        spool_dir = TempDir::new(packing.resources.temp_dir.as_deref(), "baler-stdin-")?;
+        spooled = spool_dir.path().join("input");
+        let mut file = std::fs::File::create(&spooled)
+            .map_err(|e| Error::io(spool_dir.path(), "creating a temporary file in", e))?;
+        std::io::copy(&mut files::open_input(input)?, &mut file)
+            .map_err(|e| Error::io(&spooled, "writing", e))?;
+        &spooled
     } else {
         input
     };
-    let table = if is_packed(path) {
-        Some(Table::open(path)?)
-    } else {
-        None
-    };
-    let open = || -> Result<(Header, Records<'_>)> {
-        match &table {
-            Some(t) => Ok((
-                t.header().clone(),
-                Box::new(t.pairs_iter().map(|r| r.map(|p| (p, 0)))),
-            )),
-            None => {
-                let reader = TsvReader::new(files::open_input(path)?, name.clone())?;
-                let header = reader.header().clone();
-                Ok((header, Box::new(Numbered { reader })))
-            }
-        }
-    };
+    let source = TableInput::open(path, &name)?;
     let needs_test = options.annotate
         || options
             .filters
             .iter()
             .any(|f| matches!(f, Filter::Significance(_)));
-    let (header, _) = open()?;
+    let header = source.header()?;
     let mut corpus = None;
     let mut occurrences = None;
     if needs_test {
         match &options.counts {
             CountSource::Table => {}
-            CountSource::Corpus { source, target } => {
-                let (_, records) = open()?;
+            CountSource::Corpus {
+                source: src,
+                target,
+            } => {
                 let mut pairs = Vec::new();
-                for r in records {
+                for r in source.records()? {
                     let (p, _) = r?;
                     pairs.push((p.source, p.target));
                 }
                 corpus = Some(SentenceCounts::count(
                     pairs.iter().map(|(s, t)| (s.as_str(), t.as_str())),
-                    files::open_input(source)?,
-                    &source.to_string_lossy(),
+                    files::open_input(src)?,
+                    &src.to_string_lossy(),
                     files::open_input(target)?,
                     &target.to_string_lossy(),
                 )?);
             }
             CountSource::PhraseCounts => {
                 if let Some(i) = header.schema.count_index(CountColumn::Count) {
-                    let (_, records) = open()?;
                     let mut sum = 0u64;
-                    for r in records {
+                    for r in source.records()? {
                         sum += r?.0.counts[i];
                     }
                     occurrences = Some(sum);
@@ -127,40 +127,36 @@ pub fn prune_path(input: &Path, output: &Path, options: &PruneOptions) -> Result
     let make = |corpus: Option<SentenceCounts>| {
         Pruner::with_counts(&header, &name, options, corpus, occurrences)
     };
+    let mut sink = Sink {
+        output,
+        memory,
+        packing,
+        input: &source,
+    };
     let progress = Progress::new(options.progress);
-    // first attempt: stream, assuming the input is sorted by source
+    // An output that cannot be taken back is only written once the order is known.
+    let stream_first = sink.can_restart() || source.sorted_by_source()?;
     let mut pruner = make(corpus.take())?;
-    let (_, records) = open()?;
-    let header_out = pruner.header().clone();
-    let outcome = write_output(output, &header_out, memory, |emit| {
-        pruner.run_sorted(progress.wrap(records), emit)
-    })?;
-    if let Outcome::Done = outcome {
-        progress.finish();
-        return Ok(pruner.stats().clone());
+    if stream_first {
+        let records = source.records()?;
+        let header_out = pruner.header().clone();
+        let outcome = sink.write(&header_out, |emit| {
+            pruner.run_sorted(progress.wrap(records), emit)
+        })?;
+        if let Outcome::Done = outcome {
+            progress.finish();
+            return Ok(pruner.stats().clone());
+        }
+        // second attempt: sort by source, then stream
+        let corpus = pruner.take_corpus();
+        pruner = make(corpus)?;
+        progress.restart("sorting by source");
     }
-    // second attempt: sort by source, then stream
-    let corpus = pruner.take_corpus();
-    let mut pruner = make(corpus)?;
-    progress.restart("sorting by source");
-    let mut sorter = ExternalSorter::new(memory as usize, None)?;
-    let (_, records) = open()?;
-    let mut value = Vec::new();
-    for r in progress.wrap(records) {
-        let (pair, line) = r?;
-        encode(&pair, line, &mut value);
-        sorter.push(pair.source.as_bytes(), &value)?;
-    }
-    let mut sorted = sorter.finish()?;
-    let decoded = std::iter::from_fn(move || match sorted.next_record() {
-        Ok(Some((key, value))) => Some(decode(key, value)),
-        Ok(None) => None,
-        Err(e) => Some(Err(e)),
-    });
+    let sorted = sort_by_source(source.records()?, memory, packing, &progress)?;
     progress.restart("pruning");
     let header_out = pruner.header().clone();
-    let outcome = write_output(output, &header_out, memory, |emit| {
-        pruner.run_sorted(progress.wrap(Box::new(decoded)), emit)
+    let outcome = sink.write(&header_out, |emit| {
+        pruner.run_sorted(progress.wrap(sorted), emit)
     })?;
     progress.finish();
     match outcome {
@@ -169,19 +165,99 @@ pub fn prune_path(input: &Path, output: &Path, options: &PruneOptions) -> Result
             stats.sorted_externally = true;
             Ok(stats)
         }
-        Outcome::Unsorted { line, .. } => Err(Error::input(
-            &name,
-            line,
-            "records are still out of order after sorting (internal error)",
+        Outcome::Unsorted { .. } => Err(Error::Internal(
+            "records are still out of order after sorting",
         )),
     }
 }
 
-use crate::read::is_packed;
+/// `records` in source order through the one external sorter, within `memory`.
+fn sort_by_source<'a>(
+    records: Records<'a>,
+    memory: u64,
+    packing: &Packing,
+    progress: &Progress,
+) -> Result<Records<'a>> {
+    let mut sorter = ExternalSorter::new(memory as usize, packing.resources.temp_dir.clone())?;
+    let mut value = Vec::new();
+    for r in progress.wrap(records) {
+        let (pair, line) = r?;
+        encode(&pair, line, &mut value);
+        sorter.push(pair.source.as_bytes(), &value)?;
+    }
+    let mut sorted = sorter.finish()?;
+    Ok(Box::new(std::iter::from_fn(move || {
+        match sorted.next_record() {
+            Ok(Some((key, value))) => Some(decode(key, value)),
+            Ok(None) => None,
+            Err(e) => Some(Err(e)),
+        }
+    })))
+}
+
+/// Prunes `input` (a packed table, or an interchange TSV grouped by source in byte order as
+/// extraction, `baler prune` and `baler dump` write it) and packs what is kept straight into
+/// `output`: the pruner's output goes through a channel to the packer on another thread,
+/// with no intermediate file. The packed file records the filters (`pruned_with`), the
+/// input's name (unless `packing.provenance` names an `input` already) and
+/// `packing.provenance`; settings not given in `packing` are a packed input's.
+///
+/// # Examples
+/// ```
+/// use baler::pipeline::{prune_and_pack, Packing};
+/// use baler::prune::{Filter, PruneOptions, Ranking};
+/// let dir = tempfile::tempdir().unwrap();
+/// let (input, output) = (dir.path().join("in.tsv"), dir.path().join("out.bale"));
+/// std::fs::write(&input, "source\ttarget\tp_t_given_s\n\
+///     grapa\tstaple\t0.7\ngrapa\tclamp\t0.3\n").unwrap();
+/// let prune = PruneOptions {
+///     filters: vec![Filter::TopK { k: 1, by: Ranking::default() }],
+///     ..Default::default()
+/// };
+/// let (stats, report) = prune_and_pack(&input, &output, &prune, &Packing::default())?;
+/// assert_eq!((stats.pairs_out, report.meta.pairs), (1, 1));
+/// assert_eq!(baler::Table::open(&output)?.lookup("grapa")?.len(), 1);
+/// # Ok::<(), baler::Error>(())
+/// ```
+pub fn prune_and_pack(
+    input: &Path,
+    output: &Path,
+    prune: &PruneOptions,
+    packing: &Packing,
+) -> Result<(PruneStats, PackReport)> {
+    files::check_output(output, &[input])?;
+    let name = input.display().to_string();
+    let source = TableInput::open(input, &name)?;
+    let header = source.header()?;
+    let mut pruner = Pruner::new(&header, &name, prune)?;
+    let header_out = pruner.header().clone();
+    let mut options = packing.options(source.table());
+    let filters = header_out
+        .metadata
+        .get("pruned_with")
+        .unwrap_or("")
+        .to_string();
+    options
+        .provenance
+        .insert(0, ("pruned_with".into(), filters));
+    if !options.provenance.iter().any(|(k, _)| k == "input") {
+        options.provenance.insert(0, ("input".into(), name.clone()));
+    }
+    let records = source.records()?;
+    let ((), packed) = into_pack(
+        &header_out,
+        output,
+        &options,
+        |emit| pruner.run(records, emit),
+        |_| true,
+    )?;
+    let packed = packed.ok_or(Error::Internal("the packer did not finish"))?;
+    Ok((pruner.stats().clone(), packed))
+}
 
 /// TSV records with their line numbers.
-struct Numbered<R> {
-    reader: TsvReader<R>,
+pub(super) struct Numbered<R> {
+    pub(super) reader: TsvReader<R>,
 }
 
 impl<R: BufRead> Iterator for Numbered<R> {
@@ -198,52 +274,53 @@ impl<R: BufRead> Iterator for Numbered<R> {
 
 type Emit<'e> = dyn FnMut(&PhrasePair) -> Result<()> + 'e;
 
-/// Opens `output` as TSV or a packed table, lets `body` emit pairs into it, and commits it only
-/// when `body` reports [`Outcome::Done`].
-fn write_output<B>(output: &Path, header: &Header, memory: u64, body: B) -> Result<Outcome>
-where
-    B: FnOnce(&mut Emit<'_>) -> Result<Outcome>,
-{
-    if !is_packed(output) {
-        let out = Output::create(output)?;
-        let mut writer =
-            TsvWriter::new(out, header).map_err(|e| Error::io(output, "writing", e))?;
-        let outcome = body(&mut |pair: &PhrasePair| {
-            writer
-                .write_pair(pair)
-                .map_err(|e| Error::io(output, "writing", e))
-        })?;
-        if let Outcome::Done = outcome {
-            writer.into_inner().commit()?;
-        }
-        return Ok(outcome);
+/// Where pruned pairs go: a TSV [`Output`] or a packer.
+struct Sink<'a> {
+    output: &'a Path,
+    memory: u64,
+    packing: &'a Packing,
+    input: &'a TableInput,
+}
+
+impl Sink<'_> {
+    /// Whether a partial output can be discarded and written again: anything but standard
+    /// output or a device or pipe.
+    fn can_restart(&self) -> bool {
+        self.output.as_os_str() != STDIO
+            && std::fs::metadata(self.output).map_or(true, |m| m.is_file())
     }
-    let options = PackOptions {
-        memory,
-        provenance: vec![("pruned_with".into(), header_filters(header))],
-        ..Default::default()
-    };
-    std::thread::scope(|scope| {
-        let (sender, receiver) = mpsc::sync_channel::<Result<PhrasePair>>(4096);
-        let packer =
-            scope.spawn(move || pack::pack_pairs(header, receiver.into_iter(), output, &options));
-        let stopped = || Error::Unsupported("the packer stopped early".into());
-        let outcome =
-            body(&mut |pair: &PhrasePair| sender.send(Ok(pair.clone())).map_err(|_| stopped()));
-        if !matches!(outcome, Ok(Outcome::Done)) {
-            // make the packer fail, so that it leaves nothing behind
-            let _ = sender.send(Err(Error::Unsupported("pruning restarted".into())));
+
+    /// Opens the output, lets `body` emit pairs into it, and commits it only when `body`
+    /// reports [`Outcome::Done`].
+    fn write<B>(&mut self, header: &Header, body: B) -> Result<Outcome>
+    where
+        B: FnOnce(&mut Emit<'_>) -> Result<Outcome>,
+    {
+        let output = self.output;
+        if !is_packed(output) {
+            let out = Output::create(output)?;
+            let mut writer =
+                TsvWriter::new(out, header).map_err(|e| Error::io(output, "writing", e))?;
+            let outcome = body(&mut |pair: &PhrasePair| {
+                writer
+                    .write_pair(pair)
+                    .map_err(|e| Error::io(output, "writing", e))
+            })?;
+            if let Outcome::Done = outcome {
+                writer.into_inner().commit()?;
+            }
+            return Ok(outcome);
         }
-        drop(sender);
-        let packed = packer
-            .join()
-            .map_err(|_| Error::Unsupported("the packer panicked".into()))?;
-        match outcome {
-            Ok(Outcome::Done) => packed.map(|_| Outcome::Done),
-            Ok(unsorted) => Ok(unsorted),
-            Err(e) => Err(packed.err().unwrap_or(e)),
-        }
-    })
+        let mut options = self.packing.options(self.input.table());
+        options.memory = self.memory;
+        options
+            .provenance
+            .insert(0, ("pruned_with".into(), header_filters(header)));
+        let (outcome, _) = into_pack(header, output, &options, body, |o| {
+            matches!(o, Outcome::Done)
+        })?;
+        Ok(outcome)
+    }
 }
 
 fn header_filters(header: &Header) -> String {
@@ -273,7 +350,10 @@ fn encode(pair: &PhrasePair, line: u64, out: &mut Vec<u8>) {
 }
 
 fn decode(key: &[u8], value: &[u8]) -> Result<(PhrasePair, u64)> {
-    let bad = || Error::Unsupported("a temporary sort run is damaged".into());
+    let bad = || Error::DamagedTemporary {
+        what: "sort run",
+        reason: "a record is cut short or not UTF-8".into(),
+    };
     let mut at = 0;
     let mut take = |n: usize| -> Result<&[u8]> {
         let s = value.get(at..at + n).ok_or_else(bad)?;
