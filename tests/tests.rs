@@ -4,6 +4,7 @@ mod extract;
 mod measure;
 mod pack;
 mod prune;
+mod regression;
 mod spec;
 mod synth;
 mod util;
