@@ -369,7 +369,7 @@ fn defect_10_an_unwritable_output_is_found_before_the_work() {
     ] {
         let mut child = command(&args).stdin(Stdio::piped()).spawn().unwrap();
         let mut stdin = child.stdin.take().unwrap();
-        stdin.write_all(b"source\ttarget\n").unwrap();
+        let _ = stdin.write_all(b"source\ttarget\n"); // it may have stopped already
         let status = wait_at_most(&mut child, Duration::from_secs(20));
         drop(stdin);
         let status = status.expect("it stops at once instead of reading the input");
@@ -529,4 +529,59 @@ fn recipe_pack_values_are_checked_by_the_registry_before_work() {
     let err = stderr(&out);
     assert!(err.contains("r.toml:6:"), "{err}");
     assert!(err.contains("zstd_level"), "{err}");
+}
+
+/// Peak resident memory of a run in KiB, from `/usr/bin/time -f %M` (GNU time).
+fn peak_kib(args: &[&str]) -> u64 {
+    let out = std::process::Command::new("/usr/bin/time")
+        .arg("-f")
+        .arg("peak %M")
+        .arg(crate::util::baler_bin())
+        .args(args)
+        .output()
+        .expect("GNU time at /usr/bin/time");
+    let err = stderr(&out);
+    assert!(out.status.success(), "{args:?}: {err}");
+    let line = err.lines().rev().find(|l| l.starts_with("peak ")).unwrap();
+    line[5..].trim().parse().unwrap()
+}
+
+#[test]
+fn defect_13_relative_entropy_pruning_respects_the_memory_budget() {
+    let dir = tempdir();
+    let table = dir.path().join("t.tsv");
+    baler_ok(&["synth", "--pairs", "200000", "-o", s(&table)]);
+    let roomy = dir.path().join("roomy.tsv");
+    let tight = dir.path().join("tight.tsv");
+    let common = ["--relative-entropy", "0", "-q"];
+    baler_ok(
+        &[
+            &["prune", s(&table), "-o", s(&roomy), "--memory", "2G"][..],
+            &common,
+        ]
+        .concat(),
+    );
+    let peak = peak_kib(
+        &[
+            &["prune", s(&table), "-o", s(&tight), "--memory", "64M"][..],
+            &common,
+        ]
+        .concat(),
+    );
+    assert!(peak <= 64 << 10, "peak {peak} KiB over the 64 MiB budget");
+    assert_eq!(
+        std::fs::read(&roomy).unwrap(),
+        std::fs::read(&tight).unwrap()
+    );
+    // a budget too small for the index is a clear error, not a larger footprint
+    let out = baler(
+        &[
+            &["prune", s(&table), "-o", s(&tight), "--memory", "1M"][..],
+            &common,
+        ]
+        .concat(),
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains("memory"), "{}", stderr(&out));
 }

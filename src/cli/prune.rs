@@ -202,6 +202,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         renormalize: f.renormalize.clone(),
         memory: f.resources.resources.memory,
         progress: !quiet,
+        temp_dir: f.resources.resources.temp_dir.clone(),
     };
     let packing = Packing {
         settings: f.pack.0.clone(),

@@ -62,6 +62,7 @@
 mod corpus;
 pub mod entropy;
 pub mod fisher;
+mod held;
 pub(crate) mod pipeline;
 mod stats;
 mod topk;
@@ -238,10 +239,14 @@ pub struct PruneOptions {
     /// Score columns to renormalise per source after the last filter (see the module docs).
     pub renormalize: Vec<String>,
     /// Memory budget in bytes for the external sort of unsorted input and for packing
-    /// (0: 512 MiB).
+    /// (0: the default, [`crate::settings::DEFAULT_MEMORY`]). Relative-entropy pruning keeps
+    /// its index within half of it.
     pub memory: u64,
     /// Show a progress bar on stderr (when it is a terminal).
     pub progress: bool,
+    /// Parent of temporary directories (pairs waiting for relative entropy; the system's when
+    /// `None`).
+    pub temp_dir: Option<PathBuf>,
 }
 
 impl PruneOptions {
