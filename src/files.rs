@@ -70,59 +70,34 @@ pub fn read_text(path: &Path) -> Result<String> {
 pub fn decompressing(path: &Path, raw: Box<dyn Read + Send>) -> Result<Box<dyn BufRead + Send>> {
     let name = path.to_string_lossy();
     let reader: Box<dyn BufRead + Send> = if name.ends_with(".gz") {
-        Box::new(BufReader::with_capacity(
-            1 << 16,
-            flate2::read::MultiGzDecoder::new(raw),
-        ))
+        Box::new(skip_bom(
+            path,
+            BufReader::with_capacity(1 << 16, flate2::read::MultiGzDecoder::new(raw)),
+        )?)
     } else if name.ends_with(".zst") {
         let decoder =
             zstd::stream::read::Decoder::new(raw).map_err(|e| Error::io(path, "opening", e))?;
-        Box::new(BufReader::with_capacity(1 << 16, decoder))
+        Box::new(skip_bom(path, BufReader::with_capacity(1 << 16, decoder))?)
     } else {
-        Box::new(BufReader::with_capacity(1 << 16, raw))
+        Box::new(skip_bom(path, BufReader::with_capacity(1 << 16, raw))?)
     };
-    Ok(Box::new(SkipBom {
-        inner: reader,
-        checked: false,
-    }))
+    Ok(reader)
 }
 
 /// The UTF-8 encoding of U+FEFF, which some editors put at the start of text files.
 const BOM: &[u8] = b"\xEF\xBB\xBF";
 
-/// A reader that drops a UTF-8 byte-order mark at the very start of its input.
-struct SkipBom<R> {
-    inner: R,
-    checked: bool,
-}
-
-impl<R: BufRead> Read for SkipBom<R> {
-    fn read(&mut self, out: &mut [u8]) -> io::Result<usize> {
-        let n = {
-            let buf = self.fill_buf()?;
-            let n = buf.len().min(out.len());
-            out[..n].copy_from_slice(&buf[..n]);
-            n
-        };
-        self.consume(n);
-        Ok(n)
+/// Drops a UTF-8 byte-order mark at the very start of `reader` (read once, when opening, so
+/// that reading stays on the buffered reader's own fast path).
+fn skip_bom<R: BufRead>(path: &Path, mut reader: R) -> Result<R> {
+    let starts_with_bom = reader
+        .fill_buf()
+        .map_err(|e| Error::io(path, "reading", e))?
+        .starts_with(BOM);
+    if starts_with_bom {
+        reader.consume(BOM.len());
     }
-}
-
-impl<R: BufRead> BufRead for SkipBom<R> {
-    fn fill_buf(&mut self) -> io::Result<&[u8]> {
-        if !self.checked {
-            let starts_with_bom = self.inner.fill_buf()?.starts_with(BOM);
-            if starts_with_bom {
-                self.inner.consume(BOM.len());
-            }
-            self.checked = true;
-        }
-        self.inner.fill_buf()
-    }
-    fn consume(&mut self, n: usize) {
-        self.inner.consume(n)
-    }
+    Ok(reader)
 }
 
 /// Reads one line (without its `\n` or `\r\n`) into `buf`; returns false at end of input.
