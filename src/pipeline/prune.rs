@@ -7,6 +7,7 @@ use super::{into_pack, Packing, TableInput};
 use crate::error::{Error, Result};
 use crate::files::{self, Output, TempDir, STDIO};
 use crate::pack::PackReport;
+use crate::prune::held::{self, Item};
 use crate::prune::pipeline::Outcome;
 use crate::prune::{CountSource, Filter, PruneOptions, PruneStats, Pruner, SentenceCounts};
 use crate::read::is_packed;
@@ -182,13 +183,19 @@ fn sort_by_source<'a>(
     let mut value = Vec::new();
     for r in progress.wrap(records) {
         let (pair, line) = r?;
-        encode(&pair, line, &mut value);
-        sorter.push(pair.source.as_bytes(), &value)?;
+        value.clear();
+        let item = Item {
+            pair,
+            line,
+            neg_ln_p: None,
+        };
+        held::encode(&item, &mut value);
+        sorter.push(item.pair.source.as_bytes(), &value)?;
     }
     let mut sorted = sorter.finish()?;
     Ok(Box::new(std::iter::from_fn(move || {
         match sorted.next_record() {
-            Ok(Some((key, value))) => Some(decode(key, value)),
+            Ok(Some((_, mut value))) => Some(held::decode(&mut value).map(|i| (i.pair, i.line))),
             Ok(None) => None,
             Err(e) => Some(Err(e)),
         }
@@ -327,76 +334,6 @@ fn header_filters(header: &Header) -> String {
     header.metadata.get("pruned_with").unwrap_or("").to_string()
 }
 
-/// Record layout in the sort runs (after the source key): line, target, alignment, scores,
-/// counts, little-endian with u32 lengths.
-fn encode(pair: &PhrasePair, line: u64, out: &mut Vec<u8>) {
-    out.clear();
-    out.extend_from_slice(&line.to_le_bytes());
-    out.extend_from_slice(&(pair.target.len() as u32).to_le_bytes());
-    out.extend_from_slice(pair.target.as_bytes());
-    out.extend_from_slice(&(pair.alignment.len() as u32).to_le_bytes());
-    for &(i, j) in &pair.alignment {
-        out.extend_from_slice(&i.to_le_bytes());
-        out.extend_from_slice(&j.to_le_bytes());
-    }
-    out.extend_from_slice(&(pair.scores.len() as u32).to_le_bytes());
-    for s in &pair.scores {
-        out.extend_from_slice(&s.to_bits().to_le_bytes());
-    }
-    out.extend_from_slice(&(pair.counts.len() as u32).to_le_bytes());
-    for c in &pair.counts {
-        out.extend_from_slice(&c.to_le_bytes());
-    }
-}
-
-fn decode(key: &[u8], value: &[u8]) -> Result<(PhrasePair, u64)> {
-    let bad = || Error::DamagedTemporary {
-        what: "sort run",
-        reason: "a record is cut short or not UTF-8".into(),
-    };
-    let mut at = 0;
-    let mut take = |n: usize| -> Result<&[u8]> {
-        let s = value.get(at..at + n).ok_or_else(bad)?;
-        at += n;
-        Ok(s)
-    };
-    let u32_at = |b: &[u8]| u32::from_le_bytes(b.try_into().expect("4 bytes")) as usize;
-    let u64_at = |b: &[u8]| u64::from_le_bytes(b.try_into().expect("8 bytes"));
-    let line = u64_at(take(8)?);
-    let n = u32_at(take(4)?);
-    let target = String::from_utf8(take(n)?.to_vec()).map_err(|_| bad())?;
-    let n = u32_at(take(4)?);
-    let mut alignment = Vec::with_capacity(n);
-    for _ in 0..n {
-        let b = take(4)?;
-        alignment.push((
-            u16::from_le_bytes([b[0], b[1]]),
-            u16::from_le_bytes([b[2], b[3]]),
-        ));
-    }
-    let n = u32_at(take(4)?);
-    let mut scores = Vec::with_capacity(n);
-    for _ in 0..n {
-        scores.push(f64::from_bits(u64_at(take(8)?)));
-    }
-    let n = u32_at(take(4)?);
-    let mut counts = Vec::with_capacity(n);
-    for _ in 0..n {
-        counts.push(u64_at(take(8)?));
-    }
-    let source = String::from_utf8(key.to_vec()).map_err(|_| bad())?;
-    Ok((
-        PhrasePair {
-            source,
-            target,
-            alignment,
-            scores,
-            counts,
-        },
-        line,
-    ))
-}
-
 /// A spinner with the number of pairs read, on stderr when it is a terminal.
 struct Progress {
     bar: indicatif::ProgressBar,
@@ -445,26 +382,5 @@ impl Progress {
 impl Drop for Progress {
     fn drop(&mut self) {
         self.bar.finish_and_clear();
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn sort_record_round_trip() {
-        let pair = PhrasePair {
-            source: "el muelle".into(),
-            target: "the quay".into(),
-            alignment: vec![(0, 0), (1, 1)],
-            scores: vec![0.25, -1.5e-300],
-            counts: vec![3, u64::MAX],
-        };
-        let mut buf = Vec::new();
-        encode(&pair, 77, &mut buf);
-        let (back, line) = decode(pair.source.as_bytes(), &buf).unwrap();
-        assert_eq!((back, line), (pair, 77));
-        assert!(decode(b"x", &buf[..buf.len() - 1]).is_err());
     }
 }

@@ -153,7 +153,7 @@ impl Held {
 
 fn damaged(reason: &str) -> Error {
     Error::DamagedTemporary {
-        what: "file of held pairs",
+        what: "file of pairs",
         reason: reason.into(),
     }
 }
@@ -178,7 +178,9 @@ fn put_bytes(out: &mut Vec<u8>, b: &[u8]) {
     out.extend_from_slice(b);
 }
 
-fn encode(item: &Item, out: &mut Vec<u8>) {
+/// Appends `item` to `out` in the byte layout of this run's temporary files (held groups,
+/// sort runs): little-endian numbers, u32-prefixed strings.
+pub(crate) fn encode(item: &Item, out: &mut Vec<u8>) {
     let p = &item.pair;
     out.extend_from_slice(&item.line.to_le_bytes());
     out.extend_from_slice(&item.neg_ln_p.unwrap_or(f64::NAN).to_bits().to_le_bytes());
@@ -199,7 +201,8 @@ fn encode(item: &Item, out: &mut Vec<u8>) {
     }
 }
 
-fn decode(r: &mut impl Read) -> Result<Item> {
+/// Reads back one item written by [`encode`].
+pub(crate) fn decode(r: &mut impl Read) -> Result<Item> {
     let mut b8 = [0u8; 8];
     let mut b4 = [0u8; 4];
     let mut u64_ = |r: &mut dyn Read| -> Result<u64> {
@@ -302,5 +305,17 @@ mod tests {
             .unwrap();
             assert_eq!(back, groups);
         }
+    }
+
+    #[test]
+    fn a_cut_record_is_a_damaged_temporary_file() {
+        let mut buf = Vec::new();
+        encode(&item("el muelle", "the quay", 77), &mut buf);
+        assert_eq!(
+            decode(&mut &buf[..]).unwrap(),
+            item("el muelle", "the quay", 77)
+        );
+        let cut = decode(&mut &buf[..buf.len() - 1]).unwrap_err();
+        assert!(matches!(cut, Error::DamagedTemporary { .. }), "{cut}");
     }
 }

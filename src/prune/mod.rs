@@ -62,7 +62,7 @@
 mod corpus;
 pub mod entropy;
 pub mod fisher;
-mod held;
+pub(crate) mod held;
 pub(crate) mod pipeline;
 mod stats;
 mod topk;
