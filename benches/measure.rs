@@ -1,7 +1,7 @@
 //! Criterion benches for `baler build`'s and `baler sweep`'s inner steps, each beside its
 //! baseline (ratios printed by benches/measure.sh):
 //!
-//! * prune → pack through a channel (`measure::prune_and_pack`, what build and sweep do)
+//! * prune → pack through a channel (`pipeline::prune_and_pack`, what build and sweep do)
 //!   against prune to a temporary TSV file and pack that file (what the stages do by hand);
 //! * a held-out coverage pass over a packed table (index walk per start, `Table::spans`)
 //!   against the same table loaded from TSV into a `HashMap` (one hash lookup per span).
@@ -10,8 +10,9 @@ use std::path::Path;
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 
-use baler::measure::{coverage, prune_and_pack, MeasuredTable};
-use baler::prune::{prune_path, Filter, PruneOptions, Ranking};
+use baler::measure::{coverage, MeasuredTable};
+use baler::pipeline::{prune_and_pack, prune_file, Packing};
+use baler::prune::{Filter, PruneOptions, Ranking};
 use baler::synth::{Generator, SynthOptions};
 use baler::table::{PhrasePair, TsvWriter};
 
@@ -56,21 +57,20 @@ fn prune_then_pack(c: &mut Criterion) {
         }],
         ..Default::default()
     };
-    let pack = baler::pack::PackOptions {
-        threads: 1,
-        ..Default::default()
-    };
+    let mut packing = Packing::default();
+    packing.resources.threads = 1;
+    let pack = packing.options(None);
     let mut group = c.benchmark_group("measure_prune_pack");
     group.throughput(Throughput::Elements(n));
     group.sample_size(10);
     let out = dir.path().join("out.bale");
     group.bench_function("channel", |b| {
-        b.iter(|| prune_and_pack(&input, &out, &prune, &pack).unwrap())
+        b.iter(|| prune_and_pack(&input, &out, &prune, &packing).unwrap())
     });
     let temp = dir.path().join("pruned.tsv");
     group.bench_function("temp_file", |b| {
         b.iter(|| {
-            prune_path(&input, &temp, &prune).unwrap();
+            prune_file(&input, &temp, &prune, &packing).unwrap();
             let reader = baler::files::open_input(&temp).unwrap();
             baler::pack::pack_tsv(reader, "pruned.tsv", &out, &pack).unwrap()
         })

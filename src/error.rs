@@ -50,6 +50,24 @@ pub enum Error {
     /// An operation's preconditions are not met by otherwise valid input
     /// (e.g. a significance filter on a table without sentence-level counts).
     Unsupported(String),
+    /// A temporary file this run wrote itself (a sort run, a spooled input) no longer reads
+    /// back as written: the disk or another process changed it.
+    DamagedTemporary {
+        /// What the file held, e.g. "sort run".
+        what: &'static str,
+        /// Why it cannot be read.
+        reason: String,
+    },
+    /// The stage this one feeds stopped taking records (its own error is what to report; the
+    /// pipeline replaces this one with it).
+    ConsumerStopped,
+    /// An internal invariant does not hold: a bug in baler.
+    Internal(&'static str),
+    /// A worker thread of the run panicked: a bug in baler.
+    WorkerPanicked {
+        /// Which worker, e.g. "packer".
+        worker: &'static str,
+    },
 }
 
 impl Error {
@@ -101,6 +119,18 @@ impl fmt::Display for Error {
                 path,
                 action,
                 source,
+            } if path.as_os_str() == "-" => {
+                let stream = if action.starts_with("reading") || action.starts_with("opening") {
+                    "standard input"
+                } else {
+                    "standard output"
+                };
+                write!(f, "{action} {stream}: {source}")
+            }
+            Error::Io {
+                path,
+                action,
+                source,
             } => {
                 write!(f, "{} {}: {}", action, path.display(), source)
             }
@@ -120,6 +150,17 @@ impl fmt::Display for Error {
             }
             Error::InvalidArgument { option, reason } => write!(f, "invalid {option}: {reason}"),
             Error::Unsupported(reason) => f.write_str(reason),
+            Error::DamagedTemporary { what, reason } => {
+                write!(f, "a temporary {what} of this run is damaged: {reason}")
+            }
+            Error::Internal(what) => write!(f, "internal error (please report it): {what}"),
+            Error::ConsumerStopped => f.write_str("the next stage stopped taking records"),
+            Error::WorkerPanicked { worker } => {
+                write!(
+                    f,
+                    "the {worker} thread panicked (a bug in baler; please report it)"
+                )
+            }
         }
     }
 }

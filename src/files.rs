@@ -4,10 +4,23 @@
 //! input. Outputs are written to a temporary file in the destination directory and renamed into
 //! place only by [`Output::commit`], so a failed run never leaves a partial file behind; `-`
 //! means standard output. Outputs ending in `.gz` or `.zst` are compressed.
+//!
+//! This module is the one I/O layer of the library:
+//!
+//! * A UTF-8 byte-order mark at the start of an input is skipped ([`open_input`]), so a TSV
+//!   saved by a spreadsheet program still has its `source` column and a corpus's first token is
+//!   not glued to the mark.
+//! * [`check_output`] refuses, before any work starts, an output that is the same file (device
+//!   and inode, not name) as one of the inputs, and an output location that cannot be written.
+//! * Every [`Output`] temporary file and every [`TempDir`] registers itself for removal when the
+//!   process is interrupted: [`remove_on_interrupt`] installs a SIGINT/SIGTERM handler that
+//!   removes them, prints one line and exits with status 130.
 
 use std::fs::File;
 use std::io::{self, BufRead, BufReader, BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::Mutex;
 
 use crate::error::{Error, Result};
 
@@ -38,22 +51,52 @@ pub fn open_input(path: &Path) -> Result<Box<dyn BufRead + Send>> {
     decompressing(path, raw)
 }
 
+/// Reads the whole of a small text file (a recipe), skipping a byte-order mark.
+pub fn read_text(path: &Path) -> Result<String> {
+    let mut text = String::new();
+    open_input(path)?
+        .read_to_string(&mut text)
+        .map_err(|e| match e.kind() {
+            io::ErrorKind::InvalidData => {
+                Error::input(path.display().to_string(), 0, "not valid UTF-8")
+            }
+            _ => Error::io(path, "reading", e),
+        })?;
+    Ok(text)
+}
+
 /// Wraps the bytes `raw` read from `path` in a buffered reader, decompressing them when the
 /// name ends in `.gz` or `.zst`.
 pub fn decompressing(path: &Path, raw: Box<dyn Read + Send>) -> Result<Box<dyn BufRead + Send>> {
     let name = path.to_string_lossy();
     let reader: Box<dyn BufRead + Send> = if name.ends_with(".gz") {
-        Box::new(BufReader::with_capacity(
-            1 << 16,
-            flate2::read::MultiGzDecoder::new(raw),
-        ))
+        Box::new(skip_bom(
+            path,
+            BufReader::with_capacity(1 << 16, flate2::read::MultiGzDecoder::new(raw)),
+        )?)
     } else if name.ends_with(".zst") {
         let decoder =
             zstd::stream::read::Decoder::new(raw).map_err(|e| Error::io(path, "opening", e))?;
-        Box::new(BufReader::with_capacity(1 << 16, decoder))
+        Box::new(skip_bom(path, BufReader::with_capacity(1 << 16, decoder))?)
     } else {
-        Box::new(BufReader::with_capacity(1 << 16, raw))
+        Box::new(skip_bom(path, BufReader::with_capacity(1 << 16, raw))?)
     };
+    Ok(reader)
+}
+
+/// The UTF-8 encoding of U+FEFF, which some editors put at the start of text files.
+const BOM: &[u8] = b"\xEF\xBB\xBF";
+
+/// Drops a UTF-8 byte-order mark at the very start of `reader` (read once, when opening, so
+/// that reading stays on the buffered reader's own fast path).
+fn skip_bom<R: BufRead>(path: &Path, mut reader: R) -> Result<R> {
+    let starts_with_bom = reader
+        .fill_buf()
+        .map_err(|e| Error::io(path, "reading", e))?
+        .starts_with(BOM);
+    if starts_with_bom {
+        reader.consume(BOM.len());
+    }
     Ok(reader)
 }
 
@@ -108,7 +151,7 @@ enum Sink {
 pub struct Output {
     path: PathBuf,
     sink: Option<Sink>,
-    temp: Option<tempfile::TempPath>,
+    temp: Option<(tempfile::TempPath, Registered)>,
 }
 
 impl Output {
@@ -153,8 +196,9 @@ impl Output {
         let named = tempfile::Builder::new()
             .prefix(".baler-partial-")
             .tempfile_in(dir)
-            .map_err(|e| Error::io(path, "creating", e))?;
+            .map_err(|e| Error::io(path, "creating", without_path(e)))?;
         let (file, temp) = named.into_parts();
+        let registered = Registered::new(temp.to_path_buf(), false);
         // Temporary files are created private (0600); the finished output gets the permissions
         // of the file it replaces, or the usual 0644.
         #[cfg(unix)]
@@ -168,7 +212,7 @@ impl Output {
         Ok(Output {
             path: path.to_path_buf(),
             sink: Some(wrap(path, buffered)?),
-            temp: Some(temp),
+            temp: Some((temp, registered)),
         })
     }
 
@@ -197,13 +241,13 @@ impl Output {
                 .map_err(|e| e.into_error())
                 .map_err(err)?,
         };
-        let Some(temp) = self.temp.take() else {
+        let Some((temp, _registered)) = self.temp.take() else {
             return Ok(()); // a device or pipe, written in place
         };
         file.sync_all().map_err(err)?;
         drop(file);
         temp.persist(&path)
-            .map_err(|e| Error::io(&path, "renaming into place", e.error))?;
+            .map_err(|e| Error::io(&path, "renaming into place", without_path(e.error)))?;
         Ok(())
     }
 
@@ -227,6 +271,175 @@ impl Write for Output {
     fn flush(&mut self) -> io::Result<()> {
         self.sink().flush()
     }
+}
+
+/// The operating-system error of `e` without the temporary file name `tempfile` adds to it:
+/// messages name the output the user asked for, not `.baler-partial-…`.
+fn without_path(e: io::Error) -> io::Error {
+    match e.raw_os_error() {
+        Some(code) => io::Error::from_raw_os_error(code),
+        None => io::Error::new(e.kind(), e.kind().to_string()),
+    }
+}
+
+/// A temporary directory, removed when dropped or when the process is interrupted.
+///
+/// # Examples
+/// ```
+/// let parent = tempfile::tempdir().unwrap();
+/// let dir = baler::files::TempDir::new(Some(parent.path()), "baler-example-").unwrap();
+/// assert!(dir.path().starts_with(parent.path()));
+/// let kept = dir.path().to_path_buf();
+/// drop(dir);
+/// assert!(!kept.exists());
+/// ```
+pub struct TempDir {
+    dir: tempfile::TempDir,
+    _registered: Registered,
+}
+
+impl TempDir {
+    /// Creates a directory named `prefix…` inside `parent` (the system's default when `None`).
+    /// Errors name `parent`, the directory the user chose.
+    pub fn new(parent: Option<&Path>, prefix: &str) -> Result<TempDir> {
+        let parent = parent.map_or_else(std::env::temp_dir, Path::to_path_buf);
+        let dir = tempfile::Builder::new()
+            .prefix(prefix)
+            .tempdir_in(&parent)
+            .map_err(|e| {
+                Error::io(
+                    &parent,
+                    "creating a temporary directory in",
+                    without_path(e),
+                )
+            })?;
+        let registered = Registered::new(dir.path().to_path_buf(), true);
+        Ok(TempDir {
+            dir,
+            _registered: registered,
+        })
+    }
+
+    /// The directory's path.
+    pub fn path(&self) -> &Path {
+        self.dir.path()
+    }
+}
+
+/// Paths to remove if the process is interrupted, by registration number.
+static PENDING: Mutex<Vec<(u64, PathBuf, bool)>> = Mutex::new(Vec::new());
+static NEXT_ID: AtomicU64 = AtomicU64::new(0);
+
+/// A registration in [`PENDING`], withdrawn when dropped.
+struct Registered(u64);
+
+impl Registered {
+    fn new(path: PathBuf, is_dir: bool) -> Registered {
+        let id = NEXT_ID.fetch_add(1, Ordering::Relaxed);
+        PENDING
+            .lock()
+            .unwrap_or_else(|e| e.into_inner())
+            .push((id, path, is_dir));
+        Registered(id)
+    }
+}
+
+impl Drop for Registered {
+    fn drop(&mut self) {
+        let mut pending = PENDING.lock().unwrap_or_else(|e| e.into_inner());
+        if let Some(i) = pending.iter().position(|e| e.0 == self.0) {
+            pending.swap_remove(i);
+        }
+    }
+}
+
+/// Installs the SIGINT/SIGTERM handler of the command-line tool: it removes every partial
+/// [`Output`] and every [`TempDir`] still registered, prints `message` on stderr and exits with
+/// status 130 (the shell's code for an interrupted command). Call once, at start-up.
+pub fn remove_on_interrupt(message: &'static str) -> Result<()> {
+    ctrlc::set_handler(move || {
+        // Holding the lock until exit keeps other threads from registering new files.
+        let pending = PENDING.lock().unwrap_or_else(|e| e.into_inner());
+        for (_, path, is_dir) in pending.iter() {
+            let _ = if *is_dir {
+                std::fs::remove_dir_all(path)
+            } else {
+                std::fs::remove_file(path)
+            };
+        }
+        eprintln!("{message}");
+        std::process::exit(130);
+    })
+    .map_err(|e| Error::io("-", "installing the interrupt handler", io::Error::other(e)))
+}
+
+/// Checks, before any work starts, that `output` can be written and is none of `inputs`.
+///
+/// Refuses an output that is the same file as an input (same device and inode, whatever the
+/// names), an output that is a directory, and a location where no file can be created. `-`
+/// (standard output) and devices such as `/dev/null` pass.
+///
+/// # Examples
+/// ```
+/// let dir = tempfile::tempdir().unwrap();
+/// let input = dir.path().join("pairs.tsv");
+/// std::fs::write(&input, "source\ttarget\n").unwrap();
+/// let same = dir.path().join(".").join("pairs.tsv");
+/// assert!(baler::files::check_output(&same, &[input.as_path()]).is_err());
+/// assert!(baler::files::check_output(&dir.path().join("out.bale"), &[input.as_path()]).is_ok());
+/// assert!(baler::files::check_output(&dir.path().join("no/such/dir/out.tsv"), &[]).is_err());
+/// ```
+pub fn check_output(output: &Path, inputs: &[&Path]) -> Result<()> {
+    if output.as_os_str() == STDIO {
+        return Ok(());
+    }
+    if let Ok(meta) = std::fs::metadata(output) {
+        if meta.is_dir() {
+            return Err(Error::io(
+                output,
+                "creating",
+                io::Error::other("is a directory"),
+            ));
+        }
+        if !meta.is_file() {
+            return Ok(()); // a device or a pipe: written in place
+        }
+        for input in inputs {
+            if input.as_os_str() == STDIO {
+                continue;
+            }
+            if std::fs::metadata(input).is_ok_and(|m| same_file(&m, &meta)) {
+                return Err(Error::invalid(
+                    "output",
+                    format!(
+                        "{} is the same file as the input {}; writing it would destroy the input",
+                        output.display(),
+                        input.display()
+                    ),
+                ));
+            }
+        }
+    }
+    let dir = match output.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    tempfile::Builder::new()
+        .prefix(".baler-partial-")
+        .tempfile_in(dir)
+        .map(drop)
+        .map_err(|e| Error::io(output, "creating", without_path(e)))
+}
+
+#[cfg(unix)]
+fn same_file(a: &std::fs::Metadata, b: &std::fs::Metadata) -> bool {
+    use std::os::unix::fs::MetadataExt;
+    a.dev() == b.dev() && a.ino() == b.ino()
+}
+
+#[cfg(not(unix))]
+fn same_file(_: &std::fs::Metadata, _: &std::fs::Metadata) -> bool {
+    false
 }
 
 /// Compresses by the output name's extension.

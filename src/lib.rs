@@ -5,8 +5,21 @@
 //! * [`table`]: the tab-separated interchange format every stage reads and writes.
 //! * [`extract`]: phrase pairs consistent with a word alignment, with relative-frequency and
 //!   lexical scores and the sentence-level counts pruning needs.
-//! * [`prune`]: significance testing (Fisher's exact test), top-k and threshold filters.
-//! * [`pack`]: the compact binary format; [`Table`] reads it from a memory map.
+//! * [`prune`]: significance testing (Fisher's exact test), top-k, threshold and
+//!   relative-entropy filters over source-grouped streams.
+//! * [`pack`]: the compact binary format; [`Table`] ([`read`]) reads it from a memory map;
+//!   [`format`] holds its byte layout; [`quantize`] its score codebooks.
+//! * [`measure`]: sizes, held-out coverage, retained mass, divergence; the sweep grid.
+//!
+//! Around them:
+//!
+//! * [`pipeline`]: the only place that wires stages together over files (prune a file, prune
+//!   into a pack, pack or repack a file, sweep, build from a [`recipe`]).
+//! * [`settings`]: every packing and resource option, defined once; flags, recipe keys and
+//!   sweep names derive from it.
+//! * [`files`]: the one I/O layer (inputs, atomic outputs, temporary directories, removal on
+//!   interrupt); [`sort`]: the one external sorter; [`error`]: the one error type.
+//! * [`synth`]: synthetic tables for benchmarks.
 //!
 //! ```
 //! # fn main() -> baler::Result<()> {
@@ -31,11 +44,13 @@ pub mod lm;
 pub mod measure;
 mod mmap;
 pub mod pack;
+pub mod pipeline;
 pub mod prune;
 pub mod quality;
 pub mod quantize;
 pub mod read;
 pub mod recipe;
+pub mod settings;
 pub mod sort;
 pub mod synth;
 pub mod table;

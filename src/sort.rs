@@ -12,6 +12,7 @@ use std::io::{self, BufReader, BufWriter, Read, Write};
 use std::path::PathBuf;
 
 use crate::error::{Error, Result};
+use crate::files::TempDir;
 
 const RECORD_OVERHEAD: usize = 24;
 
@@ -34,10 +35,9 @@ pub struct ExternalSorter {
     budget: usize,
     arena: Vec<u8>,
     index: Vec<(usize, u32, u32)>,
-    dir: Option<tempfile::TempDir>,
+    dir: Option<TempDir>,
     parent: Option<PathBuf>,
     runs: Vec<PathBuf>,
-    spilled_bytes: u64,
     in_order: bool,
 }
 
@@ -61,7 +61,6 @@ impl ExternalSorter {
             dir: None,
             parent: temp_parent,
             runs: Vec::new(),
-            spilled_bytes: 0,
             in_order: true,
         })
     }
@@ -85,18 +84,8 @@ impl ExternalSorter {
     }
 
     /// Bytes currently held in memory.
-    pub fn memory_used(&self) -> usize {
+    fn memory_used(&self) -> usize {
         self.arena.len() + self.index.len() * RECORD_OVERHEAD
-    }
-
-    /// The number of runs written to disk so far.
-    pub fn runs(&self) -> usize {
-        self.runs.len()
-    }
-
-    /// Compressed bytes written to disk so far.
-    pub fn spilled_bytes(&self) -> u64 {
-        self.spilled_bytes
     }
 
     fn sort_in_memory(&mut self) {
@@ -138,14 +127,7 @@ impl ExternalSorter {
         }
         self.sort_in_memory();
         if self.dir.is_none() {
-            let mut b = tempfile::Builder::new();
-            b.prefix("baler-sort-");
-            let dir = match &self.parent {
-                Some(p) => b.tempdir_in(p),
-                None => b.tempdir(),
-            }
-            .map_err(|e| Error::io(std::env::temp_dir(), "creating a temporary directory in", e))?;
-            self.dir = Some(dir);
+            self.dir = Some(TempDir::new(self.parent.as_deref(), "baler-sort-")?);
         }
         let path = self
             .dir
@@ -164,7 +146,6 @@ impl ExternalSorter {
         }
         let mut file = enc.finish().map_err(werr)?;
         file.flush().map_err(werr)?;
-        self.spilled_bytes += std::fs::metadata(&path).map(|m| m.len()).unwrap_or(0);
         self.runs.push(path);
         self.arena.clear();
         self.index.clear();
@@ -246,7 +227,7 @@ pub struct SortedRecords {
     heads: Vec<(Vec<u8>, Vec<u8>)>,
     heap: BinaryHeap<HeapEntry>,
     current: Option<(Vec<u8>, Vec<u8>)>,
-    _dir: Option<tempfile::TempDir>,
+    _dir: Option<TempDir>,
 }
 
 impl SortedRecords {

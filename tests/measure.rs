@@ -593,8 +593,23 @@ fn compare_prints_text_json_and_csv() {
 #[test]
 fn build_matches_the_stages_run_by_hand() {
     let dir = tempfile::tempdir().unwrap();
-    let recipe = repo("demo-data/toolshed.recipe.toml");
-    let report = ok(&["build", s(&recipe), "--quiet"], Some(dir.path()));
+    // The recipe and its inputs copied into a folder of their own: every path of a recipe is
+    // relative to its folder, so the outputs land in dir/demo-out wherever the build runs.
+    let data = dir.path().join("demo-data");
+    std::fs::create_dir(&data).unwrap();
+    for name in [
+        "toolshed.recipe.toml",
+        "toolshed.en",
+        "toolshed.es",
+        "toolshed.align",
+        "toolshed.test.en",
+        "toolshed.test.es",
+    ] {
+        std::fs::copy(repo(&format!("demo-data/{name}")), data.join(name)).unwrap();
+    }
+    let recipe = data.join("toolshed.recipe.toml");
+    let elsewhere = tempfile::tempdir().unwrap();
+    let report = ok(&["build", s(&recipe), "--quiet"], Some(elsewhere.path()));
     assert!(report.contains("toolshed.bale"), "{report}");
     assert!(report.contains("reachable"), "{report}");
     let built = dir.path().join("demo-out/toolshed.bale");

@@ -644,12 +644,15 @@ fn sentence_counts_from_the_corpus() {
         String::from_utf8_lossy(&run.stderr)
     );
     let text = dir.read("out.tsv");
-    assert!(text.starts_with(
-        "# sentence_pairs=4\nsource\ttarget\tp_t_given_s\tneg_ln_p\tcooc\tdf_source\tdf_target\n"
-    ));
+    // The provenance names the corpus and the annotation (a regression test of its own covers
+    // why: `# pruned_with` used to leave them out).
+    assert!(text.starts_with(&format!(
+        "# sentence_pairs=4\n# pruned_with=--source {source} --target {target} --annotate\n\
+         source\ttarget\tp_t_given_s\tneg_ln_p\tcooc\tdf_source\tdf_target\n"
+    )));
     let fields: Vec<Vec<&str>> = text
         .lines()
-        .skip(2)
+        .skip(3)
         .map(|l| l.split('\t').collect())
         .collect();
     let expected = [

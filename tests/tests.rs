@@ -5,6 +5,7 @@ mod measure;
 mod pack;
 mod prune;
 mod quality;
+mod regression;
 mod spec;
 mod synth;
 mod util;

@@ -1,12 +1,28 @@
 //! Helpers shared by the integration tests: running the binary, temporary directories.
+//!
+//! `BALER_UNDER_TEST=/path/to/baler` runs the command-line tests against another build (for
+//! instance to see a regression test fail on an older version); the default is this crate's.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
+
+/// The binary under test.
+pub fn baler_bin() -> PathBuf {
+    std::env::var_os("BALER_UNDER_TEST")
+        .map(PathBuf::from)
+        .unwrap_or_else(|| PathBuf::from(env!("CARGO_BIN_EXE_baler")))
+}
+
+/// A `baler` command with `args`, its output captured.
+pub fn command(args: &[&str]) -> Command {
+    let mut cmd = Command::new(baler_bin());
+    cmd.args(args).stdout(Stdio::piped()).stderr(Stdio::piped());
+    cmd
+}
 
 /// Runs `baler` with `args`, feeding `stdin`; returns the process output.
 pub fn baler(args: &[&str], stdin: Option<&str>) -> Output {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_baler"));
-    cmd.args(args).stdout(Stdio::piped()).stderr(Stdio::piped());
+    let mut cmd = command(args);
     cmd.stdin(if stdin.is_some() {
         Stdio::piped()
     } else {
@@ -39,4 +55,26 @@ pub fn baler_ok(args: &[&str]) -> String {
 /// The path as a `&str` (test paths are UTF-8).
 pub fn s(p: &Path) -> &str {
     p.to_str().unwrap()
+}
+
+/// A file of the repository.
+pub fn repo(path: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join(path)
+}
+
+/// Writes `text` to `dir/name` and returns the path.
+pub fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
+    let path = dir.join(name);
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+/// The names in `dir`, sorted.
+pub fn entries(dir: &Path) -> Vec<String> {
+    let mut names: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    names
 }

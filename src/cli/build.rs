@@ -1,19 +1,17 @@
 //! `baler build`: run a whole build from one recipe file.
 
-use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use baler::recipe::{self, Recipe};
-use baler::Error;
+use baler::recipe::Recipe;
 
 /// Arguments of `baler build`.
 #[derive(clap::Args)]
 #[command(
     after_help = "The recipe (TOML) lists the corpus, extraction options, filters in \
-    order, packing options, outputs and an optional held-out set; see the recipe module's \
-    documentation or demo-data/toolshed.recipe.toml. Input paths are relative to the recipe's \
-    folder, output paths to the current directory."
+    order, packing options, outputs and an optional held-out set. Every key is described in \
+    docs/recipe.md; demo-data/toolshed.recipe.toml is a complete example. Every relative path, \
+    input or output, is relative to the recipe's folder."
 )]
 pub struct Args {
     /// The recipe file.
@@ -32,7 +30,7 @@ pub struct Args {
 pub fn run(args: Args) -> baler::Result<ExitCode> {
     let recipe = Recipe::load(&args.recipe)?;
     let started = std::time::Instant::now();
-    let report = recipe::build(&recipe, !args.quiet)?;
+    let report = baler::pipeline::build(&recipe, !args.quiet)?;
     if !args.quiet {
         let e = &report.extract;
         eprintln!(
@@ -57,9 +55,6 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     } else {
         report.comparison.to_text()
     };
-    std::io::stdout()
-        .lock()
-        .write_all(text.as_bytes())
-        .map_err(|e| Error::io("-", "writing", e))?;
+    super::print(&text)?;
     Ok(ExitCode::SUCCESS)
 }

@@ -1,7 +1,6 @@
 //! `baler compare`: sizes, held-out coverage, retained mass, divergence and reachability of
 //! tables side by side with a base.
 
-use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -77,9 +76,6 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     } else {
         report.to_text() + &quality.as_ref().map_or(String::new(), |q| q.to_text())
     };
-    std::io::stdout()
-        .lock()
-        .write_all(text.as_bytes())
-        .map_err(|e| Error::io("-", "writing", e))?;
+    super::print(&text)?;
     Ok(ExitCode::SUCCESS)
 }

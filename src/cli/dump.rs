@@ -18,6 +18,7 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
+    baler::files::check_output(&args.output, &[&args.table])?;
     let table = baler::Table::open(&args.table)?;
     let output = Output::create(&args.output)?;
     let werr = |e| Error::io(&args.output, "writing", e);

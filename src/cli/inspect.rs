@@ -1,7 +1,10 @@
 //! `baler inspect`: sections, sizes, counts and metadata of a packed table.
 
+use std::fmt::Write as _;
 use std::path::PathBuf;
 use std::process::ExitCode;
+
+use serde_json::json;
 
 /// Arguments of `baler inspect`.
 #[derive(clap::Args)]
@@ -11,10 +14,42 @@ pub struct Args {
     /// Also check every checksum and decode every record.
     #[arg(long)]
     verify: bool,
+    /// Print JSON instead of the readable report.
+    #[arg(long)]
+    json: bool,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
     let table = baler::Table::open(&args.table)?;
+    if args.json {
+        let verified = if args.verify {
+            Some(table.verify()?)
+        } else {
+            None
+        };
+        let sections: Vec<_> = table
+            .section_sizes()
+            .iter()
+            .map(|s| json!({"section": s.kind.name(), "offset": s.offset, "bytes": s.length}))
+            .collect();
+        let mut report = json!({
+            "table": args.table.display().to_string(),
+            "version": format!("{}.{}", baler::format::VERSION_MAJOR, baler::format::VERSION_MINOR),
+            "file_bytes": table.file_bytes(),
+            "meta": table.meta(),
+            "sections": sections,
+        });
+        if let Some(r) = &verified {
+            report["verified"] = json!({
+                "sections": r.sections, "blocks": r.blocks, "pairs": r.pairs, "targets": r.targets,
+            });
+        }
+        let mut text = serde_json::to_string_pretty(&report).expect("figures serialize");
+        text.push('\n');
+        super::print(&text)?;
+        return Ok(ExitCode::SUCCESS);
+    }
+    let mut out = String::new();
     let m = table.meta();
     let total = table.file_bytes();
     let per_pair = |b: u64| {
@@ -24,102 +59,126 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             0.0
         }
     };
-    println!("table      {}", args.table.display());
-    println!(
+    writeln!(out, "table      {}", args.table.display()).unwrap();
+    writeln!(
+        out,
         "format     {} {}.{}",
         m.format,
         baler::format::VERSION_MAJOR,
         baler::format::VERSION_MINOR
-    );
-    println!("pairs      {}", m.pairs);
-    println!(
+    )
+    .unwrap();
+    writeln!(out, "pairs      {}", m.pairs).unwrap();
+    writeln!(
+        out,
         "sources    {}  ({:.2} options per source)",
         m.sources,
         m.pairs as f64 / m.sources.max(1) as f64
-    );
-    println!("targets    {}", m.targets);
-    println!("vocabulary {}", m.vocabulary);
-    println!(
+    )
+    .unwrap();
+    writeln!(out, "targets    {}", m.targets).unwrap();
+    writeln!(out, "vocabulary {}", m.vocabulary).unwrap();
+    writeln!(
+        out,
         "file       {} bytes, {:.3} bytes per pair",
         total,
         per_pair(total)
-    );
-    println!(
+    )
+    .unwrap();
+    writeln!(
+        out,
         "scores     {}",
         if m.scores.is_empty() {
             "-".into()
         } else {
             m.scores.join(", ")
         }
-    );
-    println!(
+    )
+    .unwrap();
+    writeln!(
+        out,
         "counts     {}",
         if m.counts.is_empty() {
             "-".into()
         } else {
             m.counts.join(", ")
         }
-    );
-    println!(
+    )
+    .unwrap();
+    writeln!(
+        out,
         "alignment  {}",
         if m.alignment { "stored" } else { "not stored" }
-    );
-    println!(
+    )
+    .unwrap();
+    writeln!(
+        out,
         "order      {} descending, ties by {}",
         m.option_order.by.as_deref().unwrap_or("-"),
         m.option_order.ties
-    );
-    println!(
+    )
+    .unwrap();
+    writeln!(
+        out,
         "blocks     {} sources each, {}",
         m.sources_per_block, m.block_compression
-    );
-    println!();
-    println!(
+    )
+    .unwrap();
+    writeln!(out).unwrap();
+    writeln!(
+        out,
         "{:<14} {:>12} {:>14} {:>8} {:>12}",
         "section", "offset", "bytes", "share", "bytes/pair"
-    );
+    )
+    .unwrap();
     for s in table.section_sizes() {
-        println!(
+        writeln!(
+            out,
             "{:<14} {:>12} {:>14} {:>7.2}% {:>12.3}",
             s.kind.name(),
             s.offset,
             s.length,
             100.0 * s.length as f64 / total.max(1) as f64,
             per_pair(s.length)
-        );
+        )
+        .unwrap();
     }
     if !m.quantization.is_empty() {
-        println!();
-        println!(
+        writeln!(out).unwrap();
+        writeln!(
+            out,
             "{:<16} {:>9} {:>5} {:>7} {:>8} {:>11} {:>11}",
             "score", "storage", "bits", "domain", "entries", "rms error", "max error"
-        );
+        )
+        .unwrap();
         for q in &m.quantization {
-            println!(
+            writeln!(
+                out,
                 "{:<16} {:>9} {:>5} {:>7} {:>8} {:>11.3e} {:>11.3e}",
                 q.column, q.storage, q.bits, q.domain, q.entries, q.rms_error, q.max_error
-            );
+            )
+            .unwrap();
         }
     }
     if !m.table_metadata.is_empty() {
-        println!();
-        println!("metadata");
+        writeln!(out).unwrap();
+        writeln!(out, "metadata").unwrap();
         for (k, v) in &m.table_metadata {
-            println!("  {k}={v}");
+            writeln!(out, "  {k}={v}").unwrap();
         }
     }
-    println!();
-    println!("provenance");
+    writeln!(out).unwrap();
+    writeln!(out, "provenance").unwrap();
     for (k, v) in &m.provenance {
-        println!("  {k}={v}");
+        writeln!(out, "  {k}={v}").unwrap();
     }
+    super::print(&out)?;
     if args.verify {
         let r = table.verify()?;
-        println!();
-        println!(
-            "verified   {} section checksums, {} blocks, {} pairs, {} targets: all good",
+        super::print(&format!(
+            "\nverified   {} section checksums, {} blocks, {} pairs, {} targets: all good\n",
             r.sections, r.blocks, r.pairs, r.targets
-        );
+        ))?;
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -6,6 +6,7 @@ mod compare;
 mod dump;
 mod evaluate;
 mod extract;
+mod flags;
 mod inspect;
 mod lm;
 mod lookup;
@@ -74,6 +75,12 @@ pub fn main() -> ExitCode {
         }
     }));
     let cli = Cli::parse();
+    if let Err(e) = baler::files::remove_on_interrupt(
+        "baler: interrupted; partial outputs and temporary files removed",
+    ) {
+        eprintln!("baler: error: {e}");
+        return ExitCode::from(2);
+    }
     let result = match cli.command {
         Command::Extract(a) => extract::run(a),
         Command::Prune(a) => prune::run(a),
@@ -98,6 +105,16 @@ pub fn main() -> ExitCode {
             ExitCode::from(2)
         }
     }
+}
+
+/// Writes `text` to standard output. A closed pipe ends the command successfully (see
+/// [`main`]); any other failure, such as a full disk, is an error naming standard output.
+pub(crate) fn print(text: &str) -> baler::Result<()> {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    out.write_all(text.as_bytes())
+        .and_then(|()| out.flush())
+        .map_err(|e| baler::Error::io(baler::files::STDIO, "writing", e))
 }
 
 /// Parses a size flag such as `--memory 256M`.

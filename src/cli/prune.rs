@@ -3,7 +3,9 @@
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use baler::prune::{self, CountSource, Filter, PruneOptions, Ranking, Threshold};
+use super::flags::{PackFlags, ResourceFlags};
+use baler::pipeline::{self, Packing};
+use baler::prune::{CountSource, Filter, PruneOptions, Ranking, Threshold};
 use baler::Error;
 use clap::{ArgMatches, FromArgMatches};
 
@@ -65,12 +67,11 @@ struct Flags {
     /// Write what each filter did as JSON.
     #[arg(long, value_name = "FILE")]
     stats: Option<PathBuf>,
-    /// Memory budget for sorting unsorted input and for packing.
-    #[arg(long, value_name = "SIZE", default_value = "512M", value_parser = super::size_arg)]
-    memory: u64,
-    /// No progress bar and no summary on stderr.
-    #[arg(short, long)]
-    quiet: bool,
+    #[command(flatten)]
+    resources: ResourceFlags,
+    /// Settings of a packed output (by default a packed input's, or pack's defaults).
+    #[command(flatten)]
+    pack: PackFlags,
 }
 
 /// Flags plus the filters in command-line order.
@@ -207,7 +208,8 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
              an approximation and alpha+/-epsilon lose their meaning"
         );
     }
-    if filters.is_empty() && !f.annotate && f.renormalize.is_empty() && !f.quiet {
+    let quiet = f.resources.quiet;
+    if filters.is_empty() && !f.annotate && f.renormalize.is_empty() && !quiet {
         eprintln!("baler: warning: no filter given; the table is copied unchanged");
     }
     let options = PruneOptions {
@@ -215,11 +217,21 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         annotate: f.annotate,
         counts,
         renormalize: f.renormalize.clone(),
-        memory: f.memory,
-        progress: !f.quiet,
+        memory: f.resources.resources.memory,
+        progress: !quiet,
+        temp_dir: f.resources.resources.temp_dir.clone(),
     };
-    let stats = prune::prune_path(&f.input, &f.output, &options)?;
-    if !f.quiet {
+    let packing = Packing {
+        settings: f.pack.0.clone(),
+        resources: f.resources.resources.clone(),
+        progress: !quiet,
+        provenance: Vec::new(),
+    };
+    if let Some(stats) = &f.stats {
+        baler::files::check_output(stats, &[&f.input])?;
+    }
+    let stats = pipeline::prune_file(&f.input, &f.output, &options, &packing)?;
+    if !quiet {
         eprint!("{}", stats.summary());
     }
     if let Some(path) = &f.stats {

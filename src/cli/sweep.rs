@@ -11,8 +11,8 @@ use baler::Error;
 /// Arguments of `baler sweep`.
 #[derive(clap::Args)]
 #[command(after_help = "NAME is a prune filter (significance, top-k, min, max, \
-    relative-entropy, keep-test-phrases) or a pack option (bits, block-sources, compression, zstd-level, \
-    dictionary-size). Several --vary make a grid; filters run in the order of the --vary flags. \
+    relative-entropy, keep-test-phrases) or a packing setting (bits, block-sources, compression, zstd-level, \
+    dictionary-size; `baler pack --help` describes them). Several --vary make a grid; filters run in the order of the --vary flags. \
     Writes DIR/setting-NN.bale for each setting, DIR/sweep.csv and DIR/sweep.svg.")]
 pub struct Args {
     /// The unpruned table: TSV (any order) or packed .bale.
@@ -32,8 +32,8 @@ pub struct Args {
     /// Longest test span looked up (default: the input's longest source phrase).
     #[arg(long, value_name = "N")]
     max_length: Option<usize>,
-    /// Memory budget for packing.
-    #[arg(long, value_name = "SIZE", default_value = "512M", value_parser = super::size_arg)]
+    /// Memory budget for sorting and packing.
+    #[arg(long, value_name = "SIZE", default_value = baler::settings::MEMORY.default, value_parser = super::size_arg)]
     memory: u64,
     /// No progress bar and no summary.
     #[arg(short, long)]
@@ -67,7 +67,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         memory: args.memory,
         progress: !args.quiet,
     };
-    let report = measure::sweep(&args.input, &options)?;
+    let report = baler::pipeline::sweep(&args.input, &options)?;
     crate::cli::quality::for_sweep(
         &args.quality,
         &args.test,
@@ -110,6 +110,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             report.svg.display()
         )
         .map_err(werr)?;
+        out.flush().map_err(werr)?;
     }
     Ok(ExitCode::SUCCESS)
 }

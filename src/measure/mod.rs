@@ -51,9 +51,7 @@ pub use coverage::MAX_ORDER;
 pub use coverage::{coverage, reachability, Coverage, OrderShare, Reachability, SpanShare};
 pub use divergence::{source_agreement, SourceAgreement};
 pub use plot::{plot_panels, plot_svg, series_of, Panel, PlotPoint};
-pub use sweep::{
-    prune_and_pack, sweep, Setting, SettingReport, SweepOptions, SweepReport, Variation,
-};
+pub use sweep::{Setting, SettingReport, SweepOptions, SweepReport, Variation};
 pub use table::{is_packed, Choice, FoundSpan, MeasuredTable};
 
 use std::fmt::Write as _;

@@ -20,9 +20,9 @@
 //!   (before any of them is removed), so the result does not depend on the order of pairs.
 //!
 //! The probabilities are the table's `p_t_given_s` column. The filter holds the source, target
-//! and `p_t_given_s` of every pair that reaches it in memory.
-
-use std::collections::HashMap;
+//! and `p_t_given_s` of every pair that reaches it in a compact index (about 40 bytes per pair
+//! plus its target's text), which must fit in half of the memory budget; the pairs themselves
+//! wait in a temporary file once they outgrow a quarter of it.
 
 /// `p'(t|s)`: the best product of `p(t_i|s_i)` over monotone compositions of `(source, target)`
 /// into at least two shorter pairs for which `lookup` has a probability (see the module docs).
@@ -119,25 +119,62 @@ fn token_bounds(phrase: &str) -> Vec<(usize, usize)> {
     bounds
 }
 
-/// The probabilities of every pair reaching the filter, by source then target.
+/// The probabilities of every pair reaching the filter, by source then target, compactly:
+/// the targets of all pairs in one text arena, each source's options a sorted run of
+/// `(target offset, length, probability)` entries found by binary search.
 #[derive(Default)]
 pub(crate) struct ProbabilityIndex {
-    by_source: HashMap<String, HashMap<String, f64>>,
+    sources: rustc_hash::FxHashMap<Box<str>, (usize, usize)>,
+    entries: Vec<(u64, u32, f64)>,
+    targets: String,
+    bytes: usize,
 }
 
 impl ProbabilityIndex {
-    pub(crate) fn insert(&mut self, source: &str, target: &str, p: f64) {
-        self.by_source
-            .entry(source.to_string())
-            .or_default()
-            .insert(target.to_string(), p);
+    /// Adds the options of one source (each source once).
+    pub(crate) fn insert_group<'a>(
+        &mut self,
+        source: &str,
+        options: impl Iterator<Item = (&'a str, f64)>,
+    ) {
+        let start = self.entries.len();
+        for (target, p) in options {
+            self.entries
+                .push((self.targets.len() as u64, target.len() as u32, p));
+            self.targets.push_str(target);
+        }
+        let targets = &self.targets;
+        let text = |e: &(u64, u32, f64)| &targets[e.0 as usize..e.0 as usize + e.1 as usize];
+        self.entries[start..].sort_unstable_by(|a, b| text(a).cmp(text(b)));
+        self.bytes += source.len() + 16; // the key's text and its allocation
+        self.sources
+            .insert(source.into(), (start, self.entries.len()));
+    }
+
+    /// Bytes held, counting the capacity of every buffer.
+    pub(crate) fn bytes(&self) -> usize {
+        self.bytes
+            + self.targets.capacity()
+            + self.entries.capacity() * std::mem::size_of::<(u64, u32, f64)>()
+            + self.sources.capacity() * (std::mem::size_of::<(Box<str>, (usize, usize))>() + 1)
+    }
+
+    fn options(&self, source: &str) -> Option<&[(u64, u32, f64)]> {
+        self.sources.get(source).map(|&(a, b)| &self.entries[a..b])
+    }
+
+    fn probability(&self, options: &[(u64, u32, f64)], target: &str) -> Option<f64> {
+        let text = |e: &(u64, u32, f64)| &self.targets[e.0 as usize..e.0 as usize + e.1 as usize];
+        options
+            .binary_search_by(|e| text(e).cmp(target))
+            .ok()
+            .map(|i| options[i].2)
     }
 
     pub(crate) fn score(&self, source: &str, target: &str, p: f64) -> f64 {
         let composed = compose(source, target, |s| {
-            self.by_source
-                .get(s)
-                .map(|targets| move |t: &str| targets.get(t).copied())
+            self.options(s)
+                .map(|options| move |t: &str| self.probability(options, t))
         });
         divergence(p, composed)
     }

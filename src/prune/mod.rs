@@ -2,7 +2,7 @@
 //!
 //! A [`Pruner`] applies a list of [`Filter`]s, in the order given, to every group of pairs that
 //! share a source phrase, and records for each filter how many pairs and sources went in and
-//! came out ([`PruneStats`]). [`prune_path`] runs it over a file: interchange TSV in any order
+//! came out ([`PruneStats`]). [`crate::pipeline::prune_file`] runs it over a file: interchange TSV in any order
 //! (streamed when sorted by source, sorted externally otherwise) or a packed `.bale` table, and
 //! writes TSV or, by the output's extension, a packed table.
 //!
@@ -62,14 +62,13 @@
 mod corpus;
 pub mod entropy;
 pub mod fisher;
-mod input;
-mod pipeline;
+pub(crate) mod held;
+pub(crate) mod pipeline;
 mod stats;
 pub mod testset;
 mod topk;
 
 pub use corpus::SentenceCounts;
-pub use input::prune_path;
 pub use pipeline::Pruner;
 pub use stats::{FilterStats, Histogram, PruneStats};
 pub use topk::Ranking;
@@ -232,7 +231,7 @@ pub enum CountSource {
     PhraseCounts,
 }
 
-/// Everything [`Pruner`] and [`prune_path`] need besides the data.
+/// Everything [`Pruner`] and [`crate::pipeline::prune_file`] need besides the data.
 #[derive(Clone, Debug, Default)]
 pub struct PruneOptions {
     /// The filters, applied in order.
@@ -244,10 +243,60 @@ pub struct PruneOptions {
     /// Score columns to renormalise per source after the last filter (see the module docs).
     pub renormalize: Vec<String>,
     /// Memory budget in bytes for the external sort of unsorted input and for packing
-    /// (0: 512 MiB).
+    /// (0: the default, [`crate::settings::DEFAULT_MEMORY`]). Relative-entropy pruning keeps
+    /// its index within half of it.
     pub memory: u64,
     /// Show a progress bar on stderr (when it is a terminal).
     pub progress: bool,
+    /// Parent of temporary directories (pairs waiting for relative entropy; the system's when
+    /// `None`).
+    pub temp_dir: Option<PathBuf>,
+}
+
+impl PruneOptions {
+    /// Everything that changed the table, as command-line flags: the filters in order, then
+    /// the count source, `--annotate` and `--renormalize`. This is the provenance recorded as
+    /// `# pruned_with`; empty when nothing was asked.
+    ///
+    /// # Examples
+    /// ```
+    /// use baler::prune::{CountSource, Filter, PruneOptions, Threshold};
+    /// let options = PruneOptions {
+    ///     filters: vec![Filter::Significance(Threshold::AlphaPlusEpsilon)],
+    ///     counts: CountSource::PhraseCounts,
+    ///     annotate: true,
+    ///     renormalize: vec!["p_t_given_s".into()],
+    ///     ..Default::default()
+    /// };
+    /// assert_eq!(options.describe(), "--significance alpha+epsilon --phrase-counts --annotate \
+    ///                                 --renormalize p_t_given_s");
+    /// ```
+    pub fn describe(&self) -> String {
+        let mut parts: Vec<String> = self.filters.iter().map(Filter::describe).collect();
+        let tested = self.annotate
+            || self
+                .filters
+                .iter()
+                .any(|f| matches!(f, Filter::Significance(_)));
+        if tested {
+            match &self.counts {
+                CountSource::Table => {}
+                CountSource::Corpus { source, target } => parts.push(format!(
+                    "--source {} --target {}",
+                    source.display(),
+                    target.display()
+                )),
+                CountSource::PhraseCounts => parts.push("--phrase-counts".into()),
+            }
+        }
+        if self.annotate {
+            parts.push("--annotate".into());
+        }
+        for column in &self.renormalize {
+            parts.push(format!("--renormalize {column}"));
+        }
+        parts.join(" ")
+    }
 }
 
 /// The name of the column [`PruneOptions::annotate`] adds.

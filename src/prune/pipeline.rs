@@ -2,18 +2,12 @@
 
 use super::entropy::ProbabilityIndex;
 use super::fisher::FisherTest;
+use super::held::{Held, Item};
 use super::stats::{FilterStats, Histogram, PruneStats};
 use super::topk::{Column, ResolvedRanking};
 use super::{CountSource, Filter, PruneOptions, SentenceCounts, NEG_LN_P};
 use crate::error::{Error, Result};
 use crate::table::{CountColumn, Header, PhrasePair};
-
-/// One pair in flight, with the line it came from and its `-ln p` once computed.
-struct Item {
-    pair: PhrasePair,
-    line: u64,
-    neg_ln_p: Option<f64>,
-}
 
 enum Stage {
     Significance(f64),
@@ -56,7 +50,9 @@ pub struct Pruner {
     widen: Widen,
     /// Index of the first relative-entropy stage (the stages before it stream).
     barrier: usize,
-    held: Vec<Vec<Item>>,
+    held: Held,
+    /// Bytes the relative-entropy index may take.
+    index_budget: usize,
     keep: Vec<bool>,
 }
 
@@ -99,9 +95,9 @@ impl Pruner {
         // widen the schema: corpus counts, then the annotation column
         let mut corpus_slots = None;
         if let (CountSource::Corpus { .. }, true) = (&options.counts, needs_test) {
-            let counts = corpus.ok_or_else(|| {
-                Error::Unsupported("corpus counts must be computed before pruning".into())
-            })?;
+            let counts = corpus.ok_or(Error::Internal(
+                "corpus counts must be computed before pruning",
+            ))?;
             for c in [
                 CountColumn::Cooc,
                 CountColumn::DfSource,
@@ -219,9 +215,8 @@ impl Pruner {
                 )
             })?);
         }
-        if !options.filters.is_empty() {
-            let described: Vec<String> = options.filters.iter().map(|f| f.describe()).collect();
-            let mut value = described.join(" ");
+        let mut value = options.describe();
+        if !value.is_empty() {
             if let Some(earlier) = out.metadata.get("pruned_with") {
                 value = format!("{earlier} | {value}"); // pruned before: keep the history
             }
@@ -258,7 +253,8 @@ impl Pruner {
                 .position(|s| matches!(s, Stage::Entropy(..)))
                 .unwrap_or(stages.len()),
             stages,
-            held: Vec::new(),
+            held: Held::new(half_budget(options) / 2, options.temp_dir.clone()),
+            index_budget: half_budget(options),
             keep: Vec::new(),
         })
     }
@@ -378,10 +374,7 @@ impl Pruner {
             self.apply(s, group)?;
         }
         if barrier < self.stages.len() {
-            if !group.is_empty() {
-                self.held.push(std::mem::take(group));
-            }
-            return Ok(());
+            return self.held.push(std::mem::take(group));
         }
         self.emit_group(group, emit)?;
         group.clear();
@@ -392,24 +385,59 @@ impl Pruner {
     where
         F: FnMut(&PhrasePair) -> Result<()> + ?Sized,
     {
-        let mut groups = std::mem::take(&mut self.held);
+        let mut current = std::mem::replace(&mut self.held, Held::new(0, None));
+        current.finish()?;
+        // Each relative-entropy stage scores the table as it reached it: one pass builds the
+        // index, a second filters, then runs the stages up to the next relative entropy.
         let mut s = self.barrier;
         while s < self.stages.len() {
-            match self.stages[s] {
-                Stage::Entropy(threshold, column) => {
-                    self.apply_entropy(s, threshold, column, &mut groups)
+            let Stage::Entropy(threshold, column) = self.stages[s] else {
+                unreachable!("the barrier and its successors start at relative entropy")
+            };
+            let mut index = ProbabilityIndex::default();
+            current.for_each(|g| {
+                index.insert_group(
+                    &g[0].pair.source,
+                    g.iter()
+                        .map(|i| (i.pair.target.as_str(), i.pair.scores[column])),
+                );
+                if index.bytes() > self.index_budget {
+                    return Err(Error::invalid(
+                        "memory",
+                        format!(
+                            "the relative-entropy filter needs more than {} bytes (half the \
+                             memory budget) for the pairs reaching it; raise --memory or run a \
+                             cheaper filter before it",
+                            self.index_budget
+                        ),
+                    ));
                 }
-                _ => {
-                    for g in groups.iter_mut() {
-                        self.apply(s, g)?;
-                    }
+                Ok(())
+            })?;
+            let next = (s + 1..self.stages.len())
+                .find(|&k| matches!(self.stages[k], Stage::Entropy(..)))
+                .unwrap_or(self.stages.len());
+            let mut kept = current.empty_like();
+            let last = next == self.stages.len();
+            current.drain(|mut g| {
+                let before = g.len();
+                let source = g[0].pair.source.clone();
+                g.retain(|i| {
+                    index.score(&i.pair.source, &i.pair.target, i.pair.scores[column]) >= threshold
+                });
+                self.stats.filters[s].record_group(&source, before, g.len());
+                for k in s + 1..next {
+                    self.apply(k, &mut g)?;
                 }
-            }
-            groups.retain(|g| !g.is_empty());
-            s += 1;
-        }
-        for mut g in groups {
-            self.emit_group(&mut g, emit)?;
+                if last {
+                    self.emit_group(&mut g, emit)
+                } else {
+                    kept.push(g)
+                }
+            })?;
+            kept.finish()?;
+            current = kept;
+            s = next;
         }
         if let Some(sig) = &self.significance {
             self.stats.memo_hits = sig.test.hits();
@@ -534,23 +562,16 @@ impl Pruner {
         self.keep = keep;
         Ok(())
     }
+}
 
-    fn apply_entropy(&mut self, s: usize, threshold: f64, column: usize, groups: &mut [Vec<Item>]) {
-        let mut index = ProbabilityIndex::default();
-        for g in groups.iter() {
-            for i in g {
-                index.insert(&i.pair.source, &i.pair.target, i.pair.scores[column]);
-            }
-        }
-        for g in groups.iter_mut() {
-            let before = g.len();
-            let source = g.first().map(|i| i.pair.source.clone()).unwrap_or_default();
-            g.retain(|i| {
-                index.score(&i.pair.source, &i.pair.target, i.pair.scores[column]) >= threshold
-            });
-            self.stats.filters[s].record_group(&source, before, g.len());
-        }
-    }
+/// Half of the memory budget (0: the default budget).
+fn half_budget(options: &PruneOptions) -> usize {
+    let memory = if options.memory == 0 {
+        crate::settings::DEFAULT_MEMORY
+    } else {
+        options.memory
+    };
+    (memory / 2) as usize
 }
 
 fn significance_setup(

@@ -35,20 +35,22 @@
 //! zstd_level = 9
 //! dictionary_size = "64K"
 //!
-//! [output]                      # paths relative to the directory `baler build` runs in
-//! table = "demo-out/toolshed.bale"
-//! extracted = "demo-out/toolshed.tsv"   # optional: keep the unpruned table
-//! stats = "demo-out/prune-stats.json"   # optional: what each filter did
-//! report = "demo-out/report.json"       # optional: the compare report as JSON
+//! [output]                      # paths relative to the recipe's folder too
+//! table = "../demo-out/toolshed.bale"
+//! extracted = "../demo-out/toolshed.tsv"   # optional: keep the unpruned table
+//! stats = "../demo-out/prune-stats.json"   # optional: what each filter did
+//! report = "../demo-out/report.json"       # optional: the compare report as JSON
 //!
 //! [held_out]                    # optional; relative to the recipe's folder
 //! source = "toolshed.test.en"
 //! reference = "toolshed.test.es"        # optional
 //! ```
 //!
-//! Inputs belong with the recipe, so they are found beside it wherever it is run from;
-//! outputs go where the build runs. Unknown keys are errors, and every error names the
-//! recipe's file and line.
+//! Every relative path, input or output, is relative to the recipe's folder, so a recipe
+//! means the same wherever it is run from. Unknown keys are errors, every value is checked
+//! before any work starts (by the same code as the command line: see [`crate::settings`]),
+//! and every error names the recipe's file and line. The format is documented for
+//! command-line users in `docs/recipe.md`.
 //!
 //! # Examples
 //! ```
@@ -73,12 +75,10 @@ use crate::extract::corpus::{CorpusOptions, CorpusPaths};
 use crate::extract::phrases::PhraseLimits;
 use crate::extract::score::Discount;
 use crate::extract::shard::ShardOptions;
-use crate::extract::{self, ExtractOptions, ExtractSummary};
-use crate::files::{self, Output};
-use crate::format::Compression;
-use crate::measure::{self, CompareOptions, Comparison, MeasuredTable};
-use crate::pack::{PackOptions, PackReport};
-use crate::prune::{Filter, PruneOptions, PruneStats, Ranking, Threshold};
+use crate::extract::ExtractOptions;
+use crate::files;
+use crate::prune::{Filter, PruneOptions, Ranking, Threshold};
+use crate::settings::{self, PackSettings, Resources};
 
 /// A held-out set to report on.
 #[derive(Clone, Debug, PartialEq)]
@@ -104,8 +104,10 @@ pub struct Recipe {
     pub extract: ExtractOptions,
     /// The filters in order, and the other prune options.
     pub prune: PruneOptions,
-    /// Packing options (provenance is added by [`build`]).
-    pub pack: PackOptions,
+    /// Packing settings given (provenance is added by [`crate::pipeline::build`]).
+    pub pack: PackSettings,
+    /// The memory budget of packing.
+    pub pack_resources: Resources,
     /// The packed table to write.
     pub table: PathBuf,
     /// Where to keep the unpruned extracted table (a temporary file when `None`).
@@ -128,8 +130,7 @@ struct Spec {
     filters: Vec<Spanned<FilterSpec>>,
     #[serde(default)]
     prune: PruneSpec,
-    #[serde(default)]
-    pack: PackSpec,
+    pack: Option<Spanned<toml::Table>>,
     output: OutputSpec,
     held_out: Option<HeldOutSpec>,
 }
@@ -158,12 +159,12 @@ struct ExtractSpec {
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
 struct FilterSpec {
-    significance: Option<String>,
+    significance: Option<toml::Value>,
     top_k: Option<usize>,
     by: Option<String>,
     min: Option<String>,
     max: Option<String>,
-    relative_entropy: Option<f64>,
+    relative_entropy: Option<toml::Value>,
 }
 
 #[derive(Deserialize, Default)]
@@ -175,15 +176,32 @@ struct PruneSpec {
     annotate: bool,
 }
 
-#[derive(Deserialize, Default)]
-#[serde(deny_unknown_fields)]
-struct PackSpec {
-    bits: Option<Spanned<toml::Value>>,
-    block_sources: Option<Spanned<u32>>,
-    compression: Option<Spanned<String>>,
-    zstd_level: Option<Spanned<i32>>,
-    dictionary_size: Option<Spanned<String>>,
-    memory: Option<Spanned<String>>,
+/// The span of the line that sets `key` in the table that starts at `section` (the table's
+/// own span when the line cannot be found, as for a key in dotted or inline form).
+fn key_span(text: &str, section: std::ops::Range<usize>, key: &str) -> std::ops::Range<usize> {
+    let from = section.start.min(text.len());
+    let mut at = from;
+    for (i, line) in text[from..].split_inclusive('\n').enumerate() {
+        let trimmed = line.trim_start();
+        if i > 0 && trimmed.starts_with('[') {
+            break; // the next table
+        }
+        if let Some(rest) = trimmed.strip_prefix(key) {
+            if rest.trim_start().starts_with('=') {
+                return at..at + line.len();
+            }
+        }
+        at += line.len();
+    }
+    section
+}
+
+/// A TOML scalar as the text a command-line flag would have been given.
+fn as_flag_text(value: &toml::Value) -> String {
+    match value {
+        toml::Value::String(s) => s.clone(),
+        other => other.to_string(),
+    }
 }
 
 #[derive(Deserialize)]
@@ -213,12 +231,12 @@ fn line_of(text: &str, offset: usize) -> u64 {
 }
 
 impl Recipe {
-    /// Reads and parses the recipe at `path`: inputs resolve against its folder, outputs
-    /// against the current directory.
+    /// Reads and parses the recipe at `path`: relative paths, inputs and outputs alike,
+    /// resolve against the recipe's folder, so a recipe means the same wherever it is run from.
     pub fn load(path: &Path) -> Result<Recipe> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, "reading", e))?;
+        let text = files::read_text(path)?;
         let dir = path.parent().unwrap_or(Path::new(""));
-        Recipe::parse(&text, path, dir, None)
+        Recipe::parse(&text, path, dir, Some(dir))
     }
 
     /// Parses recipe `text` (from `file`, named in errors); relative input paths resolve
@@ -350,7 +368,7 @@ impl Recipe {
                 ));
             }
             let filter = if let Some(s) = &g.significance {
-                Threshold::parse(s).map(Filter::Significance)
+                Threshold::parse(&as_flag_text(s)).map(Filter::Significance)
             } else if let Some(k) = g.top_k {
                 g.by.as_deref()
                     .map_or(Ok(Ranking::default()), Ranking::parse)
@@ -360,9 +378,15 @@ impl Recipe {
             } else if let Some(m) = &g.max {
                 Filter::bound("max", m, false)
             } else {
-                Ok(Filter::RelativeEntropy(
-                    g.relative_entropy.expect("one kind"),
-                ))
+                let text = as_flag_text(g.relative_entropy.as_ref().expect("one kind"));
+                text.trim()
+                    .parse::<f64>()
+                    .ok()
+                    .filter(|v| !v.is_nan())
+                    .map(Filter::RelativeEntropy)
+                    .ok_or_else(|| {
+                        Error::invalid("relative_entropy", format!("{text:?} is not a number"))
+                    })
             };
             filters.push(filter.map_err(|e| at(span.clone(), e))?);
         }
@@ -373,43 +397,30 @@ impl Recipe {
             ..Default::default()
         };
 
-        // packing
-        let p = &spec.pack;
-        let mut pack = PackOptions::default();
-        if let Some(b) = &p.bits {
-            pack.bits = match b.get_ref() {
-                toml::Value::String(s) if s == "f32" => None,
-                toml::Value::Integer(n) if (1..=16).contains(n) => Some(*n as u8),
-                other => {
-                    return Err(at(
-                        b.span(),
-                        Error::invalid("bits", format!("{other} is neither 1..16 nor \"f32\"")),
-                    ))
-                }
-            };
-        }
-        if let Some(n) = &p.block_sources {
-            pack.sources_per_block = *n.get_ref();
-        }
-        if let Some(c) = &p.compression {
-            pack.compression = Compression::from_name(c.get_ref()).ok_or_else(|| {
-                at(
-                    c.span(),
-                    Error::invalid(
-                        "compression",
-                        format!("{:?} is not zstd or none", c.get_ref()),
+        // packing: every key goes through the settings registry
+        let mut pack = PackSettings::default();
+        let mut pack_resources = Resources::default();
+        let (pack_span, pack_table) = match &spec.pack {
+            Some(t) => (t.span(), t.get_ref().clone()),
+            None => (0..0, toml::Table::new()),
+        };
+        for (key, value) in &pack_table {
+            let span = key_span(text, pack_span.clone(), key);
+            let given = as_flag_text(value);
+            let set = if key == "memory" {
+                pack_resources.set(key, &given)
+            } else if settings::find(key).is_some_and(|s| settings::PACK.contains(s)) {
+                pack.set(key, &given)
+            } else {
+                Err(Error::invalid(
+                    key,
+                    format!(
+                        "unknown key in [pack]; one of: {}, memory",
+                        settings::PACK.map(|s| s.key).join(", ")
                     ),
-                )
-            })?;
-        }
-        if let Some(l) = &p.zstd_level {
-            pack.zstd_level = *l.get_ref();
-        }
-        if let Some(d) = &p.dictionary_size {
-            pack.dictionary_bytes = size(d, "dictionary_size")? as usize;
-        }
-        if let Some(m) = &p.memory {
-            pack.memory = size(m, "memory")?;
+                ))
+            };
+            set.map_err(|e| at(span, e))?;
         }
 
         let o = &spec.output;
@@ -437,6 +448,7 @@ impl Recipe {
             extract: ExtractOptions { shard, discount },
             prune,
             pack,
+            pack_resources,
             table: output(&o.table),
             extracted: o.extracted.as_deref().map(output),
             stats: o.stats.as_deref().map(output),
@@ -444,127 +456,4 @@ impl Recipe {
             held_out,
         })
     }
-}
-
-/// What [`build`] did.
-#[derive(Clone, Debug)]
-pub struct BuildReport {
-    /// Extraction.
-    pub extract: ExtractSummary,
-    /// Pruning.
-    pub prune: PruneStats,
-    /// Packing.
-    pub pack: PackReport,
-    /// The unpruned table against the packed one (on the held-out set when there is one).
-    pub comparison: Comparison,
-}
-
-/// Runs `recipe`: extracts the corpus into the unpruned table (kept at `extracted`, or in a
-/// temporary folder beside the output), prunes it and packs the kept pairs straight into the
-/// output ([`measure::prune_and_pack`], no intermediate pruned file), recording the recipe's
-/// file name and text and the tool's version in the packed table's provenance, then compares
-/// the unpruned table with the packed one. `progress` draws progress bars on stderr.
-pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
-    for path in [
-        Some(&recipe.table),
-        recipe.extracted.as_ref(),
-        recipe.stats.as_ref(),
-        recipe.report.as_ref(),
-    ]
-    .into_iter()
-    .flatten()
-    {
-        if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
-            std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, "creating", e))?;
-        }
-    }
-    let mut extract_options = recipe.extract.clone();
-    extract_options.shard.progress = progress;
-    let work = match recipe.table.parent().filter(|d| !d.as_os_str().is_empty()) {
-        Some(dir) => tempfile::Builder::new()
-            .prefix(".baler-build-")
-            .tempdir_in(dir),
-        None => tempfile::Builder::new()
-            .prefix(".baler-build-")
-            .tempdir_in("."),
-    }
-    .map_err(|e| Error::io(&recipe.table, "creating a temporary folder beside", e))?;
-    if extract_options.shard.temp_dir.is_none() {
-        extract_options.shard.temp_dir = Some(work.path().to_path_buf());
-    }
-    let extracted = recipe
-        .extracted
-        .clone()
-        .unwrap_or_else(|| work.path().join("extracted.tsv"));
-    let summary = extract::extract(&recipe.corpus, &extract_options, &extracted)?;
-    let mut pack = recipe.pack.clone();
-    pack.progress = progress;
-    pack.temp_dir
-        .get_or_insert_with(|| work.path().to_path_buf());
-    if recipe.extracted.is_none() {
-        // the unpruned table is temporary: name what it was made from instead
-        let c = &recipe.corpus;
-        let alignment = c
-            .alignment
-            .as_ref()
-            .map_or(String::new(), |a| a.display().to_string());
-        pack.provenance.push((
-            "input".into(),
-            format!(
-                "extracted from {}, {}, {}",
-                c.source.display(),
-                c.target.display(),
-                alignment
-            ),
-        ));
-    }
-    pack.provenance.push((
-        "built_by".into(),
-        format!("baler build {}", env!("CARGO_PKG_VERSION")),
-    ));
-    pack.provenance
-        .push(("recipe_file".into(), recipe.file.display().to_string()));
-    pack.provenance.push(("recipe".into(), recipe.text.clone()));
-    let mut prune = recipe.prune.clone();
-    prune.progress = progress;
-    let (stats, packed) = measure::prune_and_pack(&extracted, &recipe.table, &prune, &pack)?;
-    if let Some(path) = &recipe.stats {
-        write_json(path, &stats)?;
-    }
-    let mut base = MeasuredTable::open(&extracted, measure::PROBABILITY_COLUMN)?;
-    if recipe.extracted.is_none() {
-        base = base.with_name("extracted (not kept)");
-    }
-    let table = MeasuredTable::open(&recipe.table, measure::PROBABILITY_COLUMN)?;
-    let test = match &recipe.held_out {
-        Some(h) => Some(measure::read_test_set(&h.source, h.reference.as_deref())?),
-        None => None,
-    };
-    let options = CompareOptions {
-        max_length: recipe.held_out.as_ref().and_then(|h| h.max_length),
-    };
-    let comparison = measure::compare(
-        &base,
-        &[&table],
-        test.as_ref().map(|t| t.0.as_slice()),
-        test.as_ref().and_then(|t| t.1.as_deref()),
-        &options,
-    )?;
-    if let Some(path) = &recipe.report {
-        write_json(path, &comparison)?;
-    }
-    Ok(BuildReport {
-        extract: summary,
-        prune: stats,
-        pack: packed,
-        comparison,
-    })
-}
-
-fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {
-    let mut out = Output::create(path)?;
-    serde_json::to_writer_pretty(&mut out, value)
-        .map_err(|e| Error::io(path, "writing", e.into()))?;
-    std::io::Write::write_all(&mut out, b"\n").map_err(|e| Error::io(path, "writing", e))?;
-    out.commit()
 }

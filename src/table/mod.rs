@@ -485,6 +485,16 @@ impl<W: Write> TsvWriter<W> {
         })
     }
 
+    /// A writer of records with `schema`'s columns and no metadata or header line (for
+    /// output that only ever goes to people or to `cut`, such as `baler lookup --no-header`).
+    pub fn headless(out: W, schema: &Schema) -> TsvWriter<W> {
+        TsvWriter {
+            out,
+            schema: schema.clone(),
+            line: String::new(),
+        }
+    }
+
     /// Writes one record; its columns must match the schema given to [`TsvWriter::new`].
     pub fn write_pair(&mut self, pair: &PhrasePair) -> std::io::Result<()> {
         debug_assert_eq!(pair.scores.len(), self.schema.scores.len());

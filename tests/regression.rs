@@ -1,0 +1,587 @@
+//! One test per reliability defect found by using baler as a new user would (issue 8), named
+//! after it. Each failed on the version before the fix; they drive the command line only, so
+//! `BALER_UNDER_TEST=/path/to/old/baler cargo test regression` shows them failing there.
+
+use std::io::{Read, Write};
+use std::path::Path;
+use std::process::{Child, Stdio};
+use std::time::{Duration, Instant};
+
+use crate::util::{baler, baler_ok, command, entries, repo, s, write};
+
+/// A small table whose sources are out of byte order.
+const UNSORTED: &str = "source\ttarget\tp_t_given_s\n\
+    velero\tsailing ship\t0.6\n\
+    velero\tsailboat\t0.3\n\
+    ancla\tanchor\t0.9\n\
+    ancla\tanchorage\t0.1\n";
+
+/// A small table sorted by source, with counts for the significance test.
+const COUNTED: &str = "# sentence_pairs=1000\n\
+    source\ttarget\tp_t_given_s\tp_s_given_t\tcooc\tdf_source\tdf_target\tcount\tcount_source\tcount_target\n\
+    el faro\tthe lighthouse\t0.8\t0.9\t40\t42\t41\t40\t42\t41\n\
+    el faro\tthe rock\t0.2\t0.1\t1\t42\t1\t1\t42\t1\n\
+    el muelle\tthe pier\t0.75\t0.5\t30\t40\t31\t30\t40\t31\n\
+    el muelle\tthe quay\t0.25\t0.5\t10\t40\t12\t10\t40\t12\n";
+
+fn tempdir() -> tempfile::TempDir {
+    tempfile::tempdir().unwrap()
+}
+
+fn stderr(out: &std::process::Output) -> String {
+    String::from_utf8_lossy(&out.stderr).into_owned()
+}
+
+/// Waits for `child` up to `limit`; `None` (and the child killed) when it is still running.
+fn wait_at_most(child: &mut Child, limit: Duration) -> Option<std::process::ExitStatus> {
+    let start = Instant::now();
+    while start.elapsed() < limit {
+        if let Some(status) = child.try_wait().unwrap() {
+            return Some(status);
+        }
+        std::thread::sleep(Duration::from_millis(10));
+    }
+    let _ = child.kill();
+    let _ = child.wait();
+    None
+}
+
+#[test]
+fn defect_01_prune_to_stdout_never_restarts_a_written_stream() {
+    let dir = tempdir();
+    let input = write(dir.path(), "u.tsv", UNSORTED);
+    let out = baler(&["prune", s(&input), "-o", "-", "--top-k", "1", "-q"], None);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert_eq!(
+        text,
+        "# pruned_with=--top-k 1 --by p_t_given_s\nsource\ttarget\tp_t_given_s\n\
+         ancla\tanchor\t0.9\nvelero\tsailing ship\t0.6\n"
+    );
+    // and the stream packs
+    let packed = dir.path().join("x.bale");
+    let out = baler(&["pack", "-", "-o", s(&packed), "-q"], Some(&text));
+    assert!(out.status.success(), "{}", stderr(&out));
+}
+
+/// Starts `args`, waits until `ready` holds, interrupts it with `signal`, and returns its
+/// exit code and stderr.
+fn interrupt(args: &[&str], signal: &str, ready: impl Fn() -> bool) -> (Option<i32>, String) {
+    let mut child = command(args).stdin(Stdio::null()).spawn().unwrap();
+    let start = Instant::now();
+    while !ready() {
+        assert!(
+            child.try_wait().unwrap().is_none(),
+            "finished before it could be interrupted; give it more work"
+        );
+        assert!(start.elapsed() < Duration::from_secs(60), "never got ready");
+        std::thread::sleep(Duration::from_millis(5));
+    }
+    let sent = std::process::Command::new("kill")
+        .args([signal, &child.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(sent.success());
+    let status = wait_at_most(&mut child, Duration::from_secs(30)).expect("it stops");
+    let mut err = String::new();
+    child
+        .stderr
+        .take()
+        .unwrap()
+        .read_to_string(&mut err)
+        .unwrap();
+    (status.code(), err)
+}
+
+#[test]
+fn defect_02_interrupted_runs_remove_partial_outputs_and_temporary_files() {
+    let dir = tempdir();
+    let big = dir.path().join("big.tsv");
+    baler_ok(&["synth", "--pairs", "400000", "-o", s(&big)]);
+    // pack: interrupted while its temporary files exist
+    let temp = dir.path().join("temp");
+    let out_dir = dir.path().join("out");
+    std::fs::create_dir_all(&temp).unwrap();
+    std::fs::create_dir_all(&out_dir).unwrap();
+    let packed = out_dir.join("big.bale");
+    let (code, err) = interrupt(
+        &[
+            "pack",
+            s(&big),
+            "-o",
+            s(&packed),
+            "--temp-dir",
+            s(&temp),
+            "-q",
+        ],
+        "-INT",
+        || !entries(&temp).is_empty(),
+    );
+    assert_eq!(code, Some(130), "{err}");
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(err.contains("interrupted"), "{err}");
+    assert_eq!(entries(&temp), Vec::<String>::new());
+    assert_eq!(entries(&out_dir), Vec::<String>::new());
+    // prune: interrupted (SIGTERM) while writing its partial output
+    let pruned = out_dir.join("pruned.tsv");
+    let (code, err) = interrupt(
+        &["prune", s(&big), "-o", s(&pruned), "--top-k", "1", "-q"],
+        "-TERM",
+        || !entries(&out_dir).is_empty(),
+    );
+    assert_eq!(code, Some(130), "{err}");
+    assert_eq!(entries(&out_dir), Vec::<String>::new());
+}
+
+#[test]
+fn defect_03_closed_pipe_is_success_and_full_disk_an_error() {
+    let dir = tempdir();
+    let table = dir.path().join("t.bale");
+    let tsv = write(dir.path(), "t.tsv", COUNTED);
+    baler_ok(&["pack", s(&tsv), "-o", s(&table), "-q"]);
+    for args in [
+        vec!["inspect", s(&table)],
+        vec!["inspect", s(&table), "--verify"],
+        vec!["dump", s(&table)],
+        vec!["lookup", s(&table), "el faro", "el muelle"],
+    ] {
+        // closed pipe: the reader is gone before the first write
+        let mut child = command(&args).stdin(Stdio::null()).spawn().unwrap();
+        drop(child.stdout.take());
+        let status = wait_at_most(&mut child, Duration::from_secs(30)).unwrap();
+        let mut err = String::new();
+        child
+            .stderr
+            .take()
+            .unwrap()
+            .read_to_string(&mut err)
+            .unwrap();
+        assert_eq!(status.code(), Some(0), "{args:?} into a closed pipe: {err}");
+        assert!(!err.contains("panicked"), "{err}");
+        // full disk
+        let full = std::fs::OpenOptions::new()
+            .write(true)
+            .open("/dev/full")
+            .unwrap();
+        let out = command(&args).stdout(full).output().unwrap();
+        assert_eq!(out.status.code(), Some(2), "{args:?} into /dev/full");
+        assert!(
+            stderr(&out).contains("No space left on device"),
+            "{args:?}: {}",
+            stderr(&out)
+        );
+        assert!(!stderr(&out).contains("panicked"), "{}", stderr(&out));
+    }
+}
+
+#[test]
+fn defect_06_pruned_with_records_everything_prune_did() {
+    let dir = tempdir();
+    let input = write(dir.path(), "c.tsv", COUNTED);
+    let out = dir.path().join("p.tsv");
+    baler_ok(&[
+        "prune",
+        s(&input),
+        "-o",
+        s(&out),
+        "-q",
+        "--significance",
+        "3",
+        "--phrase-counts",
+        "--annotate",
+        "--renormalize",
+        "p_t_given_s",
+    ]);
+    let text = std::fs::read_to_string(&out).unwrap();
+    let line = text
+        .lines()
+        .find(|l| l.starts_with("# pruned_with="))
+        .unwrap();
+    assert_eq!(
+        line,
+        "# pruned_with=--significance 3 --phrase-counts --annotate --renormalize p_t_given_s"
+    );
+    // corpus counts name the corpus
+    let src = write(dir.path(), "s.txt", "el faro\nel muelle\n");
+    let tgt = write(dir.path(), "t.txt", "the lighthouse\nthe pier\n");
+    let plain = write(
+        dir.path(),
+        "plain.tsv",
+        "source\ttarget\tp_t_given_s\nel faro\tthe lighthouse\t1\n",
+    );
+    baler_ok(&[
+        "prune",
+        s(&plain),
+        "-o",
+        s(&out),
+        "-q",
+        "--annotate",
+        "--source",
+        s(&src),
+        "--target",
+        s(&tgt),
+    ]);
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert!(
+        text.contains(&format!(
+            "# pruned_with=--source {} --target {} --annotate\n",
+            s(&src),
+            s(&tgt)
+        )),
+        "{text}"
+    );
+}
+
+fn inspect_json(table: &Path) -> serde_json::Value {
+    serde_json::from_str(&baler_ok(&["inspect", "--json", s(table)])).unwrap()
+}
+
+fn provenance(report: &serde_json::Value, key: &str) -> Option<String> {
+    report["meta"]["provenance"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|kv| kv[0] == key)
+        .map(|kv| kv[1].as_str().unwrap().to_string())
+}
+
+#[test]
+fn defect_07_prune_keeps_the_input_tables_packing_and_provenance() {
+    let dir = tempdir();
+    let tsv = write(dir.path(), "c.tsv", COUNTED);
+    let f32 = dir.path().join("f32.bale");
+    baler_ok(&[
+        "pack",
+        s(&tsv),
+        "-o",
+        s(&f32),
+        "-q",
+        "--bits",
+        "f32",
+        "--block-sources",
+        "4",
+    ]);
+    let pruned = dir.path().join("pruned.bale");
+    baler_ok(&["prune", s(&f32), "-o", s(&pruned), "-q", "--top-k", "1"]);
+    let report = inspect_json(&pruned);
+    for q in report["meta"]["quantization"].as_array().unwrap() {
+        assert_eq!(q["storage"], "f32", "{q}");
+    }
+    assert_eq!(report["meta"]["sources_per_block"], 4);
+    assert_eq!(
+        provenance(&report, "previous.input").as_deref(),
+        Some(s(&tsv))
+    );
+    assert_eq!(provenance(&report, "previous.bits").as_deref(), Some("f32"));
+    // the pack settings are accepted where a .bale is written, and win
+    let six = dir.path().join("six.bale");
+    baler_ok(&[
+        "prune",
+        s(&f32),
+        "-o",
+        s(&six),
+        "-q",
+        "--top-k",
+        "1",
+        "--bits",
+        "6",
+    ]);
+    let report = inspect_json(&six);
+    for q in report["meta"]["quantization"].as_array().unwrap() {
+        assert_eq!(
+            (q["storage"].as_str(), q["bits"].as_u64()),
+            (Some("codebook"), Some(6))
+        );
+    }
+}
+
+#[test]
+fn defect_08_a_leading_byte_order_mark_is_skipped() {
+    let dir = tempdir();
+    let tsv = write(dir.path(), "bom.tsv", &format!("\u{feff}{UNSORTED}"));
+    let packed = dir.path().join("bom.bale");
+    baler_ok(&["pack", s(&tsv), "-o", s(&packed), "-q"]);
+    assert!(baler_ok(&["lookup", s(&packed), "ancla"]).contains("anchorage"));
+    // a corpus's first token is not glued to the mark: both sentence pairs count
+    let table = write(
+        dir.path(),
+        "t.tsv",
+        "source\ttarget\tp_t_given_s\nel faro\tthe lighthouse\t1\n",
+    );
+    let src = write(dir.path(), "s.txt", "\u{feff}el faro\nel faro\n");
+    let tgt = write(
+        dir.path(),
+        "t.txt",
+        "\u{feff}the lighthouse\nthe lighthouse\n",
+    );
+    let out = dir.path().join("o.tsv");
+    baler_ok(&[
+        "prune",
+        s(&table),
+        "-o",
+        s(&out),
+        "-q",
+        "--annotate",
+        "--source",
+        s(&src),
+        "--target",
+        s(&tgt),
+    ]);
+    let text = std::fs::read_to_string(&out).unwrap();
+    let row = text.lines().last().unwrap();
+    assert!(row.ends_with("\t2\t2\t2"), "{text}");
+}
+
+#[test]
+fn defect_09_an_output_that_is_an_input_is_refused() {
+    let dir = tempdir();
+    let tsv = write(dir.path(), "p.tsv", UNSORTED);
+    let other_name = dir.path().join("q.tsv");
+    std::fs::hard_link(&tsv, &other_name).unwrap();
+    for output in [s(&tsv).to_string(), s(&other_name).to_string()] {
+        let out = baler(&["pack", s(&tsv), "-o", &output, "-q"], None);
+        assert_eq!(out.status.code(), Some(2));
+        assert!(stderr(&out).contains("same file"), "{}", stderr(&out));
+        assert_eq!(std::fs::read_to_string(&tsv).unwrap(), UNSORTED);
+    }
+    let out = baler(
+        &["prune", s(&tsv), "-o", s(&other_name), "--top-k", "1"],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert_eq!(std::fs::read_to_string(&tsv).unwrap(), UNSORTED);
+    let table = dir.path().join("d.bale");
+    baler_ok(&["pack", s(&tsv), "-o", s(&table), "-q"]);
+    let before = std::fs::read(&table).unwrap();
+    let out = baler(&["dump", s(&table), "-o", s(&table)], None);
+    assert_eq!(out.status.code(), Some(2));
+    assert_eq!(std::fs::read(&table).unwrap(), before);
+}
+
+#[test]
+fn defect_10_an_unwritable_output_is_found_before_the_work() {
+    // The input never ends: only a check made before reading it can finish the run.
+    let dir = tempdir();
+    let missing = dir.path().join("no/such/dir/out.tsv");
+    for args in [
+        vec!["prune", "-", "-o", s(&missing), "--top-k", "1"],
+        vec!["pack", "-", "-o", s(&missing)],
+    ] {
+        let mut child = command(&args).stdin(Stdio::piped()).spawn().unwrap();
+        let mut stdin = child.stdin.take().unwrap();
+        let _ = stdin.write_all(b"source\ttarget\n"); // it may have stopped already
+        let status = wait_at_most(&mut child, Duration::from_secs(20));
+        drop(stdin);
+        let status = status.expect("it stops at once instead of reading the input");
+        assert_eq!(status.code(), Some(2), "{args:?}");
+        let mut err = String::new();
+        child
+            .stderr
+            .take()
+            .unwrap()
+            .read_to_string(&mut err)
+            .unwrap();
+        assert!(err.contains("out.tsv"), "{err}");
+    }
+}
+
+#[test]
+fn defect_11_messages_name_the_directories_and_files_the_user_gave() {
+    let dir = tempdir();
+    let tsv = write(dir.path(), "p.tsv", UNSORTED);
+    let nowhere = dir.path().join("no-such-temp");
+    let out = baler(
+        &[
+            "pack",
+            s(&tsv),
+            "-o",
+            s(&dir.path().join("x.bale")),
+            "--temp-dir",
+            s(&nowhere),
+        ],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains(s(&nowhere)), "{}", stderr(&out));
+    let out = baler(
+        &["pack", s(&tsv), "-o", s(&dir.path().join("missing/x.bale"))],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains("x.bale"), "{}", stderr(&out));
+    assert!(!stderr(&out).contains(".baler-partial"), "{}", stderr(&out));
+}
+
+#[test]
+fn defect_12_pack_repacks_a_packed_table() {
+    let dir = tempdir();
+    let tsv = write(dir.path(), "c.tsv", COUNTED);
+    let first = dir.path().join("a.bale");
+    let second = dir.path().join("b.bale");
+    baler_ok(&["pack", s(&tsv), "-o", s(&first), "-q", "--bits", "f32"]);
+    baler_ok(&[
+        "pack",
+        s(&first),
+        "-o",
+        s(&second),
+        "-q",
+        "--block-sources",
+        "2",
+    ]);
+    assert_eq!(
+        baler_ok(&["dump", s(&first)]),
+        baler_ok(&["dump", s(&second)])
+    );
+    let report = inspect_json(&second);
+    assert_eq!(report["meta"]["sources_per_block"], 2);
+    assert_eq!(provenance(&report, "bits").as_deref(), Some("f32"));
+}
+
+#[test]
+fn defect_14_lookup_header_best_misses_and_whitespace() {
+    let dir = tempdir();
+    let tsv = write(dir.path(), "c.tsv", COUNTED);
+    let table = dir.path().join("t.bale");
+    baler_ok(&["pack", s(&tsv), "-o", s(&table), "-q"]);
+    let misses = dir.path().join("misses.txt");
+    let out = baler(
+        &[
+            "lookup",
+            s(&table),
+            "--no-header",
+            "--best",
+            "1",
+            "--misses",
+            s(&misses),
+            "  el   faro ",
+            "un barco",
+            "el\tmuelle",
+            "la grua",
+        ],
+        None,
+    );
+    assert!(out.status.success(), "{}", stderr(&out));
+    let text = String::from_utf8(out.stdout).unwrap();
+    let rows: Vec<Vec<&str>> = text.lines().map(|l| l.split('\t').collect()).collect();
+    assert_eq!(rows.len(), 2, "{text}");
+    assert_eq!(rows[0][..2], ["el faro", "the lighthouse"]);
+    assert_eq!(rows[1][..2], ["el muelle", "the pier"]);
+    assert_eq!(
+        std::fs::read_to_string(&misses).unwrap(),
+        "un barco\nla grua\n"
+    );
+}
+
+#[test]
+fn defect_15_recipes_are_documented_and_self_contained() {
+    // --help points to documentation that exists
+    let help = baler_ok(&["build", "--help"]);
+    assert!(help.contains("docs/recipe.md"), "{help}");
+    let doc = std::fs::read_to_string(repo("docs/recipe.md")).unwrap();
+    for key in [
+        "[corpus]",
+        "[[filter]]",
+        "significance",
+        "relative_entropy",
+        "zstd_level",
+        "[output]",
+    ] {
+        assert!(doc.contains(key), "docs/recipe.md lacks {key}");
+    }
+    // outputs resolve against the recipe's folder; significance takes a number and
+    // relative_entropy a string, as on the command line
+    let dir = tempdir();
+    let data = dir.path().join("recipes");
+    std::fs::create_dir(&data).unwrap();
+    for name in ["toolshed.en", "toolshed.es", "toolshed.align"] {
+        std::fs::copy(repo(&format!("demo-data/{name}")), data.join(name)).unwrap();
+    }
+    let recipe = write(
+        &data,
+        "r.toml",
+        "[corpus]\nsource = \"toolshed.en\"\ntarget = \"toolshed.es\"\n\
+         alignment = \"toolshed.align\"\n\
+         [[filter]]\nsignificance = 2\n\
+         [[filter]]\nrelative_entropy = \"-1e9\"\n\
+         [output]\ntable = \"out/t.bale\"\n",
+    );
+    let elsewhere = tempdir();
+    let out = command(&["build", s(&recipe), "--quiet"])
+        .current_dir(elsewhere.path())
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert!(data.join("out/t.bale").exists());
+    assert_eq!(entries(elsewhere.path()), Vec::<String>::new());
+}
+
+#[test]
+fn recipe_pack_values_are_checked_by_the_registry_before_work() {
+    let dir = tempdir();
+    let recipe = write(
+        dir.path(),
+        "r.toml",
+        "[corpus]\nsource = \"a.en\"\ntarget = \"a.es\"\nalignment = \"a.align\"\n\
+         [pack]\nzstd_level = 99\n[output]\ntable = \"t.bale\"\n",
+    );
+    let out = baler(&["build", s(&recipe), "--quiet"], None);
+    assert_eq!(out.status.code(), Some(2));
+    let err = stderr(&out);
+    assert!(err.contains("r.toml:6:"), "{err}");
+    assert!(err.contains("zstd_level"), "{err}");
+}
+
+/// Peak resident memory of a run in KiB, from `/usr/bin/time -f %M` (GNU time).
+fn peak_kib(args: &[&str]) -> u64 {
+    let out = std::process::Command::new("/usr/bin/time")
+        .arg("-f")
+        .arg("peak %M")
+        .arg(crate::util::baler_bin())
+        .args(args)
+        .output()
+        .expect("GNU time at /usr/bin/time");
+    let err = stderr(&out);
+    assert!(out.status.success(), "{args:?}: {err}");
+    let line = err.lines().rev().find(|l| l.starts_with("peak ")).unwrap();
+    line[5..].trim().parse().unwrap()
+}
+
+#[test]
+fn defect_13_relative_entropy_pruning_respects_the_memory_budget() {
+    let dir = tempdir();
+    let table = dir.path().join("t.tsv");
+    baler_ok(&["synth", "--pairs", "200000", "-o", s(&table)]);
+    let roomy = dir.path().join("roomy.tsv");
+    let tight = dir.path().join("tight.tsv");
+    let common = ["--relative-entropy", "0", "-q"];
+    baler_ok(
+        &[
+            &["prune", s(&table), "-o", s(&roomy), "--memory", "2G"][..],
+            &common,
+        ]
+        .concat(),
+    );
+    let peak = peak_kib(
+        &[
+            &["prune", s(&table), "-o", s(&tight), "--memory", "64M"][..],
+            &common,
+        ]
+        .concat(),
+    );
+    assert!(peak <= 64 << 10, "peak {peak} KiB over the 64 MiB budget");
+    assert_eq!(
+        std::fs::read(&roomy).unwrap(),
+        std::fs::read(&tight).unwrap()
+    );
+    // a budget too small for the index is a clear error, not a larger footprint
+    let out = baler(
+        &[
+            &["prune", s(&table), "-o", s(&tight), "--memory", "1M"][..],
+            &common,
+        ]
+        .concat(),
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains("memory"), "{}", stderr(&out));
+}
