@@ -70,8 +70,8 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         m.option_order.ties
     );
     println!(
-        "blocks     {} sources each, {}",
-        m.sources_per_block, m.block_compression
+        "blocks     {} sources each, {} targets per group, coding {}",
+        m.sources_per_block, m.targets_per_group, m.block_compression
     );
     println!();
     println!(
@@ -87,6 +87,24 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             100.0 * s.length as f64 / total.max(1) as f64,
             per_pair(s.length)
         );
+    }
+    if !m.components.is_empty() {
+        // Coded bytes of each component inside the blocks and target groups, as measured by
+        // the writer; the index sections above are the rest.
+        println!();
+        println!(
+            "{:<26} {:>14} {:>8} {:>12}",
+            "component", "bytes", "share", "bytes/pair"
+        );
+        for (name, bytes) in &m.components {
+            println!(
+                "{:<26} {:>14} {:>7.2}% {:>12.3}",
+                name,
+                bytes,
+                100.0 * *bytes as f64 / total.max(1) as f64,
+                per_pair(*bytes)
+            );
+        }
     }
     if !m.quantization.is_empty() {
         println!();

@@ -20,11 +20,14 @@ pub struct Args {
     /// Memory budget for sorting, e.g. 256M or 4G; past it, sorted runs spill to disk.
     #[arg(long, default_value = "1G", value_parser = crate::cli::size_arg)]
     memory: u64,
-    /// Source phrases per option block: smaller is faster to look up, larger packs tighter.
+    /// Source phrases per block: smaller is faster to look up, larger packs tighter.
     #[arg(long, default_value_t = pack::DEFAULT_SOURCES_PER_BLOCK)]
     block_sources: u32,
-    /// Block compression: `zstd` or `none`.
-    #[arg(long, default_value = "zstd", value_parser = parse_compression)]
+    /// Target phrases per target group: smaller is faster to look up, larger packs tighter.
+    #[arg(long, default_value_t = pack::DEFAULT_TARGETS_PER_GROUP)]
+    group_targets: u32,
+    /// Coding of blocks: `rans` (compact) or `none` (plain varints, faster cold reads).
+    #[arg(long, default_value = "rans", value_parser = parse_compression)]
     compression: Compression,
     /// zstd level for blocks (1..22).
     #[arg(long, default_value_t = pack::DEFAULT_ZSTD_LEVEL)]
@@ -59,7 +62,7 @@ fn parse_bits(text: &str) -> Result<Bits, String> {
 }
 
 fn parse_compression(text: &str) -> Result<Compression, String> {
-    Compression::from_name(text).ok_or_else(|| format!("{text:?} is not `zstd` or `none`"))
+    Compression::from_name(text).ok_or_else(|| format!("{text:?} is not `rans` or `none`"))
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
@@ -67,6 +70,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         bits: args.bits.0,
         memory: args.memory,
         sources_per_block: args.block_sources,
+        targets_per_group: args.group_targets,
         compression: args.compression,
         zstd_level: args.zstd_level,
         dictionary_bytes: args.dictionary_size as usize,
