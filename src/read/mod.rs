@@ -454,7 +454,7 @@ impl Table {
                 }
                 key.extend_from_slice(token.as_bytes());
                 let Some(at) = self.seek(&key, &mut hint)? else {
-                    break; // before every source: nothing starts with it
+                    break; // an empty table
                 };
                 let (b, block) = hint.as_ref().expect("seek sets the hint");
                 let mut next = at;
@@ -532,7 +532,7 @@ impl Table {
     }
 
     /// The position of the first source not below `key`, with its block in `hint`; `None`
-    /// when `key` sorts before every source.
+    /// when the table has no sources.
     fn seek(
         &self,
         key: &[u8],
@@ -544,9 +544,11 @@ impl Table {
         let b = match hint {
             Some((b, _)) if inside(*b) => *b,
             _ => {
-                let Some(b) = self.find_block(key) else {
+                if self.n_blocks == 0 {
                     return Ok(None);
-                };
+                }
+                // A key before every source lands at the first source of block 0.
+                let b = self.find_block(key).unwrap_or(0);
                 *hint = Some((b, self.block(b)?));
                 b
             }
