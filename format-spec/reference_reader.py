@@ -1,33 +1,26 @@
 #!/usr/bin/env python3
-"""An independent reader of packed `.bale` tables, written from format-spec/bale-format.md.
+"""An independent reader of packed `.bale` tables (format 2.0), written from
+format-spec/bale-format.md.
 
 Python 3 standard library only. It parses a packed file section by section, verifies every
-checksum (zlib.crc32 for the sections and the table, CRC-32C for the fst's own trailer), decodes
-every record except the nodes of the fst source index, and writes the table as interchange TSV,
-which must equal `baler dump` byte for byte.
-
-The fst is not decoded, so the source phrases come from elsewhere: either a file of the phrases
-in byte order (`--sources`, one per line) or the TSV that was packed (`--sources-from-tsv`, whose
-distinct `source` values are sorted by their UTF-8 bytes).
-
-zstd blocks (RFC 8878) are decompressed by the reference `zstd` command-line tool (`--zstd`,
-default `zstd`), with the file's dictionary section as `-D` when present; the frame headers are
-parsed here first. Section numbers in comments refer to bale-format.md.
+checksum (zlib.crc32 for the sections, the table, every source block and every target group),
+decodes every record (the rANS decoder included) and writes the table as interchange TSV, which
+must equal `baler dump` byte for byte. Section numbers in comments refer to bale-format.md.
 
 Usage:
-    reference_reader.py TABLE (--sources FILE|- | --sources-from-tsv FILE) [-o OUT]
-        [--zstd PROGRAM] [--extract-block N PATH] [--dictionary-out PATH]
+    reference_reader.py TABLE [--sources FILE|- | --sources-from-tsv FILE] [-o OUT]
+        [--extract-block N PATH]
+
+`--sources` / `--sources-from-tsv` are optional cross-checks: the decoded source phrases must
+equal the given list (or the distinct `source` values of the packed TSV, in byte order).
 
 Exit status: 0 on success, 2 on any error (message on stderr naming the file and the reason).
 """
 
 import argparse
 import json
-import os
 import struct
-import subprocess
 import sys
-import tempfile
 import zlib
 from decimal import Decimal
 
@@ -39,17 +32,23 @@ KINDS = {
     1: "metadata",
     2: "codebooks",
     3: "vocabulary",
-    4: "targets",
-    5: "source-index",
-    6: "block-index",
-    7: "options",
-    8: "dictionary",
+    4: "models",
+    5: "target-index",
+    6: "targets",
+    7: "block-index",
+    8: "block-keys",
+    9: "blocks",
 }
-REQUIRED = {1, 2, 3, 4, 5, 6, 7}
+REQUIRED = {1, 2, 3, 5, 6, 7, 8, 9}
 COUNT_COLUMNS = ["count", "count_source", "count_target", "cooc", "df_source", "df_target"]
 FORMAT_NAME = "baler packed phrase table"
-ZSTD_FRAME_MAGIC = 0xFD2FB528
-ZSTD_DICT_MAGIC = 0xEC30A437
+
+# Model ids (section 7.2)
+KEY_LCP, KEY_LEN, KEY_BYTE, OPTION_COUNT, TARGET_REF = 0, 1, 2, 3, 4
+WIDE_SCORE, LINK_COUNT, LINK_INDEX, COUNT, TARGET_LEN, TARGET_WORD, SCORE = 8, 9, 10, 11, 12, 13, 14
+SCORE_CONTEXTS = 24
+PROB_BITS = 12
+RANS_L = 1 << 23
 
 
 class FormatError(Exception):
@@ -101,24 +100,89 @@ class Varints:
         fail(f"a varint in the {self.what} is longer than 10 bytes")
 
 
-def crc32c(data):
-    """CRC-32C (Castagnoli, reflected polynomial 0x82F63B78), as used by the fst trailer."""
-    table = crc32c.table
-    if table is None:
-        table = []
-        for n in range(256):
-            c = n
-            for _ in range(8):
-                c = (c >> 1) ^ 0x82F63B78 if c & 1 else c >> 1
-            table.append(c)
-        crc32c.table = table
-    crc = 0xFFFFFFFF
-    for byte in data:
-        crc = table[(crc ^ byte) & 0xFF] ^ (crc >> 8)
-    return crc ^ 0xFFFFFFFF
+# ---------------------------------------------------------------- symbol coding (section 7)
 
 
-crc32c.table = None
+def class_base(c):
+    """(leading value, extra bits) of a number class."""
+    if c < 16:
+        return c, 0
+    c -= 16
+    nb = c // 4 + 5
+    if nb > 64:
+        fail("a number class no number has")
+    return (4 | (c % 4)) << (nb - 3), nb - 3
+
+
+class Plain:
+    """Coding `none`: bytes as they are, numbers as LEB128 varints."""
+
+    def __init__(self, data, what):
+        self.v = Varints(data, what=what)
+        self.what = what
+
+    def byte(self, model):
+        if self.v.pos >= self.v.end:
+            fail(f"{self.what} runs past its end")
+        b = self.v.data[self.v.pos]
+        self.v.pos += 1
+        return b
+
+    def number(self, model):
+        return self.v.next()
+
+    def finished(self):
+        return self.v.pos == self.v.end
+
+
+class Rans:
+    """Coding `rans`: static-model rANS, 32-bit state, byte renormalization."""
+
+    def __init__(self, models, data, what):
+        if len(data) < 4:
+            fail(f"{what} is too short for a coder state")
+        self.models, self.data, self.what = models, data, what
+        self.x = int.from_bytes(data[:4], "big")
+        self.pos = 4
+        if self.x < RANS_L:
+            fail(f"{what} starts with an impossible coder state")
+
+    def renormalize(self):
+        while self.x < RANS_L:
+            if self.pos >= len(self.data):
+                fail(f"{self.what} runs past its end")
+            self.x = (self.x << 8) | self.data[self.pos]
+            self.pos += 1
+
+    def byte(self, model):
+        freq, start, slots = self.models[model]
+        if slots is None:
+            fail(f"{self.what} uses an empty model ({model})")
+        slot = self.x & ((1 << PROB_BITS) - 1)
+        sym = slots[slot]
+        self.x = freq[sym] * (self.x >> PROB_BITS) + slot - start[sym]
+        self.renormalize()
+        return sym
+
+    def bits(self, n):
+        v = 0
+        while n > 0:
+            k = min(n, 8)
+            n -= k
+            slot = self.x & ((1 << PROB_BITS) - 1)
+            chunk = slot >> (PROB_BITS - k)
+            f = 1 << (PROB_BITS - k)
+            self.x = f * (self.x >> PROB_BITS) + slot - chunk * f
+            self.renormalize()
+            v = (v << k) | chunk
+        return v
+
+    def number(self, model):
+        base, extra = class_base(self.byte(model))
+        return base | self.bits(extra)
+
+    def finished(self):
+        return self.pos == len(self.data) and self.x == RANS_L
 
 
 # ---------------------------------------------------------------- numbers (section 9)
@@ -164,17 +228,15 @@ def format_score(x):
 
 
 class Table:
-    def __init__(self, data, zstd_program="zstd"):
+    def __init__(self, data):
         self.data = data
-        self.zstd_program = zstd_program
         self.read_header()
         self.read_metadata()
         self.read_codebooks()
-        self.read_dictionary()
+        self.read_models()
         self.read_vocabulary()
+        self.read_indexes()
         self.read_targets()
-        self.read_block_index()
-        self.check_source_index()
 
     # section 3 and 4
     def read_header(self):
@@ -182,8 +244,8 @@ class Table:
         if len(d) < HEADER_LEN or d[:8] != MAGIC:
             fail("missing the magic bytes BALER\\r\\n\\x1a")
         self.major, self.minor = u16(d, 8), u16(d, 10)
-        if self.major != 1:
-            fail(f"format version {self.major}.{self.minor} is not 1.x")
+        if self.major != 2:
+            fail(f"format version {self.major}.{self.minor} is not 2.x")
         count = u32(d, 12)
         if not 1 <= count <= MAX_SECTIONS:
             fail(f"implausible section count {count}")
@@ -206,11 +268,11 @@ class Table:
             if offset < table_end:
                 fail(f"the {name} section overlaps the header")
             if self.minor == 0 and (flags != 0 or reserved != 0):
-                fail(f"the {name} entry has non-zero flags or reserved bytes in a 1.0 file")
+                fail(f"the {name} entry has non-zero flags or reserved bytes in a 2.0 file")
             if offset % 8 != 0:
                 fail(f"the {name} section does not start on an 8-byte boundary")
             body = d[offset : offset + length]
-            if zlib.crc32(body) != crc:
+            if zlib.crc32(body) != crc and kind not in (6, 9):
                 fail(f"the {name} section fails its checksum")
             spans.append((offset, offset + length, name))
             if kind in KINDS:
@@ -255,6 +317,7 @@ class Table:
             "alignment": bool,
             "option_order": dict,
             "sources_per_block": int,
+            "targets_per_group": int,
             "block_compression": str,
             "max_block_bytes": int,
             "table_metadata": list,
@@ -266,10 +329,10 @@ class Table:
                 fail(f"metadata member {key!r} is missing or not a {kind.__name__}")
         if meta["format"] != FORMAT_NAME:
             fail(f"the metadata names the format {meta['format']!r}")
-        if meta["block_compression"] not in ("zstd", "none"):
-            fail(f"unknown block compression {meta['block_compression']!r}")
-        if meta["sources_per_block"] < 1:
-            fail("zero sources per block")
+        if meta["block_compression"] not in ("rans", "none"):
+            fail(f"unknown block coding {meta['block_compression']!r}")
+        if meta["sources_per_block"] < 1 or meta["targets_per_group"] < 1:
+            fail("zero sources per block or targets per group")
         pairs, sources, targets = meta["pairs"], meta["sources"], meta["targets"]
         if sources > pairs or targets > pairs or (pairs > 0 and sources == 0):
             fail(f"inconsistent counts: {pairs} pairs, {sources} sources, {targets} targets")
@@ -327,219 +390,178 @@ class Table:
             fail(f"the codebook section has {len(b) - pos} trailing bytes")
 
     # section 5.3
-    def read_dictionary(self):
-        self.dictionary = self.sections.get(8)
-        self.dictionary_id = 0
-        if self.dictionary is None:
+    def read_models(self):
+        n = SCORE + len(self.meta["scores"]) * SCORE_CONTEXTS
+        coding = self.meta["block_compression"]
+        b = self.sections.get(4)
+        if coding == "none":
+            if b is not None:
+                fail("a models section is present but blocks are not coded")
+            self.models = None
             return
-        if self.meta["block_compression"] != "zstd":
-            fail("a dictionary is present but blocks are not compressed")
-        if len(self.dictionary) >= 8 and u32(self.dictionary, 0) == ZSTD_DICT_MAGIC:
-            self.dictionary_id = u32(self.dictionary, 4)
+        if b is None:
+            fail("the models section is missing")
+        if len(b) != n * 512:
+            fail(f"the models section holds {len(b)} bytes; {n} models need {n * 512}")
+        self.models = []
+        for m in range(n):
+            freq = list(struct.unpack_from("<256H", b, m * 512))
+            total = sum(freq)
+            if total == 0:
+                self.models.append((freq, None, None))
+                continue
+            if total != 1 << PROB_BITS:
+                fail(f"model {m}'s frequencies sum to {total}")
+            start, slots, acc = [], bytearray(), 0
+            for sym, f in enumerate(freq):
+                start.append(acc)
+                slots += bytes([sym]) * f
+                acc += f
+            self.models.append((freq, start, slots))
+
+    def source(self, data, what):
+        if self.models is None:
+            return Plain(data, what)
+        return Rans(self.models, data, what)
 
     # section 5.4
     def read_vocabulary(self):
-        v = self.sections[3]
-        if len(v) < 8 or u64(v, 0) != self.meta["vocabulary"]:
+        b = self.sections[3]
+        n = self.meta["vocabulary"]
+        if len(b) < 8 or u64(b, 0) != n:
             fail("the vocabulary section does not match the metadata")
-        n = u64(v, 0)
-        text_start = 8 + 8 * (n + 1)
-        if text_start > len(v):
+        if 8 + 4 * (n + 1) > len(b):
             fail("the vocabulary's offset array is cut off")
-        offsets = struct.unpack_from(f"<{n + 1}Q", v, 8)
-        text = v[text_start:]
-        if offsets[0] != 0 or offsets[n] != len(text):
-            fail("the vocabulary's offsets do not span its text")
+        offsets = struct.unpack_from(f"<{n + 1}I", b, 8)
+        text = b[8 + 4 * (n + 1):]
+        if offsets[0] != 0 or offsets[-1] != len(text):
+            fail("the vocabulary's offsets do not cover its text")
         self.words = []
-        for i in range(n):
-            a, c = offsets[i], offsets[i + 1]
-            if a > c:
-                fail(f"word {i} has decreasing offsets")
+        for a, c in zip(offsets, offsets[1:]):
+            if c < a:
+                fail("the vocabulary's offsets are out of order")
             try:
-                word = text[a:c].decode("utf-8")
+                self.words.append(text[a:c].decode("utf-8"))
             except UnicodeDecodeError:
-                fail(f"word {i} is not UTF-8")
-            if not word or any(ch in word for ch in " \t\n\r\0"):
-                fail(f"word {i} ({word!r}) is empty or holds a separator")
-            self.words.append(word)
+                fail("a vocabulary word is not UTF-8")
 
-    # section 5.5
-    def read_targets(self):
-        t = self.sections[4]
-        if len(t) < 8 or u64(t, 0) != self.meta["targets"]:
-            fail("the targets section does not match the metadata")
-        m = u64(t, 0)
-        data_start = 8
-        cursor = Varints(t, data_start, len(t), "targets")
-        # reference (offset from the start of data) -> (text, token count)
-        self.targets = {}
-        for i in range(m):
-            reference = cursor.pos - data_start
-            k = cursor.next()
-            if k == 0:
-                fail(f"target {i} has no tokens")
-            ids = [cursor.next() for _ in range(min(k, len(t)))]
-            if len(ids) != k:
-                fail(f"target {i} is cut off")
-            if any(w >= len(self.words) for w in ids):
-                fail(f"target {i} uses a word outside the vocabulary")
-            self.targets[reference] = (" ".join(self.words[w] for w in ids), k)
-        if cursor.pos != len(t):
-            fail("the target data has trailing bytes")
-
-    # section 5.6
-    def read_block_index(self):
-        per = self.meta["sources_per_block"]
-        self.blocks = -(-self.meta["sources"] // per)
-        b = self.sections[6]
-        if len(b) != 8 * (self.blocks + 1):
-            fail(f"the block index holds {len(b)} bytes; {self.blocks} blocks need "
-                 f"{8 * (self.blocks + 1)}")
-        self.block_offsets = struct.unpack_from(f"<{self.blocks + 1}Q", b, 0)
-        if self.block_offsets[0] != 0 or self.block_offsets[-1] != len(self.sections[7]):
-            fail("the block index does not span the options section")
-        if any(a > c for a, c in zip(self.block_offsets, self.block_offsets[1:])):
-            fail("the block index decreases")
-
-    # section 5.7: the framing only; the nodes are the fst crate's.
-    def check_source_index(self):
-        f = self.sections[5]
-        if len(f) < 36:
-            fail("the source index is too short to be an fst")
-        if u64(f, 0) != 3 or u64(f, 8) != 0:
-            fail(f"the source index is fst version {u64(f, 0)} type {u64(f, 8)}, not 3 and 0")
-        if u64(f, len(f) - 20) != self.meta["sources"]:
-            fail(f"the source index holds {u64(f, len(f) - 20)} keys, the metadata says "
-                 f"{self.meta['sources']}")
-        c = crc32c(f[:-4])
-        masked = (((c >> 15) | (c << 17)) + 0xA282EAD8) & 0xFFFFFFFF
-        if masked != u32(f, len(f) - 4):
-            fail("the source index fails the fst's own checksum")
-
-    # section 5.8
-    def stored_block(self, i):
-        return self.sections[7][self.block_offsets[i] : self.block_offsets[i + 1]]
-
-    def frame_content_size(self, frame, i):
-        """Parses an RFC 8878 frame header (section 3.1.1.1); returns Frame_Content_Size."""
-        if len(frame) < 6 or u32(frame, 0) != ZSTD_FRAME_MAGIC:
-            fail(f"block {i} is not a zstd frame")
-        descriptor = frame[4]
-        fcs_flag = descriptor >> 6
-        single_segment = (descriptor >> 5) & 1
-        if (descriptor >> 3) & 1:
-            fail(f"block {i}'s frame header sets the reserved bit")
-        dict_id_size = [0, 1, 2, 4][descriptor & 3]
-        pos = 5 + (0 if single_segment else 1)  # Window_Descriptor
-        if pos + dict_id_size > len(frame):
-            fail(f"block {i}'s frame header is cut off")
-        dict_id = int.from_bytes(frame[pos : pos + dict_id_size], "little")
-        pos += dict_id_size
-        fcs_size = [1 if single_segment else 0, 2, 4, 8][fcs_flag]
-        if fcs_size == 0:
-            fail(f"block {i}'s frame does not state its content size")
-        if pos + fcs_size > len(frame):
-            fail(f"block {i}'s frame header is cut off")
-        size = int.from_bytes(frame[pos : pos + fcs_size], "little")
-        if fcs_size == 2:
-            size += 256
-        if dict_id not in (0, self.dictionary_id) or (dict_id != 0 and self.dictionary is None):
-            fail(f"block {i} names dictionary {dict_id}, the file holds {self.dictionary_id}")
-        if size > self.meta["max_block_bytes"]:
-            fail(f"block {i} decompresses to {size} bytes, over max_block_bytes")
-        return size
-
-    def raw_blocks(self):
-        """Every raw block, in order (zstd frames decompressed by the zstd CLI)."""
-        if self.meta["block_compression"] == "none":
-            for i in range(self.blocks):
-                yield self.stored_block(i)
-            return
-        with tempfile.TemporaryDirectory(prefix="bale-reference-") as tmp:
-            command = [self.zstd_program, "-d", "-c", "-q"]
-            if self.dictionary is not None:
-                path = os.path.join(tmp, "dictionary")
-                with open(path, "wb") as f:
-                    f.write(self.dictionary)
-                command += ["-D", path]
-            for i in range(self.blocks):
-                frame = self.stored_block(i)
-                size = self.frame_content_size(frame, i)
-                try:
-                    done = subprocess.run(command, input=frame, capture_output=True, check=False)
-                except OSError as e:
-                    fail(f"cannot run {self.zstd_program!r}: {e}")
-                if done.returncode != 0:
-                    fail(f"zstd cannot decompress block {i}: "
-                         f"{done.stderr.decode(errors='replace').strip()}")
-                if len(done.stdout) != size:
-                    fail(f"block {i} decompressed to {len(done.stdout)} bytes, its frame says {size}")
-                yield done.stdout
-
-    # section 6
-    def decode_block(self, raw, i):
-        """The options of each source of block `i`: lists of (target id, scores, links, counts)."""
-        per = self.meta["sources_per_block"]
-        sources = min(per, self.meta["sources"] - i * per)
-        cursor = Varints(raw, 0, len(raw), f"block {i}")
-        option_counts = [cursor.next() for _ in range(sources)]
-        if any(c < 1 for c in option_counts):
-            fail(f"block {i} has a source without options")
-        n = sum(option_counts)
-        if n > len(raw):
-            fail(f"block {i} claims more options than it has bytes")
-        scores = [[] for _ in range(n)]
-        pos = cursor.pos
-        for width, values in self.codecs:
-            if pos + width * n > len(raw):
-                fail(f"block {i}'s score columns are cut off")
-            for k in range(n):
-                at = pos + k * width
-                if values is None:
-                    scores[k].append(struct.unpack_from("<f", raw, at)[0])
-                else:
-                    code = raw[at] if width == 1 else u16(raw, at)
-                    if code >= len(values):
-                        fail(f"block {i} has a score code outside its codebook")
-                    scores[k].append(values[code])
-            pos += width * n
-        cursor.pos = pos
-        target_refs = [cursor.next() for _ in range(n)]
-        if any(t not in self.targets for t in target_refs):
-            fail(f"block {i} refers to a target reference that starts no target record")
-        links = [[] for _ in range(n)]
-        if self.meta["alignment"]:
-            for k in range(n):
-                a = cursor.next()
-                if a > len(raw):
-                    fail(f"block {i} has an implausible link count")
-                for _ in range(a):
-                    s, t = cursor.next(), cursor.next()
-                    if s > 65535 or t > 65535:
-                        fail(f"block {i} has a link index over 65535")
-                    links[k].append((s, t))
-        counts = [[] for _ in range(n)]
-        for _ in self.meta["counts"]:
-            for k in range(n):
-                counts[k].append(cursor.next())
-        if cursor.pos != len(raw):
-            fail(f"block {i} has {len(raw) - cursor.pos} trailing bytes")
-        options = list(zip(target_refs, scores, links, counts))
-        per_source = []
-        start = 0
-        for c in option_counts:
-            per_source.append(options[start : start + c])
-            start += c
-        return per_source
-
-    # section 9
-    def dump(self, sources, out):
+    # sections 5.5 and 5.6
+    def read_indexes(self):
         meta = self.meta
-        if len(sources) != meta["sources"]:
-            fail(f"{len(sources)} source phrases were given, the table has {meta['sources']}")
-        encoded = [s.encode("utf-8") for s in sources]
-        if any(a >= b for a, b in zip(encoded, encoded[1:])):
-            fail("the given source phrases are not strictly increasing in byte order")
+        self.blocks = -(-meta["sources"] // meta["sources_per_block"])
+        self.groups = -(-meta["targets"] // meta["targets_per_group"])
+        bi, keys, data = self.sections[7], self.sections[8], self.sections[9]
+        if len(bi) != 16 * (self.blocks + 1):
+            fail(f"the block index holds {len(bi)} bytes for {self.blocks} blocks")
+        self.block_entries = [struct.unpack_from("<QII", bi, 16 * i) for i in range(self.blocks + 1)]
+        last_off, last_key = 0, 0
+        for i, (off, key, crc) in enumerate(self.block_entries):
+            if (i == 0 and (off or key)) or off < last_off or key < last_key:
+                fail(f"block {i}'s offsets are out of order")
+            last_off, last_key = off, key
+        if last_off != len(data) or last_key != len(keys):
+            fail("the block index does not end at the ends of its sections")
+        ti = self.sections[5]
+        if len(ti) != 12 * self.groups + 8:
+            fail(f"the target index holds {len(ti)} bytes for {self.groups} groups")
+        self.group_entries = [struct.unpack_from("<QI", ti, 12 * g) for g in range(self.groups)]
+        self.group_entries.append((u64(ti, 12 * self.groups), 0))
+        last = 0
+        for g, (off, _) in enumerate(self.group_entries):
+            if (g == 0 and off) or off < last:
+                fail(f"target group {g}'s offset is out of order")
+            last = off
+        if last != len(self.sections[6]):
+            fail("the target index does not end at the end of the targets")
+
+    # section 6.2
+    def read_targets(self):
+        meta, data = self.meta, self.sections[6]
+        per = meta["targets_per_group"]
+        self.targets = []
+        for g in range(self.groups):
+            start, crc = self.group_entries[g]
+            stored = data[start:self.group_entries[g + 1][0]]
+            if zlib.crc32(stored) != crc:
+                fail(f"target group {g} fails its checksum")
+            src = self.source(stored, f"target group {g}")
+            for _ in range(min(per, meta["targets"] - g * per)):
+                n = src.number(TARGET_LEN) + 1
+                ids = [src.number(TARGET_WORD) for _ in range(n)]
+                if any(w >= len(self.words) for w in ids):
+                    fail(f"target group {g} uses a word outside the vocabulary")
+                self.targets.append((" ".join(self.words[w] for w in ids), n))
+            if not src.finished():
+                fail(f"target group {g} has unexplained trailing data")
+
+    def stored_block(self, i):
+        a, b = self.block_entries[i][0], self.block_entries[i + 1][0]
+        return self.sections[9][a:b]
+
+    # section 6.1
+    def decode_block(self, i):
+        """Yields (source, options) of block i; options: (target_rank, codes, links, counts)."""
+        meta = self.meta
+        stored = self.stored_block(i)
+        if zlib.crc32(stored) != self.block_entries[i][2]:
+            fail(f"block {i} fails its checksum")
+        keys = self.sections[8]
+        first = keys[self.block_entries[i][1]:self.block_entries[i + 1][1]]
+        n = min(meta["sources_per_block"], meta["sources"] - i * meta["sources_per_block"])
+        src = self.source(stored, f"block {i}")
+        sources, counts_of = [first], []
+        for r in range(n):
+            if r > 0:
+                prev = sources[-1]
+                lcp = src.number(KEY_LCP)
+                length = src.number(KEY_LEN)
+                if lcp > len(prev):
+                    fail(f"block {i} has a key sharing more than its predecessor")
+                key = prev[:lcp] + bytes(src.byte(KEY_BYTE) for _ in range(length))
+                if key <= prev:
+                    fail(f"block {i}'s keys are out of order")
+                sources.append(key)
+            counts_of.append(src.number(OPTION_COUNT) + 1)
+        out = []
+        for r in range(n):
+            options, previous = [], None
+            m = counts_of[r]
+            for j in range(m):
+                ref = src.number(TARGET_REF + min(j, 3))
+                codes = []
+                for c, (width, _) in enumerate(self.codecs):
+                    if width == 1:
+                        ctx = 16 + min(m, 8) - 1 if j == 0 else previous[c] >> 4
+                        codes.append(src.byte(SCORE + c * SCORE_CONTEXTS + ctx))
+                    else:
+                        raw = bytes(src.byte(WIDE_SCORE) for _ in range(width))
+                        codes.append(int.from_bytes(raw, "little"))
+                links = []
+                if meta["alignment"]:
+                    for _ in range(src.number(LINK_COUNT)):
+                        links.append((src.number(LINK_INDEX), src.number(LINK_INDEX)))
+                cts = [src.number(COUNT) for _ in meta["counts"]]
+                previous = codes
+                options.append((ref, codes, links, cts))
+            try:
+                out.append((sources[r].decode("utf-8"), options))
+            except UnicodeDecodeError:
+                fail(f"a source phrase in block {i} is not UTF-8")
+        if not src.finished():
+            fail(f"block {i} has unexplained trailing data")
+        return out
+
+    def value(self, c, code):
+        width, values = self.codecs[c]
+        if values is None:
+            return struct.unpack("<f", struct.pack("<I", code))[0]
+        if code >= len(values):
+            fail("a score code is outside its codebook")
+        return values[code]
+
+    # section 8
+    def dump(self, given, out):
+        meta = self.meta
         for key, value in meta["table_metadata"]:
             out.write(f"# {key}={value}\n".encode("utf-8"))
         columns = ["source", "target"]
@@ -549,17 +571,23 @@ class Table:
         out.write(("\t".join(columns) + "\n").encode("utf-8"))
         by = meta["option_order"].get("by")
         order_column = meta["scores"].index(by) if by is not None else None
-        pairs = 0
-        for i, raw in enumerate(self.raw_blocks()):
-            for rank, options in enumerate(self.decode_block(raw, i)):
-                source = sources[i * meta["sources_per_block"] + rank]
+        pairs, sources, last = 0, [], None
+        for i in range(self.blocks):
+            for source, options in self.decode_block(i):
+                if last is not None and source.encode("utf-8") <= last:
+                    fail(f"block {i}'s first key is out of order")
+                last = source.encode("utf-8")
+                sources.append(source)
                 source_len = source.count(" ") + 1
                 previous = None
-                for target_ref, scores, links, counts in options:
-                    target, target_len = self.targets[target_ref]
+                for ref, codes, links, counts in options:
+                    if ref >= len(self.targets):
+                        fail(f"block {i} refers to target {ref} of {len(self.targets)}")
+                    target, target_len = self.targets[ref]
+                    scores = [self.value(c, code) for c, code in enumerate(codes)]
                     if any(s >= source_len or t >= target_len for s, t in links):
                         fail(f"the pair ({source!r}, {target!r}) has a link outside its phrases")
-                    if order_column is not None:  # section 8: non-increasing decoded values
+                    if order_column is not None:
                         if previous is not None and scores[order_column] > previous:
                             fail(f"the options of {source!r} are not in {by} order")
                         previous = scores[order_column]
@@ -570,8 +598,11 @@ class Table:
                     fields += [str(c) for c in counts]
                     out.write(("\t".join(fields) + "\n").encode("utf-8"))
                     pairs += 1
-        if pairs != meta["pairs"]:
-            fail(f"{pairs} pairs decoded, the metadata says {meta['pairs']}")
+        if pairs != meta["pairs"] or len(sources) != meta["sources"]:
+            fail(f"{pairs} pairs of {len(sources)} sources decoded, the metadata says "
+                 f"{meta['pairs']} of {meta['sources']}")
+        if given is not None and given != sources:
+            fail("the decoded source phrases differ from the given ones")
 
 
 def sources_from_tsv(path):
@@ -604,24 +635,22 @@ def sources_from_list(path):
 def main(argv):
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("table")
-    given = parser.add_mutually_exclusive_group(required=True)
-    given.add_argument("--sources", help="the source phrases in byte order, one per line "
-                       "(`-`: standard input)")
-    given.add_argument("--sources-from-tsv", help="the interchange TSV that was packed")
+    given = parser.add_mutually_exclusive_group()
+    given.add_argument("--sources", help="cross-check: the source phrases in byte order, one "
+                       "per line (`-`: standard input)")
+    given.add_argument("--sources-from-tsv", help="cross-check: the interchange TSV packed")
     parser.add_argument("-o", "--output", default="-", help="TSV output (default: stdout)")
-    parser.add_argument("--zstd", default="zstd", help="the zstd command-line program")
     parser.add_argument("--extract-block", nargs=2, metavar=("N", "PATH"),
                         help="also write stored block N (as it is in the file) to PATH")
-    parser.add_argument("--dictionary-out", metavar="PATH",
-                        help="also write the dictionary section to PATH, if the file has one")
     args = parser.parse_args(argv)
     try:
         with open(args.table, "rb") as f:
             data = f.read()
-        table = Table(data, args.zstd)
+        table = Table(data)
+        sources = None
         if args.sources is not None:
             sources = sources_from_list(args.sources)
-        else:
+        elif args.sources_from_tsv is not None:
             sources = sources_from_tsv(args.sources_from_tsv)
         if args.extract_block:
             n = int(args.extract_block[0])
@@ -629,9 +658,6 @@ def main(argv):
                 fail(f"block {n} is outside the {table.blocks} blocks")
             with open(args.extract_block[1], "wb") as f:
                 f.write(table.stored_block(n))
-        if args.dictionary_out and table.dictionary is not None:
-            with open(args.dictionary_out, "wb") as f:
-                f.write(table.dictionary)
         if args.output == "-":
             table.dump(sources, sys.stdout.buffer)
             sys.stdout.buffer.flush()

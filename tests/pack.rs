@@ -220,7 +220,6 @@ fn sample_file() -> (tempfile::TempDir, std::path::PathBuf, Vec<u8>) {
     let path = dir.path().join("sample.bale");
     let options = PackOptions {
         sources_per_block: 3,
-        dictionary_bytes: 0,
         ..Default::default()
     };
     pack_tsv(table.tsv().as_bytes(), "t.tsv", &path, &options).unwrap();

@@ -483,7 +483,7 @@ fn defect_15_recipes_are_documented_and_self_contained() {
         "[[filter]]",
         "significance",
         "relative_entropy",
-        "zstd_level",
+        "block_sources",
         "[output]",
     ] {
         assert!(doc.contains(key), "docs/recipe.md lacks {key}");
@@ -522,13 +522,13 @@ fn recipe_pack_values_are_checked_by_the_registry_before_work() {
         dir.path(),
         "r.toml",
         "[corpus]\nsource = \"a.en\"\ntarget = \"a.es\"\nalignment = \"a.align\"\n\
-         [pack]\nzstd_level = 99\n[output]\ntable = \"t.bale\"\n",
+         [pack]\nblock_sources = 0\n[output]\ntable = \"t.bale\"\n",
     );
     let out = baler(&["build", s(&recipe), "--quiet"], None);
     assert_eq!(out.status.code(), Some(2));
     let err = stderr(&out);
     assert!(err.contains("r.toml:6:"), "{err}");
-    assert!(err.contains("zstd_level"), "{err}");
+    assert!(err.contains("block_sources"), "{err}");
 }
 
 /// Peak resident memory of a run in KiB, from `/usr/bin/time -f %M` (GNU time).

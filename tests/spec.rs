@@ -126,10 +126,10 @@ fn section(file: &[u8], kind: u32) -> Option<(usize, usize)> {
         .map(|(_, offset, length)| (offset, length))
 }
 
-/// Number of option blocks, from the block index's length (bale-format.md, section 5.6).
+/// Number of source blocks, from the block index's length (bale-format.md, section 5.5).
 fn block_count(table: &Path) -> usize {
     let file = std::fs::read(table).unwrap();
-    section(&file, 6).expect("a block index").1 / 8 - 1
+    section(&file, 7).expect("a block index").1 / 16 - 1
 }
 
 /// A deterministic generated table of `sources` source phrases with 1..=5 options each, word
@@ -191,23 +191,23 @@ fn reference_reader_equals_dump_on_every_layout() {
     if !require("python3", "reference_reader_equals_dump_on_every_layout") {
         return;
     }
-    let has_zstd = require("zstd", "the zstd layouts of this test");
     let dir = tempfile::tempdir().unwrap();
     let input = fixture();
-    // (pack options, blocks expected of the 10 sources, zstd blocks)
+    // (pack options, blocks expected of the 10 sources)
     let layouts = [
-        ("--compression none", 1, false),
-        ("--compression none --bits f32", 1, false),
-        ("--compression none --bits 12 --block-sources 2", 5, false),
-        ("--compression none --bits 3 --block-sources 3", 4, false),
-        ("", 1, true),
-        ("--bits f32 --block-sources 2", 5, true),
-        ("--bits 1 --block-sources 1", 10, true),
+        ("--compression none", 1),
+        ("--compression none --bits f32", 1),
+        (
+            "--compression none --bits 12 --block-sources 2 --group-targets 3",
+            5,
+        ),
+        ("--compression none --bits 3 --block-sources 3", 4),
+        ("", 1),
+        ("--bits f32 --block-sources 2 --group-targets 1", 5),
+        ("--bits 1 --block-sources 1 --group-targets 2", 10),
+        ("--bits 12 --block-sources 4", 3),
     ];
-    for (k, (options, blocks, zstd)) in layouts.into_iter().enumerate() {
-        if zstd && !has_zstd {
-            continue;
-        }
+    for (k, (options, blocks)) in layouts.into_iter().enumerate() {
         let options: Vec<&str> = options.split_whitespace().collect();
         let table = dir.path().join(format!("layout{k}.bale"));
         pack(&input, &table, &options);
@@ -246,135 +246,39 @@ fn reference_reader_equals_dump_on_every_layout() {
     }
 }
 
+/// A larger generated table (alignments, counts, 16-bit and f32 codes, many blocks and target
+/// groups) through the rANS coder: the reference reader's independent decoder agrees.
 #[test]
-fn reference_reader_equals_dump_with_a_trained_dictionary() {
-    let test = "reference_reader_equals_dump_with_a_trained_dictionary";
-    if !require("python3", test) || !require("zstd", test) {
+fn reference_reader_equals_dump_on_coded_blocks_and_groups() {
+    let test = "reference_reader_equals_dump_on_coded_blocks_and_groups";
+    if !require("python3", test) {
         return;
     }
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("generated.tsv");
     std::fs::write(&input, generated_table(600)).unwrap();
     for options in [
-        &["--block-sources", "2", "--dictionary-size", "1K"][..],
+        &["--block-sources", "2", "--group-targets", "5"][..],
+        &["--block-sources", "64", "--bits", "16"][..],
         &[
             "--block-sources",
-            "5",
-            "--dictionary-size",
-            "2K",
+            "7",
             "--bits",
-            "16",
+            "f32",
+            "--group-targets",
+            "64",
         ][..],
     ] {
         let table = dir.path().join("generated.bale");
         pack(&input, &table, options);
-        let dictionary = dir.path().join("dictionary");
-        let _ = std::fs::remove_file(&dictionary);
-        run(reference(&table, &input)
-            .arg("--dictionary-out")
-            .arg(&dictionary)
-            .arg("-o")
-            .arg(dir.path().join("reference.tsv")));
-        let bytes = std::fs::read(&dictionary).unwrap_or_else(|_| {
-            panic!("{options:?}: the packer trained no dictionary, so this test checks none")
-        });
-        // A zstd dictionary starts with the magic number 0xEC30A437, little-endian
-        // (RFC 8878, section 5).
-        assert_eq!(bytes[..4], [0x37, 0xA4, 0x30, 0xEC], "{options:?}");
+        let file = std::fs::read(&table).unwrap();
+        assert!(
+            section(&file, 4).is_some(),
+            "{options:?}: rANS models present"
+        );
         let text = assert_same_dump(&table, &input, &format!("pack {options:?}"));
         assert!(text.lines().count() > 600 + 3, "{options:?}");
     }
-}
-
-/// RFC 8878: a stored block is a standard zstd frame; the reference CLI decompresses it, with
-/// the file's dictionary, into the raw block that `--compression none` stores.
-#[test]
-fn zstd_cli_decompresses_stored_blocks() {
-    let test = "zstd_cli_decompresses_stored_blocks";
-    if !require("python3", test) || !require("zstd", test) {
-        return;
-    }
-    let dir = tempfile::tempdir().unwrap();
-    let input = dir.path().join("generated.tsv");
-    std::fs::write(&input, generated_table(400)).unwrap();
-    let compressed = dir.path().join("zstd.bale");
-    let raw = dir.path().join("raw.bale");
-    let common = ["--block-sources", "2", "--bits", "6"];
-    pack(
-        &input,
-        &compressed,
-        &[&common[..], &["--dictionary-size", "1K"]].concat(),
-    );
-    pack(
-        &input,
-        &raw,
-        &[&common[..], &["--compression", "none"]].concat(),
-    );
-    let dictionary = dir.path().join("dictionary");
-    for block in ["0", "117", "199"] {
-        let frame = dir.path().join(format!("block{block}.zst"));
-        let expected = dir.path().join(format!("block{block}.raw"));
-        run(reference(&compressed, &input)
-            .args(["--extract-block", block])
-            .arg(&frame)
-            .arg("--dictionary-out")
-            .arg(&dictionary)
-            .arg("-o")
-            .arg(dir.path().join("a.tsv")));
-        run(reference(&raw, &input)
-            .args(["--extract-block", block])
-            .arg(&expected)
-            .arg("-o")
-            .arg(dir.path().join("b.tsv")));
-        assert!(dictionary.exists(), "the packer trained no dictionary");
-        let decompressed = dir.path().join(format!("block{block}.out"));
-        run(Command::new("zstd")
-            .args(["-d", "-q", "-f", "-D"])
-            .arg(&dictionary)
-            .arg(&frame)
-            .arg("-o")
-            .arg(&decompressed));
-        let want = std::fs::read(&expected).unwrap();
-        assert!(!want.is_empty());
-        assert_eq!(
-            std::fs::read(&decompressed).unwrap(),
-            want,
-            "block {block} decompressed by the zstd CLI differs from the raw block"
-        );
-        // Without the dictionary the frame cannot be decoded: it really depends on it.
-        let without = Command::new("zstd")
-            .args(["-d", "-q", "-f", "-c"])
-            .arg(&frame)
-            .output()
-            .unwrap();
-        assert!(
-            !without.status.success(),
-            "block {block} decoded without its dictionary"
-        );
-    }
-
-    // A table too small to train a dictionary: its one frame decompresses on its own.
-    let small = dir.path().join("small.bale");
-    let small_raw = dir.path().join("small-raw.bale");
-    pack(&fixture(), &small, &[]);
-    pack(&fixture(), &small_raw, &["--compression", "none"]);
-    let frame = dir.path().join("small.zst");
-    let expected = dir.path().join("small.raw");
-    let dictionary = dir.path().join("small-dictionary");
-    run(reference(&small, &fixture())
-        .args(["--extract-block", "0"])
-        .arg(&frame)
-        .arg("--dictionary-out")
-        .arg(&dictionary));
-    run(reference(&small_raw, &fixture())
-        .args(["--extract-block", "0"])
-        .arg(&expected));
-    assert!(
-        !dictionary.exists(),
-        "a dictionary was trained on one block"
-    );
-    let out = run(Command::new("zstd").args(["-d", "-q", "-c"]).arg(&frame));
-    assert_eq!(out, std::fs::read(&expected).unwrap());
 }
 
 #[test]
@@ -427,7 +331,7 @@ fn reference_reader_takes_a_source_list_in_byte_order() {
     assert!(out.status.success());
     assert_eq!(out.stdout, expected);
 
-    // Out of order, or one short, the list is refused rather than misattributed.
+    // Out of order, or one short, the list fails the cross-check against the decoded keys.
     let mut shuffled: Vec<&str> = sources.iter().copied().collect();
     shuffled.swap(10, 11);
     std::fs::write(&list, shuffled.join("\n") + "\n").unwrap();
@@ -438,7 +342,7 @@ fn reference_reader_takes_a_source_list_in_byte_order() {
             .arg("--sources")
             .arg(&list),
     );
-    assert!(String::from_utf8_lossy(&out.stderr).contains("byte order"));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("differ from the given ones"));
     std::fs::write(&list, shuffled[1..].join("\n") + "\n").unwrap();
     fails(
         Command::new("python3")
@@ -456,30 +360,30 @@ fn reference_reader_verifies_every_checksum() {
     }
     let dir = tempfile::tempdir().unwrap();
     let table = dir.path().join("t.bale");
-    pack(&fixture(), &table, &["--compression", "none"]);
+    pack(&fixture(), &table, &[]);
     let good = std::fs::read(&table).unwrap();
-    // One flipped bit in the middle of each section, then in the section table.
+    // One flipped bit in the middle of each section, then in the section table. The two large
+    // sections are checked block by block and group by group (bale-format.md, section 6).
     let names = [
-        (1, "metadata"),
-        (2, "codebooks"),
-        (3, "vocabulary"),
-        (4, "targets"),
-        (5, "source-index"),
-        (6, "block-index"),
-        (7, "options"),
+        (1, "the metadata section fails its checksum"),
+        (2, "the codebooks section fails its checksum"),
+        (3, "the vocabulary section fails its checksum"),
+        (4, "the models section fails its checksum"),
+        (5, "the target-index section fails its checksum"),
+        (6, "target group 0 fails its checksum"),
+        (7, "the block-index section fails its checksum"),
+        (8, "the block-keys section fails its checksum"),
+        (9, "block 0 fails its checksum"),
     ];
     let damaged = dir.path().join("damaged.bale");
-    for (kind, name) in names {
+    for (kind, message) in names {
         let (offset, length) = section(&good, kind).expect("section present");
         let mut bad = good.clone();
         bad[offset + length / 2] ^= 0x10;
         std::fs::write(&damaged, &bad).unwrap();
         let out = fails(&mut reference(&damaged, &fixture()));
         let stderr = String::from_utf8_lossy(&out.stderr);
-        assert!(
-            stderr.contains(&format!("the {name} section fails its checksum")),
-            "{name}: {stderr}"
-        );
+        assert!(stderr.contains(message), "{message}: {stderr}");
     }
     let mut bad = good.clone();
     bad[24 + 8] ^= 0x01; // the first entry's offset
@@ -488,22 +392,43 @@ fn reference_reader_verifies_every_checksum() {
     assert!(String::from_utf8_lossy(&out.stderr).contains("section table fail their checksum"));
 }
 
-/// The frozen files of format 1.0 (`tests/data/spec/compat/1.0/README.md`) still read the same,
+/// The frozen files of format 1.0 (`tests/data/spec/compat/1.0/README.md`) are refused with a
+/// message that says how to repack them (format 2.0 keeps no 1.0 reader).
+#[test]
+fn compatibility_files_of_format_1_0_are_refused_with_how_to_repack() {
+    let dir = manifest_path("tests/data/spec/compat/1.0");
+    for name in [
+        "harbour-8bit-zstd",
+        "harbour-f32-none",
+        "generated-4bit-dictionary",
+    ] {
+        let table = dir.join(format!("{name}.bale"));
+        let out = Command::new(env!("CARGO_BIN_EXE_baler"))
+            .arg("dump")
+            .arg(&table)
+            .output()
+            .unwrap();
+        assert!(!out.status.success(), "{name}");
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            stderr.contains("packed format 1.0") && stderr.contains("repack"),
+            "{name}: {stderr}"
+        );
+    }
+}
+
+/// The frozen files of format 2.0 (`tests/data/spec/compat/2.0/README.md`) still read the same,
 /// with baler's reader and with the reference reader.
 #[test]
-fn compatibility_files_of_format_1_0_still_read() {
-    let dir = manifest_path("tests/data/spec/compat/1.0");
+fn compatibility_files_of_format_2_0_still_read() {
+    let dir = manifest_path("tests/data/spec/compat/2.0");
     let cases = [
-        ("harbour-8bit-zstd", "harbour.tsv", true),
-        ("harbour-f32-none", "harbour.tsv", false),
-        ("generated-4bit-dictionary", "generated.tsv", true),
+        ("harbour-8bit-rans", "harbour.tsv"),
+        ("harbour-f32-none", "harbour.tsv"),
+        ("generated-16bit-rans", "generated.tsv"),
     ];
     let python = require("python3", "the reference-reader part of this test");
-    let zstd = require(
-        "zstd",
-        "the zstd files of this test's reference-reader part",
-    );
-    for (name, input, compressed) in cases {
+    for (name, input) in cases {
         let table = dir.join(format!("{name}.bale"));
         let expected = std::fs::read(dir.join(format!("{name}.dump.tsv"))).unwrap();
         assert!(!expected.is_empty());
@@ -514,7 +439,7 @@ fn compatibility_files_of_format_1_0_still_read() {
         run(Command::new(env!("CARGO_BIN_EXE_baler"))
             .args(["inspect", "--verify"])
             .arg(&table));
-        if python && (zstd || !compressed) {
+        if python {
             let got = run(&mut reference(&table, &dir.join(input)));
             assert!(
                 got == expected,

@@ -70,7 +70,7 @@ fn fixture() -> &'static Fixture {
             .arg(workspace().join("demo-data/toolshed.tsv"))
             .arg("-o")
             .arg(&table)
-            .args(["--bits", "8", "--compression", "zstd"])
+            .args(["--bits", "8", "--compression", "rans"])
             .output()
             .unwrap();
         assert!(packed.status.success(), "{packed:?}");

@@ -33,8 +33,8 @@ fn check_resource(key: &str, text: &str) -> baler::Result<()> {
     Resources::default().set(key, text)
 }
 
-/// The packing flags (`--bits`, `--block-sources`, `--compression`, `--zstd-level`,
-/// `--dictionary-size`): only those given are set.
+/// The packing flags (`--bits`, `--block-sources`, `--group-targets`,
+/// `--compression`): only those given are set.
 #[derive(Clone, Debug, Default)]
 pub struct PackFlags(pub PackSettings);
 

@@ -120,8 +120,8 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     .unwrap();
     writeln!(
         out,
-        "blocks     {} sources each, {}",
-        m.sources_per_block, m.block_compression
+        "blocks     {} sources each, {} targets per group, coding {}",
+        m.sources_per_block, m.targets_per_group, m.block_compression
     )
     .unwrap();
     writeln!(out).unwrap();
@@ -142,6 +142,28 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             per_pair(s.length)
         )
         .unwrap();
+    }
+    if !m.components.is_empty() {
+        // Coded bytes of each component inside the blocks and target groups, as measured by
+        // the writer; the index sections above are the rest.
+        writeln!(out).unwrap();
+        writeln!(
+            out,
+            "{:<26} {:>14} {:>8} {:>12}",
+            "component", "bytes", "share", "bytes/pair"
+        )
+        .unwrap();
+        for (name, bytes) in &m.components {
+            writeln!(
+                out,
+                "{:<26} {:>14} {:>7.2}% {:>12.3}",
+                name,
+                bytes,
+                100.0 * *bytes as f64 / total.max(1) as f64,
+                per_pair(*bytes)
+            )
+            .unwrap();
+        }
     }
     if !m.quantization.is_empty() {
         writeln!(out).unwrap();

@@ -11,8 +11,8 @@ use baler::Error;
 /// Arguments of `baler sweep`.
 #[derive(clap::Args)]
 #[command(after_help = "NAME is a prune filter (significance, top-k, min, max, \
-    relative-entropy, keep-test-phrases) or a packing setting (bits, block-sources, compression, zstd-level, \
-    dictionary-size; `baler pack --help` describes them). Several --vary make a grid; filters run in the order of the --vary flags. \
+    relative-entropy, keep-test-phrases) or a packing setting (bits, block-sources, group-targets, \
+    compression; `baler pack --help` describes them). Several --vary make a grid; filters run in the order of the --vary flags. \
     Writes DIR/setting-NN.bale for each setting, DIR/sweep.csv and DIR/sweep.svg.")]
 pub struct Args {
     /// The unpruned table: TSV (any order) or packed .bale.

@@ -5,7 +5,10 @@
 //! form. In short: a 24-byte file header, a section table of 32-byte entries, then the sections,
 //! each starting on an 8-byte boundary. All integers are little-endian.
 
+pub mod block;
+pub mod coder;
 pub mod lm;
+pub mod sections;
 mod varint;
 
 pub use varint::{read_varint, write_varint, VarintReader};
@@ -16,7 +19,7 @@ use byteorder::{ByteOrder, LittleEndian as LE};
 pub const MAGIC: [u8; 8] = *b"BALER\r\n\x1a";
 
 /// Major format version: readers refuse files with another major version.
-pub const VERSION_MAJOR: u16 = 1;
+pub const VERSION_MAJOR: u16 = 2;
 
 /// Minor format version: additions that older readers of the same major version may ignore.
 pub const VERSION_MINOR: u16 = 0;
@@ -44,13 +47,14 @@ pub mod score_mode {
     pub const CODEBOOK: u8 = 1;
 }
 
-/// Block compression modes (recorded in the metadata as text, see [`Compression::name`]).
+/// How blocks and target groups are coded (recorded in the metadata as text, see
+/// [`Compression::name`]).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Compression {
-    /// Blocks are stored raw.
+    /// Plain: bytes as they are, numbers as varints (the fast profile).
     None,
-    /// Every block is one zstd frame (RFC 8878), with the dictionary section if present.
-    Zstd,
+    /// Static-model rANS with the models section (the compact profile, the default).
+    Rans,
 }
 
 impl Compression {
@@ -58,7 +62,7 @@ impl Compression {
     pub fn name(self) -> &'static str {
         match self {
             Compression::None => "none",
-            Compression::Zstd => "zstd",
+            Compression::Rans => "rans",
         }
     }
 
@@ -66,7 +70,7 @@ impl Compression {
     pub fn from_name(name: &str) -> Option<Compression> {
         match name {
             "none" => Some(Compression::None),
-            "zstd" => Some(Compression::Zstd),
+            "rans" => Some(Compression::Rans),
             _ => None,
         }
     }
@@ -80,31 +84,34 @@ pub enum SectionKind {
     Metadata = 1,
     /// Per-score storage mode and codebook values.
     Codebooks = 2,
-    /// Target vocabulary: word strings by token id.
+    /// Target vocabulary: word strings by id.
     Vocabulary = 3,
-    /// Deduplicated target phrases as token ids, referenced by byte offset.
-    Targets = 4,
-    /// `fst` map from source phrase bytes to source ordinal.
-    SourceIndex = 5,
-    /// Offsets of the option blocks.
-    BlockIndex = 6,
-    /// The option blocks.
-    Options = 7,
-    /// zstd dictionary shared by all blocks (optional).
-    Dictionary = 8,
+    /// rANS frequency tables (only with `rans` coding).
+    Models = 4,
+    /// Offset and checksum of every target group.
+    TargetIndex = 5,
+    /// Target groups: distinct targets, most used first, as coded word ids.
+    Targets = 6,
+    /// Offset, first-key position and checksum of every source block.
+    BlockIndex = 7,
+    /// The first source phrase of every block, for the binary search.
+    BlockKeys = 8,
+    /// Source blocks: front-coded sources with their options, coded.
+    Blocks = 9,
 }
 
 impl SectionKind {
     /// Every kind, in the order the writer lays them out.
-    pub const ALL: [SectionKind; 8] = [
+    pub const ALL: [SectionKind; 9] = [
         SectionKind::Metadata,
         SectionKind::Codebooks,
-        SectionKind::Dictionary,
+        SectionKind::Models,
         SectionKind::Vocabulary,
-        SectionKind::Targets,
         SectionKind::BlockIndex,
-        SectionKind::SourceIndex,
-        SectionKind::Options,
+        SectionKind::BlockKeys,
+        SectionKind::TargetIndex,
+        SectionKind::Targets,
+        SectionKind::Blocks,
     ];
 
     /// Looks a kind up by id.
@@ -118,26 +125,24 @@ impl SectionKind {
             SectionKind::Metadata => "metadata",
             SectionKind::Codebooks => "codebooks",
             SectionKind::Vocabulary => "vocabulary",
+            SectionKind::Models => "models",
+            SectionKind::TargetIndex => "target-index",
             SectionKind::Targets => "targets",
-            SectionKind::SourceIndex => "source-index",
             SectionKind::BlockIndex => "block-index",
-            SectionKind::Options => "options",
-            SectionKind::Dictionary => "dictionary",
+            SectionKind::BlockKeys => "block-keys",
+            SectionKind::Blocks => "blocks",
         }
     }
 
-    /// Whether [`crate::Table::open`] checks this section's checksum (it is small, independent
-    /// of the number of pairs); the others are checked by `verify`.
+    /// Whether [`crate::Table::open`] checks this section's checksum (every section but the two
+    /// large ones, whose blocks and groups carry their own checksums, checked on first decode).
     pub fn checked_at_open(self) -> bool {
-        matches!(
-            self,
-            SectionKind::Metadata | SectionKind::Codebooks | SectionKind::Dictionary
-        )
+        !matches!(self, SectionKind::Targets | SectionKind::Blocks)
     }
 
     /// Whether every valid file has this section.
     pub fn required(self) -> bool {
-        !matches!(self, SectionKind::Dictionary)
+        !matches!(self, SectionKind::Models)
     }
 }
 
@@ -272,12 +277,18 @@ pub struct Meta {
     pub alignment: bool,
     /// How the options of a source are ordered.
     pub option_order: OptionOrder,
-    /// Sources per option block (the last block may hold fewer).
+    /// Sources per block (the last block may hold fewer).
     pub sources_per_block: u32,
-    /// "zstd" or "none".
+    /// Targets per target group (the last group may hold fewer).
+    pub targets_per_group: u32,
+    /// Coding of blocks and target groups: "rans" or "none".
     pub block_compression: String,
-    /// Upper bound on the decompressed size of any block.
+    /// Upper bound on the stored size of any block or target group.
     pub max_block_bytes: u64,
+    /// Coded bytes by component (keys, targets, target-refs, each score column, ...), as the
+    /// writer measured them; for `baler inspect`.
+    #[serde(default)]
+    pub components: Vec<(String, u64)>,
     /// The `# key=value` lines of the input, in order.
     pub table_metadata: Vec<(String, String)>,
     /// How the file was made: tool version, input, options.

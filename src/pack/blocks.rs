@@ -1,18 +1,14 @@
-//! Option blocks: the columnar record layout of one block, and their compression.
-//!
-//! A raw block holds, for the sources it covers in ordinal order: one varint option count per
-//! source; then per score column the codes of every option (fixed width); then one varint
-//! target reference (byte offset of the target's record in the target data) per option; then (if stored) per option a varint link count and varint `i`, `j` per
-//! link; then (if stored) per count column one varint per option.
+//! Pack's steps for source blocks: collecting a block's records, and coding the plain blocks
+//! of pass 2 into the final blocks section (layouts in [`crate::format::block`]).
 
 use std::fs::File;
 use std::io::{BufReader, BufWriter, Read, Write};
 use std::path::Path;
 
 use crate::error::{Error, Result};
-use crate::format::{self, write_varint, Compression};
-
-use super::PackOptions;
+use crate::format::block::{BlockRecords, BlockShape, ModelIds, COMPONENTS};
+use crate::format::coder::{Models, PlainSink, PlainSource, RansSink, SymbolSink};
+use crate::format::sections::push_block_entry;
 
 /// One option as the packer holds it before encoding.
 #[derive(Default)]
@@ -26,150 +22,165 @@ pub(super) struct PackedOption {
     pub counts: Vec<u64>,
 }
 
-/// Accumulates the columns of one block.
-pub(super) struct BlockBuilder {
-    widths: Vec<usize>,
-    alignment: bool,
-    sources: u32,
-    option_counts: Vec<u8>,
-    scores: Vec<Vec<u8>>,
-    target_refs: Vec<u8>,
-    links: Vec<u8>,
-    counts: Vec<Vec<u8>>,
+/// Appends one source with its (ordered) options to `block`.
+pub(super) fn push_source(
+    block: &mut BlockRecords,
+    shape: &BlockShape,
+    key: &[u8],
+    options: &[PackedOption],
+) {
+    block.key_bytes.extend_from_slice(key);
+    block.key_ends.push(block.key_bytes.len() as u32);
+    for o in options {
+        block.targets.push(o.target_ref as u32);
+        for (c, &code) in o.codes.iter().enumerate() {
+            match shape.widths[c] {
+                1 => block.codes.push(code as u8),
+                2 => block.codes.extend_from_slice(&(code as u16).to_le_bytes()),
+                _ => block.codes.extend_from_slice(&code.to_le_bytes()),
+            }
+        }
+        if shape.alignment {
+            block.links.extend_from_slice(&o.alignment);
+            block.link_ends.push(block.links.len() as u32);
+        }
+        block.counts.extend_from_slice(&o.counts);
+    }
+    let prev = block.option_ends.last().copied().unwrap_or(0);
+    block.option_ends.push(prev + options.len() as u32);
 }
 
-impl BlockBuilder {
-    pub fn new(modes: &[(u8, u8)], alignment: bool, n_counts: usize) -> BlockBuilder {
-        BlockBuilder {
-            widths: modes
-                .iter()
-                .map(|&(m, b)| format::score_width(m, b))
-                .collect(),
-            alignment,
-            sources: 0,
-            option_counts: Vec::new(),
-            scores: vec![Vec::new(); modes.len()],
-            target_refs: Vec::new(),
-            links: Vec::new(),
-            counts: vec![Vec::new(); n_counts],
-        }
-    }
+/// Sums the coded size of symbols per component (bits).
+pub(super) struct CostSink<'a> {
+    pub ids: ModelIds,
+    pub models: Option<&'a Models>,
+    /// Bits per component: [`COMPONENTS`], then one per score column.
+    pub bits: Vec<f64>,
+}
 
-    pub fn sources(&self) -> u32 {
-        self.sources
-    }
-
-    pub fn add_source(&mut self, options: &[PackedOption]) {
-        self.sources += 1;
-        write_varint(&mut self.option_counts, options.len() as u64);
-        for o in options {
-            for (c, &code) in o.codes.iter().enumerate() {
-                let col = &mut self.scores[c];
-                match self.widths[c] {
-                    1 => col.push(code as u8),
-                    2 => col.extend_from_slice(&(code as u16).to_le_bytes()),
-                    _ => col.extend_from_slice(&code.to_le_bytes()),
-                }
-            }
-            write_varint(&mut self.target_refs, o.target_ref);
-            if self.alignment {
-                write_varint(&mut self.links, o.alignment.len() as u64);
-                for &(i, j) in &o.alignment {
-                    write_varint(&mut self.links, u64::from(i));
-                    write_varint(&mut self.links, u64::from(j));
-                }
-            }
-            for (c, &n) in o.counts.iter().enumerate() {
-                write_varint(&mut self.counts[c], n);
-            }
+impl<'a> CostSink<'a> {
+    pub fn new(ids: ModelIds, models: Option<&'a Models>, scores: usize) -> CostSink<'a> {
+        CostSink {
+            ids,
+            models,
+            bits: vec![0.0; COMPONENTS.len() + scores],
         }
-    }
-
-    /// The raw block; the builder is empty afterwards.
-    pub fn finish(&mut self) -> Vec<u8> {
-        let mut out = std::mem::take(&mut self.option_counts);
-        for col in &mut self.scores {
-            out.append(col);
-        }
-        out.append(&mut self.target_refs);
-        out.append(&mut self.links);
-        for col in &mut self.counts {
-            out.append(col);
-        }
-        self.sources = 0;
-        out
     }
 }
 
-/// Compresses the length-prefixed raw blocks in `raw_path` into `out_path`, in parallel but in
-/// order; returns the `n + 1` block offsets.
-pub(super) fn compress_blocks(
+impl SymbolSink for CostSink<'_> {
+    fn byte(&mut self, model: usize, b: u8) {
+        let c = self.ids.component(model);
+        self.bits[c] += self.models.map_or(8.0, |m| m.cost_bits(model, b));
+    }
+    fn number(&mut self, model: usize, v: u64) {
+        let c = self.ids.component(model);
+        self.bits[c] += match self.models {
+            Some(m) => {
+                let (class, _, extra) = crate::format::coder::number_class(v);
+                m.cost_bits(model, class) + f64::from(extra)
+            }
+            None => {
+                let mut buf = Vec::new();
+                crate::format::write_varint(&mut buf, v);
+                8.0 * buf.len() as f64
+            }
+        };
+    }
+}
+
+/// What [`code_blocks`] wrote.
+pub(super) struct CodedBlocks {
+    pub index: Vec<u8>,
+    pub bytes: u64,
+    pub crc: u32,
+    pub max_block: usize,
+}
+
+/// Reads the length-prefixed plain blocks of pass 2 once, codes each (rANS with `models`, or
+/// as they are), writes them to `out_path` checksumming as it goes, and builds the block index.
+#[allow(clippy::too_many_arguments)]
+pub(super) fn code_blocks(
     raw_path: &Path,
-    sizes: &[u32],
+    block_sources: &[u32],
+    first_keys: &[u8],
+    key_ends: &[u32],
+    shape: &BlockShape,
+    ids: ModelIds,
+    models: Option<&Models>,
+    costs: &mut CostSink<'_>,
     out_path: &Path,
-    options: &PackOptions,
-    dictionary: Option<&[u8]>,
-) -> Result<Vec<u64>> {
+) -> Result<CodedBlocks> {
     let rerr = |e| Error::io(raw_path, "reading", e);
     let werr = |e| Error::io(out_path, "writing", e);
     let mut input = BufReader::with_capacity(1 << 20, File::open(raw_path).map_err(rerr)?);
     let mut output = BufWriter::with_capacity(1 << 20, File::create(out_path).map_err(werr)?);
-    let threads = if options.threads == 0 {
-        std::thread::available_parallelism().map_or(1, |n| n.get())
-    } else {
-        options.threads
-    };
-    let mut offsets = Vec::with_capacity(sizes.len() + 1);
-    let mut offset = 0u64;
-    offsets.push(0);
-    const CHUNK: usize = 2048;
-    for chunk in sizes.chunks(CHUNK) {
-        let mut raws = Vec::with_capacity(chunk.len());
-        for &size in chunk {
-            let mut len = [0u8; 4];
-            input.read_exact(&mut len).map_err(rerr)?;
-            debug_assert_eq!(u32::from_le_bytes(len), size);
-            let mut raw = vec![0u8; size as usize];
-            input.read_exact(&mut raw).map_err(rerr)?;
-            raws.push(raw);
-        }
-        let compressed: Vec<Vec<u8>> = match options.compression {
-            Compression::None => raws,
-            Compression::Zstd => compress_parallel(&raws, threads, options.zstd_level, dictionary)
-                .map_err(|e| Error::io(out_path, "compressing a block for", e))?,
+    let mut crc_all = crc32fast::Hasher::new();
+    let mut index = Vec::with_capacity((block_sources.len() + 1) * 16);
+    let (mut offset, mut max_block) = (0u64, 0usize);
+    let mut raw = Vec::new();
+    let mut coded = Vec::new();
+    let mut records = BlockRecords::default();
+    let mut key_start = 0u32;
+    for (b, &n) in block_sources.iter().enumerate() {
+        let mut len = [0u8; 4];
+        input.read_exact(&mut len).map_err(rerr)?;
+        raw.resize(u32::from_le_bytes(len) as usize, 0);
+        input.read_exact(&mut raw).map_err(rerr)?;
+        let first_key = &first_keys[key_start as usize..key_ends[b] as usize];
+        // The plain block was written by this process; a failure to parse it is a bug.
+        records
+            .decode(
+                first_key,
+                n as usize,
+                shape,
+                &ids,
+                u64::MAX,
+                &mut PlainSource::new(&raw),
+            )
+            .expect("pass 2's plain block parses");
+        records.encode(shape, &ids, costs);
+        let stored: &[u8] = match models {
+            Some(m) => {
+                let mut sink = RansSink::new(m);
+                records.encode(shape, &ids, &mut sink);
+                sink.finish(&mut coded);
+                &coded
+            }
+            None => &raw,
         };
-        for block in &compressed {
-            output.write_all(block).map_err(werr)?;
-            offset += block.len() as u64;
-            offsets.push(offset);
-        }
+        push_block_entry(&mut index, offset, key_start, crc32fast::hash(stored));
+        output.write_all(stored).map_err(werr)?;
+        crc_all.update(stored);
+        offset += stored.len() as u64;
+        max_block = max_block.max(stored.len());
+        key_start = key_ends[b];
     }
+    push_block_entry(&mut index, offset, key_start, 0);
     output.flush().map_err(werr)?;
-    Ok(offsets)
+    Ok(CodedBlocks {
+        index,
+        bytes: offset,
+        crc: crc_all.finalize(),
+        max_block,
+    })
 }
 
-fn compress_parallel(
-    raws: &[Vec<u8>],
-    threads: usize,
-    level: i32,
-    dictionary: Option<&[u8]>,
-) -> std::io::Result<Vec<Vec<u8>>> {
-    let per = raws.len().div_ceil(threads.max(1)).max(1);
-    std::thread::scope(|scope| {
-        let handles: Vec<_> = raws
-            .chunks(per)
-            .map(|part| {
-                scope.spawn(move || -> std::io::Result<Vec<Vec<u8>>> {
-                    let mut c =
-                        zstd::bulk::Compressor::with_dictionary(level, dictionary.unwrap_or(&[]))?;
-                    part.iter().map(|raw| c.compress(raw)).collect()
-                })
-            })
-            .collect();
-        let mut all = Vec::with_capacity(raws.len());
-        for h in handles {
-            all.extend(h.join().expect("compression thread does not panic")?);
-        }
-        Ok(all)
-    })
+/// Plain-codes a block for pass 2's temporary file (length-prefixed) and counts its symbols.
+pub(super) fn write_plain_block(
+    records: &BlockRecords,
+    shape: &BlockShape,
+    ids: &ModelIds,
+    counter: Option<&mut crate::format::coder::Counter>,
+    scratch: &mut PlainSink,
+    out: &mut impl Write,
+) -> std::io::Result<usize> {
+    scratch.out.clear();
+    records.encode(shape, ids, scratch);
+    if let Some(c) = counter {
+        records.encode(shape, ids, c);
+    }
+    out.write_all(&(scratch.out.len() as u32).to_le_bytes())?;
+    out.write_all(&scratch.out)?;
+    Ok(scratch.out.len())
 }

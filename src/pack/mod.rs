@@ -6,10 +6,11 @@
 //!    memory budget) while target phrases are counted and score samples drawn.
 //! 2. Target phrases are numbered most frequent first and their words form the vocabulary; a
 //!    k-means codebook is fitted per score column ([`crate::quantize`]).
-//! 3. The sorted stream is cut into option blocks of a fixed number of sources, keyed by an `fst`
-//!    map from source phrase to ordinal.
-//! 4. Blocks are compressed as independent zstd frames, optionally with a dictionary trained on a
-//!    sample of blocks, and all sections are written behind the section table.
+//! 3. The sorted stream is cut into blocks of a fixed number of sources (front-coded keys and
+//!    options), written plain to a temporary file while their symbols are counted.
+//! 4. The counts become the rANS models; target groups and blocks are coded with them (read back
+//!    once, checksummed as they are written), and all sections are written behind the section
+//!    table.
 //!
 //! The output goes through [`Output`], so a failed pack leaves no file behind.
 
@@ -20,16 +21,17 @@ use std::fs::File;
 use std::io::{BufRead, BufReader, BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
 
-use byteorder::{WriteBytesExt, LE};
-
 use crate::error::{Error, Result};
 use crate::files::Output;
+use crate::format::block::{encode_target, BlockRecords, BlockShape, ModelIds, COMPONENTS};
+use crate::format::coder::{Counter, Models, PlainSink, PlainSource, RansSink};
+use crate::format::sections::{encode_codebooks, encode_vocabulary, push_group_entry};
 use crate::format::{self, write_varint, Compression, Meta, SectionEntry, SectionKind};
 use crate::quantize::{Codebook, Reservoir, DEFAULT_SAMPLE_SIZE};
 use crate::sort::ExternalSorter;
 use crate::table::{Header, PhrasePair, TsvReader};
 
-use blocks::{BlockBuilder, PackedOption};
+use blocks::{CostSink, PackedOption};
 
 /// Options for packing.
 #[derive(Clone, Debug)]
@@ -38,15 +40,15 @@ pub struct PackOptions {
     pub bits: Option<u8>,
     /// Memory budget in bytes (sorting and buffers).
     pub memory: u64,
-    /// Source phrases per option block: smaller blocks make lookups faster and files larger.
+    /// Source phrases per block: smaller blocks make cold lookups faster and files larger.
     pub sources_per_block: u32,
-    /// Block compression.
+    /// Target phrases per target group: smaller groups make cold lookups faster and files
+    /// larger.
+    pub targets_per_group: u32,
+    /// Coding of blocks and target groups: [`Compression::Rans`] (compact, the default) or
+    /// [`Compression::None`] (plain varints, faster cold decoding).
     pub compression: Compression,
-    /// zstd compression level (1..=22).
-    pub zstd_level: i32,
-    /// Size of the zstd dictionary trained on sample blocks; 0 for none.
-    pub dictionary_bytes: usize,
-    /// Worker threads for compression (0: all cores).
+    /// Worker threads (0: all cores); packing is single-threaded in format 2.0.
     pub threads: usize,
     /// Show progress bars on stderr (when it is a terminal).
     pub progress: bool,
@@ -62,9 +64,8 @@ impl Default for PackOptions {
             bits: Some(DEFAULT_BITS),
             memory: 1 << 30,
             sources_per_block: DEFAULT_SOURCES_PER_BLOCK,
-            compression: Compression::Zstd,
-            zstd_level: DEFAULT_ZSTD_LEVEL,
-            dictionary_bytes: DEFAULT_DICTIONARY_BYTES,
+            targets_per_group: DEFAULT_TARGETS_PER_GROUP,
+            compression: Compression::Rans,
             threads: 0,
             progress: false,
             temp_dir: None,
@@ -77,10 +78,8 @@ impl Default for PackOptions {
 pub const DEFAULT_BITS: u8 = 8;
 /// Default sources per block.
 pub const DEFAULT_SOURCES_PER_BLOCK: u32 = 16;
-/// Default zstd level.
-pub const DEFAULT_ZSTD_LEVEL: i32 = 9;
-/// Default dictionary size.
-pub const DEFAULT_DICTIONARY_BYTES: usize = 64 << 10;
+/// Default targets per target group.
+pub const DEFAULT_TARGETS_PER_GROUP: u32 = 16;
 
 /// What a pack produced.
 #[derive(Clone, Debug)]
@@ -158,14 +157,14 @@ fn check_options(options: &PackOptions) -> Result<()> {
     }
     if options.sources_per_block == 0 || options.sources_per_block > 1 << 20 {
         return Err(Error::invalid(
-            "--block-sources",
+            "block_sources",
             "must be between 1 and 1048576",
         ));
     }
-    if !(1..=22).contains(&options.zstd_level) {
+    if options.targets_per_group == 0 || options.targets_per_group > 1 << 20 {
         return Err(Error::invalid(
-            "--zstd-level",
-            format!("{} is outside 1..22", options.zstd_level),
+            "targets_per_group",
+            "must be between 1 and 1048576",
         ));
     }
     Ok(())
@@ -301,14 +300,15 @@ where
     }
     bar.finish_and_clear();
 
-    // Targets by frequency, then vocabulary by frequency.
+    // Targets by frequency, then vocabulary by frequency; targets grouped, plain.
+    let ids = ModelIds::new(n_scores);
     let Numbered {
         vocabulary_section,
-        targets_section,
+        groups: target_groups,
         n_targets,
         n_words,
         refs: target_refs,
-    } = numbering.finish()?;
+    } = numbering.finish(TargetGroups::new(options.targets_per_group, ids))?;
 
     let codebooks: Vec<Option<Codebook>> = reservoirs
         .iter()
@@ -319,21 +319,6 @@ where
         schema
             .score_index("p_t_given_s")
             .or(if n_scores > 0 { Some(0) } else { None });
-
-    // Pass 2: group by source, build fst and raw blocks.
-    let temp = match &options.temp_dir {
-        Some(p) => tempfile::Builder::new().prefix("baler-pack-").tempdir_in(p),
-        None => tempfile::Builder::new().prefix("baler-pack-").tempdir(),
-    }
-    .map_err(|e| Error::io(std::env::temp_dir(), "creating a temporary directory in", e))?;
-    let fst_path = temp.path().join("source-index.fst");
-    let fst_file = File::create(&fst_path).map_err(|e| Error::io(&fst_path, "creating", e))?;
-    let fst_builder = fst::MapBuilder::new(BufWriter::new(fst_file))
-        .map_err(|e| Error::io(&fst_path, "writing", std::io::Error::other(e)))?;
-    let raw_path = temp.path().join("blocks.raw");
-    let raw_file = File::create(&raw_path).map_err(|e| Error::io(&raw_path, "creating", e))?;
-    let raw_out = BufWriter::new(raw_file);
-
     let widths: Vec<(u8, u8)> = codebooks
         .iter()
         .map(|c| match c {
@@ -341,15 +326,35 @@ where
             None => (format::score_mode::F32, 32),
         })
         .collect();
+    let shape = BlockShape {
+        widths: widths
+            .iter()
+            .map(|&(m, b)| format::score_width(m, b))
+            .collect(),
+        alignment: schema.alignment,
+        counts: n_counts,
+    };
+
+    // Pass 2: group by source into plain blocks, counting their symbols.
+    let temp = match &options.temp_dir {
+        Some(p) => tempfile::Builder::new().prefix("baler-pack-").tempdir_in(p),
+        None => tempfile::Builder::new().prefix("baler-pack-").tempdir(),
+    }
+    .map_err(|e| Error::io(std::env::temp_dir(), "creating a temporary directory in", e))?;
+    let raw_path = temp.path().join("blocks.plain");
+    let raw_file = File::create(&raw_path).map_err(|e| Error::io(&raw_path, "creating", e))?;
     let mut writer = SourceWriter {
-        fst_builder,
-        fst_path: &fst_path,
-        raw_out,
+        raw_out: BufWriter::with_capacity(1 << 20, raw_file),
         raw_path: &raw_path,
-        builder: BlockBuilder::new(&widths, schema.alignment, n_counts),
-        block_sizes: Vec::new(),
-        samples: BlockSample::new(options.dictionary_bytes * 32),
-        max_block: 0,
+        shape: &shape,
+        ids,
+        block: BlockRecords::default(),
+        counter: (options.compression == Compression::Rans).then(|| Counter::new(ids.count())),
+        plain: PlainSink::default(),
+        block_sources: Vec::new(),
+        first_keys: Vec::new(),
+        key_ends: Vec::new(),
+        previous_source: Vec::new(),
         sources: 0,
         order_column,
         sources_per_block: options.sources_per_block,
@@ -408,26 +413,37 @@ where
     drop(target_refs);
     let WrittenSources {
         sources,
-        block_sizes,
-        max_block,
-        samples,
+        block_sources,
+        first_keys,
+        key_ends,
+        counter,
     } = writer.finish()?;
 
-    // Dictionary and compression.
-    let dictionary = match options.compression {
-        Compression::Zstd if options.dictionary_bytes > 0 => {
-            samples.train(options.dictionary_bytes)
+    // Models from the counts of blocks and targets; then code targets and blocks.
+    let models = counter.map(|mut c| {
+        for (m, t) in c.counts.iter_mut().zip(&target_groups.counter.counts) {
+            for (x, y) in m.iter_mut().zip(t) {
+                *x += y;
+            }
         }
-        _ => None,
-    };
-    let options_path = temp.path().join("options.bin");
-    let block_offsets = blocks::compress_blocks(
+        Models::from_counts(&c.counts)
+    });
+    let mut costs = CostSink::new(ids, models.as_ref(), n_scores);
+    let (target_index, target_data, max_group) =
+        target_groups.code(models.as_ref(), n_words, &mut costs);
+    let blocks_path = temp.path().join("blocks.coded");
+    let coded = blocks::code_blocks(
         &raw_path,
-        &block_sizes,
-        &options_path,
-        options,
-        dictionary.as_deref(),
+        &block_sources,
+        &first_keys,
+        &key_ends,
+        &shape,
+        ids,
+        models.as_ref(),
+        &mut costs,
+        &blocks_path,
     )?;
+    drop(std::fs::remove_file(&raw_path));
 
     // Metadata.
     provenance.insert(
@@ -445,14 +461,11 @@ where
         "sources_per_block".into(),
         options.sources_per_block.to_string(),
     ));
+    provenance.push((
+        "targets_per_group".into(),
+        options.targets_per_group.to_string(),
+    ));
     provenance.push(("compression".into(), options.compression.name().into()));
-    if options.compression == Compression::Zstd {
-        provenance.push(("zstd_level".into(), options.zstd_level.to_string()));
-        provenance.push((
-            "dictionary_bytes".into(),
-            dictionary.as_ref().map_or(0, |d| d.len()).to_string(),
-        ));
-    }
     let quantization = schema
         .scores
         .iter()
@@ -460,6 +473,15 @@ where
         .zip(&errors)
         .map(|((column, book), err)| err.report(column, book, options.bits.unwrap_or(32)))
         .collect();
+    let mut components: Vec<(String, u64)> = Vec::new();
+    for (i, bits) in costs.bits.iter().enumerate() {
+        let name = match COMPONENTS.get(i) {
+            Some(&"-") => continue,
+            Some(n) => n.to_string(),
+            None => format!("score:{}", schema.scores[i - COMPONENTS.len()]),
+        };
+        components.push((name, (bits / 8.0).ceil() as u64));
+    }
     let meta = Meta {
         format: format::FORMAT_NAME.to_string(),
         pairs,
@@ -474,31 +496,37 @@ where
             ties: "target phrase bytes ascending".into(),
         },
         sources_per_block: options.sources_per_block,
+        targets_per_group: options.targets_per_group,
         block_compression: options.compression.name().to_string(),
-        max_block_bytes: max_block as u64,
+        max_block_bytes: coded.max_block.max(max_group) as u64,
+        components,
         table_metadata: header.metadata.entries().to_vec(),
         provenance,
         quantization,
     };
     let meta_section = serde_json::to_vec(&meta).expect("metadata serializes");
-    let codebook_section = build_codebooks(&codebooks, &widths);
-    let mut block_index = Vec::with_capacity(block_offsets.len() * 8);
-    for off in &block_offsets {
-        block_index.extend_from_slice(&off.to_le_bytes());
-    }
+    let codebook_section = encode_codebooks(&codebooks, &widths);
 
     let mut parts: Vec<(SectionKind, Part)> = vec![
         (SectionKind::Metadata, Part::Memory(meta_section)),
         (SectionKind::Codebooks, Part::Memory(codebook_section)),
     ];
-    if let Some(d) = dictionary {
-        parts.push((SectionKind::Dictionary, Part::Memory(d)));
+    if let Some(m) = &models {
+        parts.push((SectionKind::Models, Part::Memory(m.encode())));
     }
     parts.push((SectionKind::Vocabulary, Part::Memory(vocabulary_section)));
-    parts.push((SectionKind::Targets, Part::Memory(targets_section)));
-    parts.push((SectionKind::BlockIndex, Part::Memory(block_index)));
-    parts.push((SectionKind::SourceIndex, Part::File(fst_path)));
-    parts.push((SectionKind::Options, Part::File(options_path)));
+    parts.push((SectionKind::BlockIndex, Part::Memory(coded.index)));
+    parts.push((SectionKind::BlockKeys, Part::Memory(first_keys)));
+    parts.push((SectionKind::TargetIndex, Part::Memory(target_index)));
+    parts.push((SectionKind::Targets, Part::Memory(target_data)));
+    parts.push((
+        SectionKind::Blocks,
+        Part::File {
+            path: blocks_path,
+            len: coded.bytes,
+            crc: coded.crc,
+        },
+    ));
     let (sections, file_bytes) = write_file(out, &parts)?;
     Ok(PackReport {
         meta,
@@ -507,25 +535,32 @@ where
     })
 }
 
+/// A section's bytes: in memory, or in a temporary file whose length and checksum were taken
+/// while it was written (so it is read once, to be copied).
 enum Part {
     Memory(Vec<u8>),
-    File(PathBuf),
+    File { path: PathBuf, len: u64, crc: u32 },
 }
 
 impl Part {
-    fn len(&self) -> Result<u64> {
+    fn len(&self) -> u64 {
         match self {
-            Part::Memory(v) => Ok(v.len() as u64),
-            Part::File(p) => std::fs::metadata(p)
-                .map(|m| m.len())
-                .map_err(|e| Error::io(p, "reading", e)),
+            Part::Memory(v) => v.len() as u64,
+            Part::File { len, .. } => *len,
+        }
+    }
+
+    fn crc(&self) -> u32 {
+        match self {
+            Part::Memory(v) => crc32fast::hash(v),
+            Part::File { crc, .. } => *crc,
         }
     }
 
     fn for_each_chunk(&self, mut f: impl FnMut(&[u8]) -> Result<()>) -> Result<()> {
         match self {
             Part::Memory(v) => f(v),
-            Part::File(p) => {
+            Part::File { path: p, .. } => {
                 let mut file =
                     BufReader::new(File::open(p).map_err(|e| Error::io(p, "opening", e))?);
                 let mut buf = vec![0u8; 1 << 16];
@@ -548,18 +583,13 @@ fn write_file(out: &Path, parts: &[(SectionKind, Part)]) -> Result<(Vec<(Section
     let mut offset = (format::FILE_HEADER_LEN + parts.len() * format::SECTION_ENTRY_LEN) as u64;
     offset += format::padding(offset);
     for (kind, part) in parts {
-        let length = part.len()?;
-        let mut crc = crc32fast::Hasher::new();
-        part.for_each_chunk(|c| {
-            crc.update(c);
-            Ok(())
-        })?;
+        let length = part.len();
         entries.push(SectionEntry {
             kind: *kind as u32,
             flags: 0,
             offset,
             length,
-            crc32: crc.finalize(),
+            crc32: part.crc(),
         });
         offset += length + format::padding(length);
     }
@@ -609,17 +639,7 @@ fn build_vocabulary<'a>(
 ) -> (Vec<u8>, HashMap<&'a str, u32>) {
     let mut words: Vec<(&str, u64)> = freq.into_iter().collect();
     words.sort_unstable_by(|a, b| b.1.cmp(&a.1).then_with(|| a.0.cmp(b.0)));
-    let mut section = Vec::new();
-    section.extend_from_slice(&(words.len() as u64).to_le_bytes());
-    let mut offset = 0u64;
-    section.extend_from_slice(&offset.to_le_bytes());
-    for (w, _) in &words {
-        offset += w.len() as u64;
-        section.extend_from_slice(&offset.to_le_bytes());
-    }
-    for (w, _) in &words {
-        section.extend_from_slice(w.as_bytes());
-    }
+    let section = encode_vocabulary(words.iter().map(|(w, _)| *w));
     let ids = words
         .into_iter()
         .enumerate()
@@ -628,15 +648,95 @@ fn build_vocabulary<'a>(
     (section, ids)
 }
 
-/// Appends one target record (varint token count, varint word ids) to the targets section
-/// (whose first 8 bytes are the count); returns the record's reference.
-fn push_target(section: &mut Vec<u8>, target: &str, words: &HashMap<&str, u32>) -> u64 {
-    let offset = (section.len() - 8) as u64;
-    write_varint(section, target.split(' ').count() as u64);
-    for w in target.split(' ') {
-        write_varint(section, u64::from(words[w]));
+/// Distinct targets in rank order, cut into groups and plain-coded, their symbols counted.
+struct TargetGroups {
+    per: u32,
+    ids: ModelIds,
+    in_group: u32,
+    current: PlainSink,
+    plain: Vec<Vec<u8>>,
+    counter: Counter,
+    words: Vec<u32>,
+    pushed: u64,
+}
+
+impl TargetGroups {
+    fn new(per: u32, ids: ModelIds) -> TargetGroups {
+        TargetGroups {
+            per,
+            ids,
+            in_group: 0,
+            current: PlainSink::default(),
+            plain: Vec::new(),
+            counter: Counter::new(ids.count()),
+            words: Vec::new(),
+            pushed: 0,
+        }
     }
-    offset
+
+    /// Appends the next target (in rank order); returns its rank.
+    fn push(&mut self, target: &str, words: &HashMap<&str, u32>) -> u64 {
+        self.words.clear();
+        self.words.extend(target.split(' ').map(|w| words[w]));
+        encode_target(&self.words, &mut self.current);
+        encode_target(&self.words, &mut self.counter);
+        self.in_group += 1;
+        if self.in_group == self.per {
+            self.plain.push(std::mem::take(&mut self.current.out));
+            self.in_group = 0;
+        }
+        self.pushed += 1;
+        self.pushed - 1
+    }
+
+    /// Codes every group; returns the target index, the targets section and the largest group.
+    fn code(
+        mut self,
+        models: Option<&Models>,
+        vocabulary: u64,
+        costs: &mut CostSink<'_>,
+    ) -> (Vec<u8>, Vec<u8>, usize) {
+        if self.in_group > 0 {
+            self.plain.push(std::mem::take(&mut self.current.out));
+        }
+        let mut index = Vec::with_capacity(self.plain.len() * 12 + 8);
+        let mut data = Vec::new();
+        let mut coded = Vec::new();
+        let mut max = 0;
+        let n_groups = self.plain.len();
+        for (g, plain) in self.plain.iter().enumerate() {
+            let n = if g + 1 == n_groups && self.pushed % u64::from(self.per) != 0 {
+                self.pushed % u64::from(self.per)
+            } else {
+                u64::from(self.per)
+            };
+            let mut src = PlainSource::new(plain);
+            let mut rans = models.map(RansSink::new);
+            for _ in 0..n {
+                self.words.clear();
+                // The plain group was written by this process; a failure to parse it is a bug.
+                format::block::decode_target(&mut src, vocabulary, &mut self.words)
+                    .expect("pass 1's plain target parses");
+                encode_target(&self.words, costs);
+                if let Some(r) = &mut rans {
+                    encode_target(&self.words, r);
+                }
+            }
+            let stored: &[u8] = match &mut rans {
+                Some(r) => {
+                    r.finish(&mut coded);
+                    &coded
+                }
+                None => plain,
+            };
+            push_group_entry(&mut index, data.len() as u64, crc32fast::hash(stored));
+            data.extend_from_slice(stored);
+            max = max.max(stored.len());
+        }
+        index.extend_from_slice(&(data.len() as u64).to_le_bytes());
+        let _ = self.ids;
+        (index, data, max)
+    }
 }
 
 /// Numbers target phrases by frequency (most used first, ties by bytes). The table of distinct
@@ -657,7 +757,7 @@ const TARGET_ENTRY_OVERHEAD: usize = 64;
 /// Numbered targets: the two sections and how pass 2 finds a target's reference.
 struct Numbered {
     vocabulary_section: Vec<u8>,
-    targets_section: Vec<u8>,
+    groups: TargetGroups,
     n_targets: u64,
     n_words: u64,
     refs: TargetRefs,
@@ -727,7 +827,7 @@ impl TargetNumbering {
         Ok(t)
     }
 
-    fn finish(self) -> Result<Numbered> {
+    fn finish(self, mut groups: TargetGroups) -> Result<Numbered> {
         let Some(spill) = self.spill else {
             let mut targets: Vec<(String, u64, u32)> = self
                 .index
@@ -742,14 +842,13 @@ impl TargetNumbering {
                 }
             }
             let (vocabulary_section, words) = build_vocabulary(freq);
-            let mut targets_section = (targets.len() as u64).to_le_bytes().to_vec();
             let mut refs = vec![0u64; targets.len()];
             for (t, _, id) in &targets {
-                refs[*id as usize] = push_target(&mut targets_section, t, &words);
+                refs[*id as usize] = groups.push(t, &words);
             }
             return Ok(Numbered {
                 vocabulary_section,
-                targets_section,
+                groups,
                 n_targets: targets.len() as u64,
                 n_words: words.len() as u64,
                 refs: TargetRefs::ByNumber(refs),
@@ -804,42 +903,21 @@ impl TargetNumbering {
         let ranks = ranks.into_map();
         let (vocabulary_section, words) =
             build_vocabulary(freq.iter().map(|(w, &c)| (w.as_str(), c)));
-        let mut targets_section = rank.to_le_bytes().to_vec();
         let mut refs = vec![0u64; rank as usize];
         let mut ordered = by_frequency.finish()?;
         while let Some((key, value)) = ordered.next_record()? {
             let target = std::str::from_utf8(&key[8..]).expect("targets are UTF-8");
             let r = format::read_varint(value, &mut 0).expect("sorter record intact");
-            refs[r as usize] = push_target(&mut targets_section, target, &words);
+            refs[r as usize] = groups.push(target, &words);
         }
         Ok(Numbered {
             vocabulary_section,
-            targets_section,
+            groups,
             n_targets: rank,
             n_words: words.len() as u64,
             refs: TargetRefs::ByRank(ranks, refs),
         })
     }
-}
-
-fn build_codebooks(codebooks: &[Option<Codebook>], widths: &[(u8, u8)]) -> Vec<u8> {
-    let mut section = Vec::new();
-    for (book, &(mode, bits)) in codebooks.iter().zip(widths) {
-        section.push(mode);
-        section.push(bits);
-        match book {
-            Some(b) => {
-                section.push(b.domain());
-                section.push(0);
-                section.extend_from_slice(&(b.len() as u32).to_le_bytes());
-                for v in b.values() {
-                    section.extend_from_slice(&v.to_le_bytes());
-                }
-            }
-            None => section.extend_from_slice(&[format::domain::LINEAR, 0, 0, 0, 0, 0]),
-        }
-    }
-    section
 }
 
 #[derive(Clone, Default)]
@@ -891,63 +969,19 @@ impl ErrorStats {
     }
 }
 
-/// An even sample of raw blocks for dictionary training, within a byte budget: every
-/// `stride`-th block is kept, and the stride doubles whenever the budget is exceeded.
-struct BlockSample {
-    budget: usize,
-    stride: u64,
-    seen: u64,
-    kept: Vec<Vec<u8>>,
-    bytes: usize,
-}
-
-impl BlockSample {
-    fn new(budget: usize) -> BlockSample {
-        BlockSample {
-            budget: budget.max(1),
-            stride: 1,
-            seen: 0,
-            kept: Vec::new(),
-            bytes: 0,
-        }
-    }
-
-    fn offer(&mut self, block: &[u8]) {
-        if self.seen % self.stride == 0 {
-            self.kept.push(block.to_vec());
-            self.bytes += block.len();
-            while self.bytes > self.budget && self.kept.len() > 1 {
-                let mut i = 0;
-                self.kept.retain(|_| {
-                    i += 1;
-                    i % 2 == 1
-                });
-                self.bytes = self.kept.iter().map(Vec::len).sum();
-                self.stride *= 2;
-            }
-        }
-        self.seen += 1;
-    }
-
-    /// A trained dictionary, or `None` when the sample is too small to train one usefully.
-    fn train(&self, size: usize) -> Option<Vec<u8>> {
-        if self.kept.len() < 16 || self.bytes < size * 4 {
-            return None;
-        }
-        zstd::dict::from_samples(&self.kept, size).ok()
-    }
-}
-
-/// Pass 2's sink: the fst of sources and the raw blocks.
+/// Pass 2's sink: plain blocks in a temporary file, their symbol counts and first keys.
 struct SourceWriter<'a> {
-    fst_builder: fst::MapBuilder<BufWriter<File>>,
-    fst_path: &'a Path,
     raw_out: BufWriter<File>,
     raw_path: &'a Path,
-    builder: BlockBuilder,
-    block_sizes: Vec<u32>,
-    samples: BlockSample,
-    max_block: usize,
+    shape: &'a BlockShape,
+    ids: ModelIds,
+    block: BlockRecords,
+    counter: Option<Counter>,
+    plain: PlainSink,
+    block_sources: Vec<u32>,
+    first_keys: Vec<u8>,
+    key_ends: Vec<u32>,
+    previous_source: Vec<u8>,
     sources: u64,
     order_column: Option<usize>,
     sources_per_block: u32,
@@ -957,9 +991,10 @@ struct SourceWriter<'a> {
 
 struct WrittenSources {
     sources: u64,
-    block_sizes: Vec<u32>,
-    max_block: usize,
-    samples: BlockSample,
+    block_sources: Vec<u32>,
+    first_keys: Vec<u8>,
+    key_ends: Vec<u32>,
+    counter: Option<Counter>,
 }
 
 impl SourceWriter<'_> {
@@ -968,62 +1003,68 @@ impl SourceWriter<'_> {
         if group.is_empty() {
             return Ok(());
         }
+        if self.sources > 0 && source <= self.previous_source.as_slice() {
+            // The sorter delivers sources in byte order; anything else is a bug.
+            unreachable!("sources arrive in ascending byte order");
+        }
+        self.previous_source.clear();
+        self.previous_source.extend_from_slice(source);
         if let Some(c) = self.order_column {
             // The group arrives in target byte order and the sort is stable, so ties stay in
             // target byte order.
             group.sort_by(|a, b| b.scores[c].total_cmp(&a.scores[c]));
         }
-        self.fst_builder
-            .insert(source, self.sources)
-            .map_err(|e| Error::io(self.fst_path, "writing", std::io::Error::other(e)))?;
-        self.builder.add_source(group);
+        if self.block.sources() == 0 {
+            self.first_keys.extend_from_slice(source);
+            self.key_ends.push(self.first_keys.len() as u32);
+        }
+        blocks::push_source(&mut self.block, self.shape, source, group);
         self.spare.append(group);
         self.sources += 1;
-        if self.builder.sources() == self.sources_per_block {
+        if self.block.sources() == self.sources_per_block as usize {
             self.write_block()?;
         }
         Ok(())
     }
 
     fn write_block(&mut self) -> Result<()> {
-        let raw = self.builder.finish();
-        if raw.len() as u64 > format::MAX_BLOCK_BYTES {
+        let len = blocks::write_plain_block(
+            &self.block,
+            self.shape,
+            &self.ids,
+            self.counter.as_mut(),
+            &mut self.plain,
+            &mut self.raw_out,
+        )
+        .map_err(|e| Error::io(self.raw_path, "writing", e))?;
+        if len as u64 > format::MAX_BLOCK_BYTES {
             return Err(Error::invalid(
                 "--block-sources",
                 format!(
-                    "a block of {} sources takes {} bytes, over the {}-byte limit; use fewer sources per block",
+                    "a block of {} sources takes {len} bytes, over the {}-byte limit; use fewer sources per block",
                     self.sources_per_block,
-                    raw.len(),
                     format::MAX_BLOCK_BYTES
                 ),
             ));
         }
-        self.max_block = self.max_block.max(raw.len());
-        let werr = |e| Error::io(self.raw_path, "writing", e);
-        self.raw_out
-            .write_u32::<LE>(raw.len() as u32)
-            .map_err(werr)?;
-        self.raw_out.write_all(&raw).map_err(werr)?;
-        self.block_sizes.push(raw.len() as u32);
-        self.samples.offer(&raw);
+        self.block_sources.push(self.block.sources() as u32);
+        self.block.clear();
         Ok(())
     }
 
     fn finish(mut self) -> Result<WrittenSources> {
-        if self.builder.sources() > 0 {
+        if self.block.sources() > 0 {
             self.write_block()?;
         }
-        self.fst_builder
-            .finish()
-            .map_err(|e| Error::io(self.fst_path, "writing", std::io::Error::other(e)))?;
         self.raw_out
             .flush()
             .map_err(|e| Error::io(self.raw_path, "writing", e))?;
         Ok(WrittenSources {
             sources: self.sources,
-            block_sizes: self.block_sizes,
-            max_block: self.max_block,
-            samples: self.samples,
+            block_sources: self.block_sources,
+            first_keys: self.first_keys,
+            key_ends: self.key_ends,
+            counter: self.counter,
         })
     }
 }

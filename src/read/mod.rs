@@ -1,26 +1,34 @@
 //! Reading packed tables.
 //!
-//! [`Table::open`] maps a `.bale` file and validates its header, section table, metadata and
-//! codebooks: work independent of the table's size. Every later access is bounds-checked, so a
-//! damaged file yields [`Error::Corrupt`], never a panic or an out-of-bounds read;
-//! [`Table::verify`] checks every checksum and decodes every record.
+//! [`Table::open`] maps a `.bale` file and validates its header, section table and every small
+//! section (metadata, codebooks, models, vocabulary, block index, block keys, target index):
+//! work that grows with the number of blocks, not pairs. Each source block and target group
+//! carries its own checksum, checked when it is decoded, so a damaged file yields
+//! [`Error::Corrupt`] naming the block, never a panic or a wrong answer; [`Table::verify`]
+//! checks every checksum and decodes every record.
+//!
+//! Decoded blocks and target groups are kept in a small cache bounded in bytes
+//! ([`ReadOptions::cache_bytes`], default [`DEFAULT_CACHE_BYTES`]).
 
+mod cache;
 mod options;
-mod sections;
 mod verify;
-mod words;
 
 pub use options::{Options, Span, TranslationOption};
 
+use std::ops::Range;
 use std::path::{Path, PathBuf};
-use std::sync::{Arc, Mutex};
+use std::sync::Arc;
 
 use crate::error::{Error, Result};
+use crate::format::block::{decode_target, BlockRecords, BlockShape, ModelIds};
+use crate::format::coder::{Models, PlainSource, RansSource, SymbolSource};
+use crate::format::sections::{self as layout, Codec, Vocabulary};
 use crate::format::{self, Compression, Meta, SectionEntry, SectionKind};
 use crate::mmap::{self, Storage};
 use crate::table::{CountColumn, Header, Metadata, PhrasePair, Schema};
 
-use sections::{Bytes, Codec, Sections};
+use cache::Cache;
 
 /// An open packed table. Cheap to share between threads (`Send + Sync`).
 ///
@@ -39,6 +47,8 @@ use sections::{Bytes, Codec, Sections};
 /// assert_eq!(best.target(), "the boat");
 /// assert!((best.score_by_name("p_t_given_s").unwrap() - 0.6).abs() < 0.01);
 /// assert_eq!(best.count(baler::table::CountColumn::Count), Some(3));
+/// let ids = best.target_ids();
+/// assert_eq!(table.word(ids[1]), Some("boat"));
 /// assert!(table.lookup("la barca")?.is_empty());
 /// # Ok(()) }
 /// ```
@@ -49,23 +59,55 @@ pub struct Table {
     header: Header,
     shared_schema: Arc<Schema>,
     entries: Vec<SectionEntry>,
-    index: fst::Map<Bytes>,
-    sections: Sections,
     codecs: Vec<Codec>,
-    compression: Compression,
-    dictionary: Option<std::ops::Range<usize>>,
-    decoders: Mutex<Vec<zstd::bulk::Decompressor<'static>>>,
-    block_cache: Vec<Mutex<CacheSlot>>,
+    models: Option<Models>,
+    vocabulary: Vocabulary,
+    shape: BlockShape,
+    ids: ModelIds,
+    block_index: Range<usize>,
+    block_keys: Range<usize>,
+    blocks: Range<usize>,
+    n_blocks: usize,
+    target_index: Range<usize>,
+    targets: Range<usize>,
+    n_groups: usize,
+    block_cache: Cache<BlockRecords>,
+    group_cache: Cache<Group>,
+    options_cache: Cache<(Box<[u8]>, Options)>,
 }
 
-/// One block-cache entry: block number and its decompressed bytes.
-type CacheSlot = Option<(u64, Arc<[u8]>)>;
+/// The decoded word ids of one target group.
+#[derive(Default)]
+pub(crate) struct Group {
+    ids: Vec<u32>,
+    ends: Vec<u32>,
+}
 
-/// Decompressed blocks a [`Table`] keeps for reuse (direct-mapped by block number).
-pub const BLOCK_CACHE_SLOTS: usize = 1024;
+impl Group {
+    fn target(&self, i: usize) -> &[u32] {
+        let start = if i == 0 { 0 } else { self.ends[i - 1] as usize };
+        &self.ids[start..self.ends[i] as usize]
+    }
+}
 
-/// Tables whose blocks may exceed this many bytes are not cached (1024 × 16 KiB = 16 MiB at most).
-const MAX_CACHED_BLOCK_BYTES: u64 = 16 << 10;
+/// Reader settings.
+#[derive(Clone, Debug)]
+pub struct ReadOptions {
+    /// Bytes of decoded data kept for reuse: half for the options of recently used sources, a
+    /// third for decoded blocks, a sixth for decoded target groups; 0 turns caching off.
+    pub cache_bytes: usize,
+}
+
+/// Default size of the decoded-data cache (10 MiB; see [`ReadOptions::cache_bytes`]).
+pub const DEFAULT_CACHE_BYTES: usize = 10 << 20;
+
+impl Default for ReadOptions {
+    fn default() -> ReadOptions {
+        ReadOptions {
+            cache_bytes: DEFAULT_CACHE_BYTES,
+        }
+    }
+}
 
 /// Size of one section, for reports.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -80,22 +122,38 @@ pub struct SectionSize {
 
 pub use crate::format::MAX_BLOCK_BYTES;
 
+/// A position in source order: block and rank in it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+struct Position {
+    block: usize,
+    rank: usize,
+}
+
 impl Table {
     /// Memory-maps and validates the table at `path`.
     ///
     /// The file must not be modified in place while it is open (baler's own writers always
     /// write a new file and rename it into place, which is safe).
     pub fn open(path: &Path) -> Result<Table> {
+        Table::open_with(path, &ReadOptions::default())
+    }
+
+    /// Like [`Table::open`], with reader settings.
+    pub fn open_with(path: &Path, options: &ReadOptions) -> Result<Table> {
         let storage = mmap::map_file(path)?;
-        Table::from_storage(storage, path.to_path_buf())
+        Table::from_storage(storage, path.to_path_buf(), options)
     }
 
     /// Validates a table held in memory (e.g. read from a network or an archive).
     pub fn from_bytes<B: AsRef<[u8]> + Send + Sync + 'static>(bytes: B) -> Result<Table> {
-        Table::from_storage(Storage::Owned(Box::new(bytes)), PathBuf::from("<memory>"))
+        Table::from_storage(
+            Storage::Owned(Box::new(bytes)),
+            PathBuf::from("<memory>"),
+            &ReadOptions::default(),
+        )
     }
 
-    fn from_storage(storage: Storage, path: PathBuf) -> Result<Table> {
+    fn from_storage(storage: Storage, path: PathBuf, options: &ReadOptions) -> Result<Table> {
         let storage = Arc::new(storage);
         let corrupt = |reason: String| Error::corrupt(&path, reason);
         let data = storage.bytes();
@@ -103,6 +161,14 @@ impl Table {
             return Err(corrupt("missing the baler magic bytes at the start".into()));
         }
         let fh = format::FileHeader::decode(data);
+        if fh.major == 1 {
+            return Err(corrupt(format!(
+                "this table is in packed format 1.{}, which this baler no longer reads; repack it \
+                 from its text: `baler dump` it with the baler that wrote it (0.1), then \
+                 `baler pack` the dump with this one",
+                fh.minor
+            )));
+        }
         if fh.major != format::VERSION_MAJOR {
             return Err(corrupt(format!(
                 "format version {}.{} is not supported (this reader reads {}.x)",
@@ -128,7 +194,7 @@ impl Table {
             ));
         }
         let mut entries = Vec::new();
-        let mut found: Vec<(SectionKind, std::ops::Range<usize>)> = Vec::new();
+        let mut found: Vec<(SectionKind, Range<usize>)> = Vec::new();
         for chunk in table_bytes.chunks_exact(format::SECTION_ENTRY_LEN) {
             let e = SectionEntry::decode(chunk);
             let end = e
@@ -173,52 +239,83 @@ impl Table {
                 return Err(corrupt(format!("the {} section is missing", kind.name())));
             }
         }
-        let meta: Meta = serde_json::from_slice(&data[get(SectionKind::Metadata).unwrap()])
+        let section = |kind: SectionKind| get(kind).expect("required sections are present");
+        let meta: Meta = serde_json::from_slice(&data[section(SectionKind::Metadata)])
             .map_err(|e| corrupt(format!("the metadata section is not valid: {e}")))?;
         let (header, compression) = check_meta(&meta).map_err(corrupt)?;
-        let codecs = sections::parse_codebooks(&data[get(SectionKind::Codebooks).unwrap()], &meta)
+        let codecs = layout::decode_codebooks(&data[section(SectionKind::Codebooks)], &meta)
             .map_err(corrupt)?;
-        let sections = Sections::new(
-            data,
-            get(SectionKind::Vocabulary).unwrap(),
-            get(SectionKind::Targets).unwrap(),
-            get(SectionKind::BlockIndex).unwrap(),
-            get(SectionKind::Options).unwrap(),
-            &meta,
+        let ids = ModelIds::new(meta.scores.len());
+        let models = match (compression, get(SectionKind::Models)) {
+            (Compression::Rans, Some(r)) => {
+                Some(Models::decode(&data[r], ids.count()).map_err(corrupt)?)
+            }
+            (Compression::Rans, None) => {
+                return Err(corrupt("the models section is missing".into()))
+            }
+            (Compression::None, Some(_)) => {
+                return Err(corrupt(
+                    "a models section is present but blocks are not coded".into(),
+                ))
+            }
+            (Compression::None, None) => None,
+        };
+        let vocabulary =
+            Vocabulary::decode(&data[section(SectionKind::Vocabulary)], meta.vocabulary)
+                .map_err(corrupt)?;
+        let n_blocks = meta.sources.div_ceil(u64::from(meta.sources_per_block));
+        let n_groups = meta.targets.div_ceil(u64::from(meta.targets_per_group));
+        let (block_index, block_keys, blocks) = (
+            section(SectionKind::BlockIndex),
+            section(SectionKind::BlockKeys),
+            section(SectionKind::Blocks),
+        );
+        layout::check_block_index(
+            &data[block_index.clone()],
+            n_blocks,
+            block_keys.len(),
+            blocks.len(),
         )
         .map_err(corrupt)?;
-        let index_range = get(SectionKind::SourceIndex).unwrap();
-        let index_bytes = Bytes::new(storage.clone(), index_range);
-        let index = guard(|| fst::Map::new(index_bytes))
-            .ok_or_else(|| corrupt("the source index is damaged".into()))?
-            .map_err(|e| corrupt(format!("the source index is not a valid fst: {e}")))?;
-        if index.len() as u64 != meta.sources {
-            return Err(corrupt(format!(
-                "the source index holds {} phrases, the metadata says {}",
-                index.len(),
-                meta.sources
-            )));
-        }
-        let dictionary = get(SectionKind::Dictionary);
-        if dictionary.is_some() && compression != Compression::Zstd {
-            return Err(corrupt(
-                "a dictionary is present but blocks are not compressed".into(),
-            ));
-        }
+        let (target_index, targets) = (
+            section(SectionKind::TargetIndex),
+            section(SectionKind::Targets),
+        );
+        layout::check_target_index(&data[target_index.clone()], n_groups, targets.len())
+            .map_err(corrupt)?;
+        let shape = BlockShape {
+            widths: codecs.iter().map(Codec::width).collect(),
+            alignment: meta.alignment,
+            counts: meta.counts.len(),
+        };
+        let budget = options.cache_bytes;
+        let (options_bytes, block_bytes) = (budget / 2, budget / 3);
         Ok(Table {
             path,
-            storage,
-            meta,
             shared_schema: Arc::new(header.schema.clone()),
             header,
             entries,
-            index,
-            sections,
             codecs,
-            compression,
-            dictionary,
-            decoders: Mutex::new(Vec::new()),
-            block_cache: (0..BLOCK_CACHE_SLOTS).map(|_| Mutex::new(None)).collect(),
+            models,
+            vocabulary,
+            shape,
+            ids,
+            block_index,
+            block_keys,
+            blocks,
+            n_blocks: n_blocks as usize,
+            target_index,
+            targets,
+            n_groups: n_groups as usize,
+            block_cache: Cache::new(block_bytes, n_blocks as usize, 1 << 14),
+            group_cache: Cache::new(
+                budget - options_bytes - block_bytes,
+                n_groups as usize,
+                1 << 13,
+            ),
+            options_cache: Cache::new(options_bytes, meta.sources as usize, 1 << 16),
+            storage,
+            meta,
         })
     }
 
@@ -274,6 +371,16 @@ impl Table {
         self.meta.sources
     }
 
+    /// Target word `id` (see [`TranslationOption::target_ids`]).
+    pub fn word(&self, id: u32) -> Option<&str> {
+        self.vocabulary.word(id)
+    }
+
+    /// Number of distinct target words; ids run from 0 to this, most frequent first.
+    pub fn vocabulary_size(&self) -> usize {
+        self.vocabulary.len()
+    }
+
     /// The options of one source phrase (empty when the phrase is not in the table).
     pub fn lookup(&self, source: &str) -> Result<Options> {
         let mut options = Options::default();
@@ -284,25 +391,42 @@ impl Table {
     /// Like [`Table::lookup`], reusing `options`' buffers; returns whether the phrase was found.
     pub fn lookup_into(&self, source: &str, options: &mut Options) -> Result<bool> {
         options.clear();
-        let found =
-            guard(|| self.index.get(source.as_bytes())).ok_or_else(|| self.damaged_index())?;
-        match found {
-            Some(ordinal) => {
-                self.decode_source(ordinal, options)?;
-                Ok(true)
+        let key = source.as_bytes();
+        let slot = key_hash(key);
+        if let Some(hit) = self.options_cache.get(slot) {
+            if *hit.0 == *key {
+                options.copy_from(&hit.1);
+                return Ok(true);
             }
-            None => Ok(false),
         }
+        let Some(b) = self.find_block(key) else {
+            return Ok(false);
+        };
+        let block = self.block(b)?;
+        let r = block.lower_bound(key);
+        if r < block.sources() && block.key(r) == key {
+            self.fill(&block, r, options)?;
+            self.offer_options(slot, key, options);
+            return Ok(true);
+        }
+        Ok(false)
     }
 
     /// The source ordinal (position in byte order) of a phrase, if present.
     pub fn source_ordinal(&self, source: &str) -> Result<Option<u64>> {
-        guard(|| self.index.get(source.as_bytes())).ok_or_else(|| self.damaged_index())
+        let key = source.as_bytes();
+        let Some(b) = self.find_block(key) else {
+            return Ok(None);
+        };
+        let block = self.block(b)?;
+        let r = block.lower_bound(key);
+        Ok((r < block.sources() && block.key(r) == key)
+            .then(|| b as u64 * u64::from(self.meta.sources_per_block) + r as u64))
     }
 
     /// Every sub-phrase of `tokens` of at most `max_len` tokens that is in the table, with its
-    /// options, ordered by start then length. The index is walked token by token from each
-    /// start, so a prefix that no source phrase has ends that walk at once.
+    /// options, ordered by start then length. From each start the walk extends the phrase one
+    /// token at a time and stops as soon as no source phrase continues it.
     ///
     /// # Examples
     /// ```
@@ -319,123 +443,368 @@ impl Table {
     /// # Ok(()) }
     /// ```
     pub fn spans(&self, tokens: &[&str], max_len: usize) -> Result<Vec<Span>> {
-        let mut hits: Vec<(usize, usize, u64)> = Vec::new();
-        guard(|| {
-            let fst = self.index.as_fst();
-            for start in 0..tokens.len() {
-                let mut node = fst.root();
-                let mut out = fst::raw::Output::zero();
-                'walk: for (end, token) in tokens.iter().enumerate().skip(start).take(max_len) {
-                    let bytes = token.as_bytes();
-                    let feed = (end > start)
-                        .then_some(b' ')
-                        .into_iter()
-                        .chain(bytes.iter().copied());
-                    for b in feed {
-                        match node.find_input(b) {
-                            Some(i) => {
-                                let t = node.transition(i);
-                                out = out.cat(t.out);
-                                node = fst.node(t.addr);
-                            }
-                            None => break 'walk,
+        let mut out = Vec::new();
+        let mut key: Vec<u8> = Vec::new();
+        let mut hint: Option<(usize, Arc<BlockRecords>)> = None;
+        for start in 0..tokens.len() {
+            key.clear();
+            for (end, token) in tokens.iter().enumerate().skip(start).take(max_len) {
+                if end > start {
+                    key.push(b' ');
+                }
+                key.extend_from_slice(token.as_bytes());
+                let Some(at) = self.seek(&key, &mut hint)? else {
+                    break; // an empty table
+                };
+                let (b, block) = hint.as_ref().expect("seek sets the hint");
+                let mut next = at;
+                if at.rank < block.sources() && block.key(at.rank) == key.as_slice() {
+                    let mut options = Options::default();
+                    let slot = key_hash(&key);
+                    match self.options_cache.get(slot) {
+                        Some(hit) if *hit.0 == *key => options.copy_from(&hit.1),
+                        _ => {
+                            self.fill(block, at.rank, &mut options)?;
+                            self.offer_options(slot, &key, &options);
                         }
                     }
-                    if node.is_final() {
-                        hits.push((start, end + 1, out.cat(node.final_output()).value()));
-                    }
+                    out.push(Span {
+                        start,
+                        end: end + 1,
+                        options,
+                    });
+                    next.rank += 1;
                 }
-            }
-        })
-        .ok_or_else(|| self.damaged_index())?;
-        // Sub-phrases sharing a start are neighbours in byte order and often share a block:
-        // decode the hits block by block, each block once.
-        let mut order: Vec<usize> = (0..hits.len()).collect();
-        order.sort_by_key(|&i| hits[i].2);
-        let mut decoded: Vec<Option<Options>> = vec![None; hits.len()];
-        let per = u64::from(self.meta.sources_per_block);
-        let mut scratch = Vec::new();
-        let mut k = 0;
-        while k < order.len() {
-            let ordinal = hits[order[k]].2;
-            if ordinal >= self.meta.sources {
-                return Err(self.corrupt(format!(
-                    "the source index points at source {ordinal} of {}",
-                    self.meta.sources
-                )));
-            }
-            let block = ordinal / per;
-            let cached = self.cached_block(block)?;
-            let bytes: &[u8] = match &cached {
-                Some(b) => b,
-                None => self.block_bytes(block, &mut scratch)?,
-            };
-            let n = self.sources_in_block(block);
-            while k < order.len() && hits[order[k]].2 / per == block {
-                let mut options = Options::default();
-                let layout =
-                    options::BlockLayout::parse(self, bytes, n, (hits[order[k]].2 % per) as usize)?;
-                layout.decode_source(self, bytes, &mut options)?;
-                decoded[order[k]] = Some(options);
-                k += 1;
+                debug_assert_eq!(next.block, *b);
+                if !self.continues(&key, next, &mut hint)? {
+                    break;
+                }
             }
         }
-        Ok(hits
-            .into_iter()
-            .zip(decoded)
-            .map(|((start, end, _), options)| Span {
-                start,
-                end,
-                options: options.expect("every hit decoded"),
-            })
-            .collect())
+        Ok(out)
     }
 
-    /// Every source phrase in byte order (read from the index alone, no blocks decoded).
+    /// Whether some source phrase starts with `key` followed by a space, given the position of
+    /// the first source after `key` itself.
+    fn continues(
+        &self,
+        key: &[u8],
+        next: Position,
+        hint: &mut Option<(usize, Arc<BlockRecords>)>,
+    ) -> Result<bool> {
+        let following = {
+            let (_, block) = hint.as_ref().expect("hint set");
+            if next.rank < block.sources() {
+                Some(block.key(next.rank).to_vec())
+            } else if next.block + 1 < self.n_blocks {
+                Some(self.first_key(next.block + 1).to_vec())
+            } else {
+                None
+            }
+        };
+        let Some(k) = following else {
+            return Ok(false);
+        };
+        if k.len() > key.len() && k.starts_with(key) {
+            match k[key.len()] {
+                b' ' => return Ok(true),
+                c if c < b' ' => {
+                    // Phrases with control characters sort between `key` and `key `: search.
+                    let mut probe = key.to_vec();
+                    probe.push(b' ');
+                    let Some(at) = self.seek(&probe, hint)? else {
+                        return Ok(false);
+                    };
+                    let (_, block) = hint.as_ref().expect("hint set");
+                    let k = if at.rank < block.sources() {
+                        block.key(at.rank)
+                    } else if at.block + 1 < self.n_blocks {
+                        self.first_key(at.block + 1)
+                    } else {
+                        return Ok(false);
+                    };
+                    return Ok(k.starts_with(&probe));
+                }
+                _ => return Ok(false),
+            }
+        }
+        Ok(false)
+    }
+
+    /// The position of the first source not below `key`, with its block in `hint`; `None`
+    /// when the table has no sources.
+    fn seek(
+        &self,
+        key: &[u8],
+        hint: &mut Option<(usize, Arc<BlockRecords>)>,
+    ) -> Result<Option<Position>> {
+        let inside = |b: usize| {
+            self.first_key(b) <= key && (b + 1 == self.n_blocks || self.first_key(b + 1) > key)
+        };
+        let b = match hint {
+            Some((b, _)) if inside(*b) => *b,
+            _ => {
+                if self.n_blocks == 0 {
+                    return Ok(None);
+                }
+                // A key before every source lands at the first source of block 0.
+                let b = self.find_block(key).unwrap_or(0);
+                *hint = Some((b, self.block(b)?));
+                b
+            }
+        };
+        let (_, block) = hint.as_ref().expect("hint set");
+        Ok(Some(Position {
+            block: b,
+            rank: block.lower_bound(key),
+        }))
+    }
+
+    /// The first key of block `b` (from the block-keys section).
+    #[inline]
+    fn first_key(&self, b: usize) -> &[u8] {
+        let e = layout::block_entry(&self.data()[self.block_index.clone()], b);
+        &self.data()[self.block_keys.start + e.key.start..self.block_keys.start + e.key.end]
+    }
+
+    /// The last block whose first key is not above `key`.
+    fn find_block(&self, key: &[u8]) -> Option<usize> {
+        let (mut lo, mut hi) = (0, self.n_blocks);
+        while lo < hi {
+            let mid = (lo + hi) / 2;
+            if self.first_key(mid) <= key {
+                lo = mid + 1;
+            } else {
+                hi = mid;
+            }
+        }
+        lo.checked_sub(1)
+    }
+
+    fn sources_in_block(&self, b: usize) -> usize {
+        let per = u64::from(self.meta.sources_per_block);
+        (self.meta.sources - b as u64 * per).min(per) as usize
+    }
+
+    /// Block `b`, decoded (from the cache, or decoded and offered to it).
+    fn block(&self, b: usize) -> Result<Arc<BlockRecords>> {
+        if let Some(hit) = self.block_cache.get(b) {
+            return Ok(hit);
+        }
+        let mut records = BlockRecords::default();
+        self.decode_block(b, &mut records)?;
+        let records = Arc::new(records);
+        self.block_cache
+            .insert(b, records.clone(), records.heap_bytes());
+        Ok(records)
+    }
+
+    /// Checks block `b`'s checksum and decodes it into `out`.
+    fn decode_block(&self, b: usize, out: &mut BlockRecords) -> Result<()> {
+        let data = self.data();
+        let e = layout::block_entry(&data[self.block_index.clone()], b);
+        let stored = &data[self.blocks.start + e.range.start..self.blocks.start + e.range.end];
+        if crc32fast::hash(stored) != e.crc {
+            return Err(self.corrupt(format!("block {b} fails its checksum")));
+        }
+        let first = self.first_key(b);
+        let n = self.sources_in_block(b);
+        let result = match &self.models {
+            Some(m) => match RansSource::new(m, stored) {
+                Some(mut src) => {
+                    out.decode(first, n, &self.shape, &self.ids, self.meta.pairs, &mut src)
+                }
+                None => Err("its coder state"),
+            },
+            None => out.decode(
+                first,
+                n,
+                &self.shape,
+                &self.ids,
+                self.meta.pairs,
+                &mut PlainSource::new(stored),
+            ),
+        };
+        result.map_err(|what| self.corrupt(format!("block {b} is malformed: {what}")))
+    }
+
+    /// Target group `g`, decoded (from the cache, or decoded and offered to it).
+    fn group(&self, g: usize) -> Result<Arc<Group>> {
+        if let Some(hit) = self.group_cache.get(g) {
+            return Ok(hit);
+        }
+        let group = Arc::new(self.decode_group(g)?);
+        let bytes = 4 * (group.ids.len() + group.ends.len()) + 64;
+        self.group_cache.insert(g, group.clone(), bytes);
+        Ok(group)
+    }
+
+    fn decode_group(&self, g: usize) -> Result<Group> {
+        if g >= self.n_groups {
+            return Err(self.corrupt(format!(
+                "target group {g} is outside the {} groups",
+                self.n_groups
+            )));
+        }
+        let data = self.data();
+        let (range, crc) = layout::group_entry(&data[self.target_index.clone()], g);
+        let stored = &data[self.targets.start + range.start..self.targets.start + range.end];
+        if crc32fast::hash(stored) != crc {
+            return Err(self.corrupt(format!("target group {g} fails its checksum")));
+        }
+        let per = u64::from(self.meta.targets_per_group);
+        let n = (self.meta.targets - g as u64 * per).min(per) as usize;
+        let mut group = Group::default();
+        let vocabulary = self.vocabulary.len() as u64;
+        let run = |src: &mut dyn FnMut(&mut Vec<u32>) -> Result<usize, &'static str>,
+                   group: &mut Group|
+         -> Result<(), &'static str> {
+            for _ in 0..n {
+                src(&mut group.ids)?;
+                group.ends.push(group.ids.len() as u32);
+            }
+            Ok(())
+        };
+        let result = match &self.models {
+            Some(m) => match RansSource::new(m, stored) {
+                Some(mut s) => run(
+                    &mut |out| decode_target(&mut s, vocabulary, out),
+                    &mut group,
+                )
+                .and_then(|()| s.finished().then_some(()).ok_or("the group's end")),
+                None => Err("its coder state"),
+            },
+            None => {
+                let mut s = PlainSource::new(stored);
+                run(
+                    &mut |out| decode_target(&mut s, vocabulary, out),
+                    &mut group,
+                )
+                .and_then(|()| s.finished().then_some(()).ok_or("the group's end"))
+            }
+        };
+        result.map_err(|what| self.corrupt(format!("target group {g} is malformed: {what}")))?;
+        Ok(group)
+    }
+
+    /// Offers a source's decoded options to the cache of recently used sources.
+    fn offer_options(&self, slot: usize, key: &[u8], options: &Options) {
+        let bytes = key.len() + options.heap_bytes();
+        if self.options_cache.admits(bytes) {
+            let entry = Arc::new((Box::from(key), options.clone()));
+            self.options_cache.insert(slot, entry, bytes);
+        }
+    }
+
+    /// Fills `out` with the options of source `r` of `block`.
+    fn fill(&self, block: &BlockRecords, r: usize, out: &mut Options) -> Result<()> {
+        out.clear();
+        out.set_schema(&self.shared_schema);
+        let per = self.meta.targets_per_group as usize;
+        let code_bytes = self.shape.code_bytes();
+        let mut cached: Option<(usize, Arc<Group>)> = None;
+        for k in block.options(r) {
+            let t = block.targets[k] as usize;
+            if t as u64 >= self.meta.targets {
+                return Err(self.corrupt(format!(
+                    "a target reference ({t}) is outside the {} targets",
+                    self.meta.targets
+                )));
+            }
+            let g = t / per;
+            let group = match &cached {
+                Some((cg, grp)) if *cg == g => grp.clone(),
+                _ => {
+                    let grp = self.group(g)?;
+                    cached = Some((g, grp.clone()));
+                    grp
+                }
+            };
+            let words = group.target(t % per);
+            for (i, &w) in words.iter().enumerate() {
+                if i > 0 {
+                    out.text.push(' ');
+                }
+                out.text
+                    .push_str(self.vocabulary.word(w).expect("ids checked at decoding"));
+            }
+            out.ends.push(out.text.len() as u32);
+            out.ids.extend_from_slice(words);
+            out.id_ends.push(out.ids.len() as u32);
+            let mut at = k * code_bytes;
+            for codec in &self.codecs {
+                let w = codec.width();
+                let v = codec
+                    .decode(&block.codes[at..at + w])
+                    .ok_or_else(|| self.corrupt("a score code is outside its codebook"))?;
+                out.scores.push(v);
+                at += w;
+            }
+            if self.shape.alignment {
+                let start = if k == 0 {
+                    0
+                } else {
+                    block.link_ends[k - 1] as usize
+                };
+                out.links
+                    .extend_from_slice(&block.links[start..block.link_ends[k] as usize]);
+                out.link_ends.push(out.links.len() as u32);
+            }
+            let nc = self.shape.counts;
+            out.counts
+                .extend_from_slice(&block.counts[k * nc..(k + 1) * nc]);
+        }
+        Ok(())
+    }
+
+    /// Every source phrase in byte order.
     pub fn source_phrases(&self) -> impl Iterator<Item = Result<String>> + '_ {
-        use fst::Streamer;
-        // Even starting a stream reads the root node, so it happens under the guard too.
-        let mut stream: Option<fst::map::Stream<'_>> = None;
-        let mut left = self.meta.sources;
+        let mut b = 0;
+        let mut r = 0;
+        let mut block = BlockRecords::default();
         let mut failed = false;
         std::iter::from_fn(move || {
-            if failed || left == 0 {
+            if failed {
                 return None;
             }
-            left -= 1;
-            let next = guard(|| {
-                stream
-                    .get_or_insert_with(|| self.index.stream())
-                    .next()
-                    .map(|(k, _)| k.to_vec())
-            });
-            let item = match next {
-                Some(Some(key)) => {
-                    String::from_utf8(key).map_err(|_| self.corrupt("a source phrase is not UTF-8"))
+            while r >= block.sources() {
+                if b >= self.n_blocks {
+                    return None;
                 }
-                Some(None) => Err(self.corrupt("the source index ends early")),
-                None => Err(self.damaged_index()),
-            };
+                if let Err(e) = self.decode_block(b, &mut block) {
+                    failed = true;
+                    return Some(Err(e));
+                }
+                b += 1;
+                r = 0;
+            }
+            r += 1;
+            let item = std::str::from_utf8(block.key(r - 1))
+                .map(str::to_string)
+                .map_err(|_| self.corrupt("a source phrase is not UTF-8"));
             failed = item.is_err();
             Some(item)
         })
     }
 
     /// Every pair in source byte order, options in stored order, scores as quantized values.
+    /// Each block is decoded once.
     pub fn pairs_iter(&self) -> PairIter<'_> {
-        PairIter::new(self)
+        PairIter {
+            table: self,
+            next_block: 0,
+            block: BlockRecords::default(),
+            rank: 0,
+            source: String::new(),
+            options: Options::default(),
+            option: 0,
+            failed: false,
+        }
     }
 
     /// Checks every checksum and decodes every record; the first problem is returned.
     pub fn verify(&self) -> Result<VerifyReport> {
         verify::verify(self)
-    }
-
-    fn damaged_index(&self) -> Error {
-        Error::corrupt(
-            &self.path,
-            "the source index is damaged (a walk left its bounds)",
-        )
     }
 
     pub(crate) fn corrupt(&self, reason: impl Into<String>) -> Error {
@@ -445,110 +814,16 @@ impl Table {
     fn data(&self) -> &[u8] {
         self.storage.bytes()
     }
+}
 
-    /// Decodes the options of the source with `ordinal` into `options`.
-    fn decode_source(&self, ordinal: u64, options: &mut Options) -> Result<()> {
-        if ordinal >= self.meta.sources {
-            return Err(self.corrupt(format!(
-                "the source index points at source {ordinal} of {}",
-                self.meta.sources
-            )));
-        }
-        let per = u64::from(self.meta.sources_per_block);
-        let block = ordinal / per;
-        let rank = (ordinal % per) as usize;
-        if let Some(bytes) = self.cached_block(block)? {
-            let layout =
-                options::BlockLayout::parse(self, &bytes, self.sources_in_block(block), rank)?;
-            return layout.decode_source(self, &bytes, options);
-        }
-        let mut raw = std::mem::take(&mut options.scratch);
-        let result = self.block_bytes(block, &mut raw).and_then(|bytes| {
-            let layout =
-                options::BlockLayout::parse(self, bytes, self.sources_in_block(block), rank)?;
-            layout.decode_source(self, bytes, options)
-        });
-        options.scratch = raw;
-        result
+/// The options cache's item number for a source phrase (FNV-1a).
+#[inline]
+fn key_hash(key: &[u8]) -> usize {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for &b in key {
+        h = (h ^ u64::from(b)).wrapping_mul(0x0100_0000_01b3);
     }
-
-    /// A decompressed block from the table's small direct-mapped cache (decompressing it on a
-    /// miss); `None` when blocks are stored raw and read straight from the map. Frequent
-    /// phrases (and the sub-phrases of one sentence) come back to the same blocks, so this saves
-    /// most decompressions in decoding; it holds at most [`BLOCK_CACHE_SLOTS`] blocks.
-    fn cached_block(&self, block: u64) -> Result<Option<Arc<[u8]>>> {
-        if self.compression == Compression::None {
-            return Ok(None);
-        }
-        let slot = &self.block_cache[(block % BLOCK_CACHE_SLOTS as u64) as usize];
-        if let Ok(guard) = slot.lock() {
-            if let Some((b, bytes)) = guard.as_ref() {
-                if *b == block {
-                    return Ok(Some(bytes.clone()));
-                }
-            }
-        }
-        if self.meta.max_block_bytes > MAX_CACHED_BLOCK_BYTES {
-            return Ok(None); // very large blocks: decompress per use, keep memory small
-        }
-        let mut raw = Vec::new();
-        let bytes: Arc<[u8]> = Arc::from(self.block_bytes(block, &mut raw)?);
-        if let Ok(mut guard) = slot.lock() {
-            *guard = Some((block, bytes.clone()));
-        }
-        Ok(Some(bytes))
-    }
-
-    fn sources_in_block(&self, block: u64) -> usize {
-        let per = u64::from(self.meta.sources_per_block);
-        (self.meta.sources - block * per).min(per) as usize
-    }
-
-    /// The raw bytes of a block: borrowed from the map, or decompressed into `scratch`.
-    fn block_bytes<'a>(&'a self, block: u64, scratch: &'a mut Vec<u8>) -> Result<&'a [u8]> {
-        let data = self.data();
-        let range = self
-            .sections
-            .block_range(data, block)
-            .map_err(|r| self.corrupt(r))?;
-        let stored = &data[range];
-        match self.compression {
-            Compression::None => Ok(stored),
-            Compression::Zstd => {
-                let size = zstd::zstd_safe::get_frame_content_size(stored)
-                    .ok()
-                    .flatten()
-                    .filter(|&s| s <= self.meta.max_block_bytes)
-                    .ok_or_else(|| {
-                        self.corrupt(format!(
-                            "block {block} is not a zstd frame of a plausible size"
-                        ))
-                    })?;
-                scratch.clear();
-                scratch.reserve(size as usize);
-                let mut decoder = match self.decoders.lock().ok().and_then(|mut p| p.pop()) {
-                    Some(d) => d,
-                    None => {
-                        let dict = self.dictionary.clone().map(|r| &data[r]).unwrap_or(&[]);
-                        zstd::bulk::Decompressor::with_dictionary(dict).map_err(|e| {
-                            self.corrupt(format!("the zstd dictionary cannot be loaded: {e}"))
-                        })?
-                    }
-                };
-                let result = decoder.decompress_to_buffer(stored, scratch);
-                if let Ok(mut pool) = self.decoders.lock() {
-                    pool.push(decoder);
-                }
-                match result {
-                    Ok(n) if n as u64 == size => Ok(&scratch[..]),
-                    Ok(n) => Err(self.corrupt(format!(
-                        "block {block} decompressed to {n} bytes, its frame says {size}"
-                    ))),
-                    Err(e) => Err(self.corrupt(format!("block {block} does not decompress: {e}"))),
-                }
-            }
-        }
-    }
+    (h ^ (h >> 29)) as usize
 }
 
 /// Whether `path` holds a packed table: by its `.bale` extension or, whatever its name, by the
@@ -582,20 +857,14 @@ pub struct VerifyReport {
     pub targets: u64,
 }
 
-/// Runs `f`, turning a panic inside the `fst` crate (possible only on a damaged index, whose
-/// bytes it trusts) into `None`.
-fn guard<T>(f: impl FnOnce() -> T) -> Option<T> {
-    std::panic::catch_unwind(std::panic::AssertUnwindSafe(f)).ok()
-}
-
 fn check_meta(meta: &Meta) -> std::result::Result<(Header, Compression), String> {
     if meta.format != format::FORMAT_NAME {
         return Err(format!("the metadata names the format {:?}", meta.format));
     }
     let compression = Compression::from_name(&meta.block_compression)
-        .ok_or_else(|| format!("unknown block compression {:?}", meta.block_compression))?;
-    if meta.sources_per_block == 0 {
-        return Err("zero sources per block".into());
+        .ok_or_else(|| format!("unknown block coding {:?}", meta.block_compression))?;
+    if meta.sources_per_block == 0 || meta.targets_per_group == 0 {
+        return Err("zero sources per block or targets per group".into());
     }
     if meta.max_block_bytes > MAX_BLOCK_BYTES {
         return Err(format!(
@@ -605,7 +874,8 @@ fn check_meta(meta: &Meta) -> std::result::Result<(Header, Compression), String>
     }
     if meta.sources > meta.pairs
         || meta.targets > meta.pairs
-        || (meta.pairs > 0 && meta.sources == 0)
+        || meta.targets > u64::from(u32::MAX)
+        || (meta.pairs > 0 && (meta.sources == 0 || meta.targets == 0))
     {
         return Err(format!(
             "inconsistent counts: {} pairs, {} sources, {} targets",
@@ -636,70 +906,35 @@ fn check_meta(meta: &Meta) -> std::result::Result<(Header, Compression), String>
 /// Iterates over every pair of a table; see [`Table::pairs_iter`].
 pub struct PairIter<'a> {
     table: &'a Table,
-    stream: Option<fst::map::Stream<'a>>,
-    next_ordinal: u64,
-    block: Vec<Options>,
-    current: Option<(String, usize, usize)>,
-    scratch: Vec<u8>,
+    next_block: usize,
+    block: BlockRecords,
+    rank: usize,
+    source: String,
+    options: Options,
+    option: usize,
     failed: bool,
 }
 
-impl<'a> PairIter<'a> {
-    fn new(table: &'a Table) -> PairIter<'a> {
-        PairIter {
-            table,
-            stream: None,
-            next_ordinal: 0,
-            block: Vec::new(),
-            current: None,
-            scratch: Vec::new(),
-            failed: false,
-        }
-    }
-
+impl PairIter<'_> {
+    /// Moves to the next source (decoding the next block when needed); false at the end.
     fn advance_source(&mut self) -> Result<bool> {
-        use fst::Streamer;
         let table = self.table;
-        if self.next_ordinal >= table.meta.sources {
-            return Ok(false);
-        }
-        let stream = &mut self.stream;
-        let next = guard(|| {
-            stream
-                .get_or_insert_with(|| table.index.stream())
-                .next()
-                .map(|(k, v)| (k.to_vec(), v))
-        })
-        .ok_or_else(|| table.damaged_index())?;
-        let Some((key, value)) = next else {
-            return Err(table.corrupt("the source index ends early"));
-        };
-        if value != self.next_ordinal {
-            return Err(table.corrupt(format!(
-                "source ordinal {value} where {} was expected",
-                self.next_ordinal
-            )));
-        }
-        let source =
-            String::from_utf8(key).map_err(|_| table.corrupt("a source phrase is not UTF-8"))?;
-        let per = u64::from(table.meta.sources_per_block);
-        let rank = (self.next_ordinal % per) as usize;
-        if rank == 0 {
-            let block = self.next_ordinal / per;
-            let n = table.sources_in_block(block);
-            let mut scratch = std::mem::take(&mut self.scratch);
-            let bytes = table.block_bytes(block, &mut scratch)?;
-            self.block.clear();
-            for r in 0..n {
-                let mut o = Options::default();
-                let layout = options::BlockLayout::parse(table, bytes, n, r)?;
-                layout.decode_source(table, bytes, &mut o)?;
-                self.block.push(o);
+        while self.rank >= self.block.sources() {
+            if self.next_block >= table.n_blocks {
+                return Ok(false);
             }
-            self.scratch = scratch;
+            table.decode_block(self.next_block, &mut self.block)?;
+            self.next_block += 1;
+            self.rank = 0;
         }
-        self.next_ordinal += 1;
-        self.current = Some((source, rank, 0));
+        self.source.clear();
+        self.source.push_str(
+            std::str::from_utf8(self.block.key(self.rank))
+                .map_err(|_| table.corrupt("a source phrase is not UTF-8"))?,
+        );
+        table.fill(&self.block, self.rank, &mut self.options)?;
+        self.rank += 1;
+        self.option = 0;
         Ok(true)
     }
 }
@@ -712,18 +947,15 @@ impl Iterator for PairIter<'_> {
             return None;
         }
         loop {
-            if let Some((source, rank, k)) = &mut self.current {
-                let options = &self.block[*rank];
-                if let Some(o) = options.get(*k) {
-                    *k += 1;
-                    return Some(Ok(PhrasePair {
-                        source: source.clone(),
-                        target: o.target().to_string(),
-                        alignment: o.alignment().to_vec(),
-                        scores: o.scores().to_vec(),
-                        counts: o.counts().to_vec(),
-                    }));
-                }
+            if let Some(o) = self.options.get(self.option) {
+                self.option += 1;
+                return Some(Ok(PhrasePair {
+                    source: self.source.clone(),
+                    target: o.target().to_string(),
+                    alignment: o.alignment().to_vec(),
+                    scores: o.scores().to_vec(),
+                    counts: o.counts().to_vec(),
+                }));
             }
             match self.advance_source() {
                 Ok(true) => continue,

@@ -1,9 +1,9 @@
 //! Full verification: every checksum, every record.
 
 use crate::error::Result;
-use crate::format::read_varint;
+use crate::format::block::BlockRecords;
 
-use super::{guard, options::BlockLayout, Table, VerifyReport};
+use super::{Table, VerifyReport};
 
 pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
     let data = table.data();
@@ -19,83 +19,58 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
         }
         report.sections += 1;
     }
-    match guard(|| table.index.as_fst().verify()) {
-        Some(Ok(())) => {}
-        _ => return Err(table.corrupt("the source index fails the fst's own checksum")),
+    // Target groups: each decodes completely (word ids checked against the vocabulary).
+    for g in 0..table.n_groups {
+        let group = table.decode_group(g)?;
+        report.targets += group.ends.len() as u64;
     }
-
-    // Vocabulary: every word readable.
-    let s = &table.sections;
-    for w in 0..s.words {
-        s.word(data, w).map_err(|r| table.corrupt(r))?;
+    if report.targets != table.meta.targets {
+        return Err(table.corrupt(format!(
+            "the target groups hold {} targets, the metadata says {}",
+            report.targets, table.meta.targets
+        )));
     }
-    // Targets: decoded in sequence, each record's start marked for the reference check.
-    let td = s.target_data(data);
-    let mut starts = vec![0u64; td.len().div_ceil(64)];
-    let mut pos = 0usize;
-    for t in 0..s.targets {
-        let bad = || table.corrupt(format!("target {t} is malformed"));
-        if pos >= td.len() {
-            return Err(bad());
+    // Blocks: each decodes completely; keys ascend across blocks; every reference and code is
+    // in range.
+    let mut block = BlockRecords::default();
+    let mut last_key: Vec<u8> = Vec::new();
+    let mut sources = 0u64;
+    let code_bytes = table.shape.code_bytes();
+    for b in 0..table.n_blocks {
+        table.decode_block(b, &mut block)?;
+        if b > 0 && block.key(0) <= last_key.as_slice() {
+            return Err(table.corrupt(format!("block {b}'s first key is out of order")));
         }
-        starts[pos / 64] |= 1 << (pos % 64);
-        let n = read_varint(td, &mut pos).ok_or_else(bad)?;
-        if n == 0 {
-            return Err(bad());
+        for r in 0..block.sources() {
+            std::str::from_utf8(block.key(r))
+                .map_err(|_| table.corrupt(format!("a source phrase in block {b} is not UTF-8")))?;
         }
-        for _ in 0..n.min(td.len() as u64 + 1) {
-            let w = read_varint(td, &mut pos).ok_or_else(bad)?;
-            if w >= s.words {
-                return Err(
-                    table.corrupt(format!("target {t} uses word {w} outside the vocabulary"))
-                );
+        last_key.clear();
+        last_key.extend_from_slice(block.key(block.sources() - 1));
+        for (k, &t) in block.targets.iter().enumerate() {
+            if u64::from(t) >= table.meta.targets {
+                return Err(table.corrupt(format!(
+                    "block {b} refers to target {t} of {}",
+                    table.meta.targets
+                )));
+            }
+            let mut at = k * code_bytes;
+            for codec in &table.codecs {
+                let w = codec.width();
+                codec.decode(&block.codes[at..at + w]).ok_or_else(|| {
+                    table.corrupt(format!("block {b} holds a score code outside its codebook"))
+                })?;
+                at += w;
             }
         }
-        report.targets += 1;
-    }
-    if pos != td.len() {
-        return Err(table.corrupt("the target data has unexplained trailing bytes"));
-    }
-    // Blocks: every column parses to its end; every target reference starts a target record.
-    let mut scratch = Vec::new();
-    for b in 0..s.blocks {
-        let bytes = table.block_bytes(b, &mut scratch)?;
-        let layout = BlockLayout::parse(table, bytes, table.sources_in_block(b), 0)?;
-        layout.check_complete(table, bytes, |offset| {
-            let at = offset as usize;
-            if offset < td.len() as u64 && starts[at / 64] & (1 << (at % 64)) != 0 {
-                Ok(())
-            } else {
-                Err(table.corrupt(format!(
-                    "block {b} refers to {offset}, which starts no target"
-                )))
-            }
-        })?;
+        sources += block.sources() as u64;
+        report.pairs += block.targets.len() as u64;
         report.blocks += 1;
     }
-    // Every pair through the index: ordinals in sequence, links inside their phrases.
-    for pair in table.pairs_iter() {
-        let pair = pair?;
-        let (sl, tl) = (
-            pair.source.split(' ').count(),
-            pair.target.split(' ').count(),
-        );
-        if let Some(&(i, j)) = pair
-            .alignment
-            .iter()
-            .find(|&&(i, j)| usize::from(i) >= sl || usize::from(j) >= tl)
-        {
-            return Err(table.corrupt(format!(
-                "the pair ({:?}, {:?}) has link {i}-{j} outside its phrases",
-                pair.source, pair.target
-            )));
-        }
-        report.pairs += 1;
-    }
-    if report.pairs != table.meta.pairs {
+    if sources != table.meta.sources || report.pairs != table.meta.pairs {
         return Err(table.corrupt(format!(
-            "{} pairs decoded, the metadata says {}",
-            report.pairs, table.meta.pairs
+            "the blocks hold {sources} sources and {} pairs, the metadata says {} and {}",
+            report.pairs, table.meta.sources, table.meta.pairs
         )));
     }
     Ok(report)

@@ -31,9 +31,8 @@
 //! [pack]                        # all optional, defaults as `baler pack`
 //! bits = 8                      # or "f32"
 //! block_sources = 16
-//! compression = "zstd"
-//! zstd_level = 9
-//! dictionary_size = "64K"
+//! group_targets = 16
+//! compression = "rans"            # or "none"
 //!
 //! [output]                      # paths relative to the recipe's folder too
 //! table = "../demo-out/toolshed.bale"

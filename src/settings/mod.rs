@@ -2,10 +2,10 @@
 //!
 //! Each [`Setting`] names an option once — its key, value placeholder, help, default and the
 //! one function that validates it — and everything else is derived from that entry: the
-//! command-line flag (`key` with dashes: `zstd_level` is `--zstd-level`), the recipe key (the
+//! command-line flag (`key` with dashes: `block_sources` is `--block-sources`), the recipe key (the
 //! key itself, in `[pack]`), the `sweep --vary` name (either spelling) and the library's check
-//! ([`PackSettings::set`]). A recipe with `zstd_level = 99` is therefore refused while the recipe
-//! is read, with the same reason as `--zstd-level 99` on the command line.
+//! ([`PackSettings::set`]). A recipe with `block_sources = 0` is therefore refused while the recipe
+//! is read, with the same reason as `--block-sources 0` on the command line.
 //!
 //! # Adding a setting
 //!
@@ -20,11 +20,11 @@
 //! use baler::settings::PackSettings;
 //! let mut settings = PackSettings::default();
 //! settings.set("bits", "6")?;
-//! settings.set("zstd-level", "19")?;
-//! assert!(settings.set("zstd_level", "99").unwrap_err().to_string().contains("zstd_level"));
+//! settings.set("group-targets", "32")?;
+//! assert!(settings.set("block_sources", "0").unwrap_err().to_string().contains("block_sources"));
 //! let mut options = baler::pack::PackOptions::default();
 //! settings.apply(&mut options);
-//! assert_eq!((options.bits, options.zstd_level), (Some(6), 19));
+//! assert_eq!((options.bits, options.targets_per_group), (Some(6), 32));
 //! # Ok::<(), baler::Error>(())
 //! ```
 
@@ -49,7 +49,7 @@ pub struct Setting {
 }
 
 impl Setting {
-    /// The command-line flag without its dashes (`zstd-level`).
+    /// The command-line flag without its dashes (`block-sources`).
     pub fn flag(&self) -> String {
         self.key.replace('_', "-")
     }
@@ -71,26 +71,20 @@ pub const BLOCK_SOURCES: Setting = Setting {
            [default: 16, or the input table's]",
     default: None,
 };
+/// `--group-targets`.
+pub const GROUP_TARGETS: Setting = Setting {
+    key: "group_targets",
+    value_name: "N",
+    help: "Target phrases per target group: smaller is faster to look up, larger packs tighter \
+           [default: 16, or the input table's]",
+    default: None,
+};
 /// `--compression`.
 pub const COMPRESSION: Setting = Setting {
     key: "compression",
     value_name: "KIND",
-    help: "Block compression: zstd or none [default: zstd, or the input table's]",
-    default: None,
-};
-/// `--zstd-level`.
-pub const ZSTD_LEVEL: Setting = Setting {
-    key: "zstd_level",
-    value_name: "LEVEL",
-    help: "zstd level for blocks (1..22) [default: 9, or the input table's]",
-    default: None,
-};
-/// `--dictionary-size`.
-pub const DICTIONARY_SIZE: Setting = Setting {
-    key: "dictionary_size",
-    value_name: "SIZE",
-    help: "Size of the zstd dictionary trained on sample blocks (0 for none), e.g. 64K \
-           [default: 64K, or the input table's]",
+    help: "Coding of blocks: rans (compact) or none (plain varints, faster cold reads) \
+           [default: rans, or the input table's]",
     default: None,
 };
 /// `--memory`.
@@ -116,13 +110,7 @@ pub const TEMP_DIR: Setting = Setting {
 };
 
 /// The settings of a packed table, in the order `--help` lists them.
-pub const PACK: [Setting; 5] = [
-    BITS,
-    BLOCK_SOURCES,
-    COMPRESSION,
-    ZSTD_LEVEL,
-    DICTIONARY_SIZE,
-];
+pub const PACK: [Setting; 4] = [BITS, BLOCK_SOURCES, GROUP_TARGETS, COMPRESSION];
 /// The resources every heavy command takes.
 pub const RESOURCES: [Setting; 3] = [MEMORY, THREADS, TEMP_DIR];
 
@@ -139,12 +127,10 @@ pub struct PackSettings {
     pub bits: Option<Option<u8>>,
     /// Sources per option block.
     pub sources_per_block: Option<u32>,
-    /// Block compression.
+    /// Target phrases per target group.
+    pub targets_per_group: Option<u32>,
+    /// Coding of blocks.
     pub compression: Option<Compression>,
-    /// zstd level.
-    pub zstd_level: Option<i32>,
-    /// Dictionary bytes.
-    pub dictionary_bytes: Option<usize>,
 }
 
 impl PackSettings {
@@ -180,22 +166,18 @@ impl PackSettings {
                         .ok_or_else(|| bad(format!("{text:?} is not a count of at least 1")))?,
                 )
             }
+            "group_targets" => {
+                self.targets_per_group = Some(
+                    text.parse::<u32>()
+                        .ok()
+                        .filter(|&n| (1..=1 << 20).contains(&n))
+                        .ok_or_else(|| bad(format!("{text:?} is not a count in 1..1048576")))?,
+                )
+            }
             "compression" => {
                 self.compression = Some(
                     Compression::from_name(text)
-                        .ok_or_else(|| bad(format!("{text:?} is not zstd or none")))?,
-                )
-            }
-            "zstd_level" => {
-                self.zstd_level = Some(match text.parse::<i32>() {
-                    Ok(l) if (1..=22).contains(&l) => l,
-                    _ => return Err(bad(format!("{text:?} is not a level in 1..22"))),
-                })
-            }
-            "dictionary_size" => {
-                self.dictionary_bytes = Some(
-                    parse_size(text).map_err(|_| bad(format!("{text:?} is not a size like 64K")))?
-                        as usize,
+                        .ok_or_else(|| bad(format!("{text:?} is not rans or none")))?,
                 )
             }
             _ => unreachable!("every PACK setting has an arm"),
@@ -204,14 +186,14 @@ impl PackSettings {
     }
 
     /// The settings a packed table was written with, from its provenance (`bits`,
-    /// `sources_per_block`, `compression`, `zstd_level`, `dictionary_bytes`).
+    /// `sources_per_block`, `targets_per_group`, `compression`).
     pub fn of_table(meta: &Meta) -> PackSettings {
         let mut s = PackSettings::default();
         for (key, value) in &meta.provenance {
             let key = match key.as_str() {
                 "sources_per_block" => "block_sources",
-                "dictionary_bytes" => "dictionary_size",
-                k @ ("bits" | "compression" | "zstd_level") => k,
+                "targets_per_group" => "group_targets",
+                k @ ("bits" | "compression") => k,
                 _ => continue,
             };
             let _ = s.set(key, value); // a value this version cannot use keeps the default
@@ -224,9 +206,8 @@ impl PackSettings {
         PackSettings {
             bits: self.bits.or(fallback.bits),
             sources_per_block: self.sources_per_block.or(fallback.sources_per_block),
+            targets_per_group: self.targets_per_group.or(fallback.targets_per_group),
             compression: self.compression.or(fallback.compression),
-            zstd_level: self.zstd_level.or(fallback.zstd_level),
-            dictionary_bytes: self.dictionary_bytes.or(fallback.dictionary_bytes),
         }
     }
 
@@ -238,14 +219,11 @@ impl PackSettings {
         if let Some(n) = self.sources_per_block {
             options.sources_per_block = n;
         }
+        if let Some(n) = self.targets_per_group {
+            options.targets_per_group = n;
+        }
         if let Some(c) = self.compression {
             options.compression = c;
-        }
-        if let Some(l) = self.zstd_level {
-            options.zstd_level = l;
-        }
-        if let Some(d) = self.dictionary_bytes {
-            options.dictionary_bytes = d;
         }
     }
 }
@@ -324,8 +302,7 @@ pub fn pack_defaults() -> PackSettings {
     PackSettings {
         bits: Some(Some(pack::DEFAULT_BITS)),
         sources_per_block: Some(pack::DEFAULT_SOURCES_PER_BLOCK),
-        compression: Some(Compression::Zstd),
-        zstd_level: Some(pack::DEFAULT_ZSTD_LEVEL),
-        dictionary_bytes: Some(pack::DEFAULT_DICTIONARY_BYTES),
+        targets_per_group: Some(pack::DEFAULT_TARGETS_PER_GROUP),
+        compression: Some(Compression::Rans),
     }
 }
