@@ -64,16 +64,6 @@ enum Command {
 
 /// Parses the command line, runs it, and maps the outcome to an exit code.
 pub fn main() -> ExitCode {
-    // The library turns a panic inside the `fst` crate (possible only on a damaged source index,
-    // whose bytes that crate trusts) into a "damaged" error; keep its panic message off the
-    // terminal so the user sees just that error.
-    let default_hook = std::panic::take_hook();
-    std::panic::set_hook(Box::new(move |info| {
-        let in_fst = info.location().is_some_and(|l| l.file().contains("/fst-"));
-        if !in_fst {
-            default_hook(info);
-        }
-    }));
     let cli = Cli::parse();
     if let Err(e) = baler::files::remove_on_interrupt(
         "baler: interrupted; partial outputs and temporary files removed",
