@@ -326,6 +326,60 @@ impl TempDir {
     }
 }
 
+/// An empty temporary file beside `output`, for a writer that needs a path rather than a
+/// stream (count runs, indexes, tallies); [`Partial::persist`] renames it into place. Until
+/// then it is removed when dropped and when the process is interrupted, like an [`Output`].
+///
+/// # Examples
+/// ```
+/// let dir = tempfile::tempdir().unwrap();
+/// let out = dir.path().join("shard.run");
+/// let partial = baler::files::Partial::beside(&out).unwrap();
+/// std::fs::write(partial.path(), b"counts").unwrap();
+/// assert!(!out.exists());
+/// partial.persist().unwrap();
+/// assert_eq!(std::fs::read(&out).unwrap(), b"counts");
+/// ```
+pub struct Partial {
+    output: PathBuf,
+    temp: tempfile::TempPath,
+    _registered: Registered,
+}
+
+impl Partial {
+    /// Creates the temporary file in `output`'s directory. Errors name `output`.
+    pub fn beside(output: &Path) -> Result<Partial> {
+        let dir = match output.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p,
+            _ => Path::new("."),
+        };
+        let temp = tempfile::Builder::new()
+            .prefix(".baler-partial-")
+            .tempfile_in(dir)
+            .map_err(|e| Error::io(output, "creating", without_path(e)))?
+            .into_temp_path();
+        let registered = Registered::new(temp.to_path_buf(), false);
+        Ok(Partial {
+            output: output.to_path_buf(),
+            temp,
+            _registered: registered,
+        })
+    }
+
+    /// The temporary file's path, to write to.
+    pub fn path(&self) -> &Path {
+        &self.temp
+    }
+
+    /// Renames the finished file to the output's name.
+    pub fn persist(self) -> Result<()> {
+        let output = self.output;
+        self.temp
+            .persist(&output)
+            .map_err(|e| Error::io(&output, "renaming into place", without_path(e.error)))
+    }
+}
+
 /// Paths to remove if the process is interrupted, by registration number.
 static PENDING: Mutex<Vec<(u64, PathBuf, bool)>> = Mutex::new(Vec::new());
 static NEXT_ID: AtomicU64 = AtomicU64::new(0);

@@ -585,3 +585,143 @@ fn defect_13_relative_entropy_pruning_respects_the_memory_budget() {
     assert_eq!(out.status.code(), Some(2));
     assert!(stderr(&out).contains("memory"), "{}", stderr(&out));
 }
+
+/// A small word-aligned corpus of harbour sentences: source, target and alignment files.
+fn harbour_corpus(dir: &Path) -> [std::path::PathBuf; 3] {
+    [
+        write(dir, "h.src", "el faro\nel muelle\n"),
+        write(dir, "h.tgt", "the lighthouse\nthe pier\n"),
+        write(dir, "h.align", "0-0 1-1\n0-0 1-1\n"),
+    ]
+}
+
+#[test]
+fn defect_09_extract_refuses_an_output_that_is_an_input() {
+    let dir = tempdir();
+    let [src, tgt, align] = harbour_corpus(dir.path());
+    let other_name = dir.path().join("links.txt");
+    std::fs::hard_link(&align, &other_name).unwrap();
+    let corpus = [
+        "--source",
+        s(&src),
+        "--target",
+        s(&tgt),
+        "--alignment",
+        s(&align),
+        "-q",
+    ];
+    for (step, output) in [(None, &other_name), (Some("shard"), &src)] {
+        let before = std::fs::read(output).unwrap();
+        let mut args = vec!["extract"];
+        args.extend(step);
+        args.extend(corpus);
+        args.extend(["-o", s(output)]);
+        let out = baler(&args, None);
+        assert_eq!(out.status.code(), Some(2), "{args:?}");
+        assert!(stderr(&out).contains("same file"), "{}", stderr(&out));
+        assert_eq!(std::fs::read(output).unwrap(), before, "{args:?}");
+    }
+    // the reduce steps: a merged table written over its own count run
+    let run = dir.path().join("h.run");
+    let mut args = vec!["extract", "shard"];
+    args.extend(corpus);
+    args.extend(["-o", s(&run)]);
+    baler_ok(&args);
+    let before = std::fs::read(&run).unwrap();
+    let out = baler(&["extract", "merge", s(&run), "-o", s(&run), "-q"], None);
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert_eq!(std::fs::read(&run).unwrap(), before);
+}
+
+#[cfg(unix)]
+#[test]
+fn defect_10_extract_finds_an_unwritable_output_before_the_work() {
+    // The source is a named pipe nobody writes to: opening it blocks, so only a check made
+    // before reading the corpus can finish the run.
+    let dir = tempdir();
+    let [_, tgt, align] = harbour_corpus(dir.path());
+    let fifo = dir.path().join("never.src");
+    let made = std::process::Command::new("mkfifo")
+        .arg(&fifo)
+        .status()
+        .unwrap();
+    assert!(made.success());
+    let missing = dir.path().join("no/such/dir/out.tsv");
+    for step in [None, Some("shard")] {
+        let mut args = vec!["extract"];
+        args.extend(step);
+        args.extend([
+            "--source",
+            s(&fifo),
+            "--target",
+            s(&tgt),
+            "--alignment",
+            s(&align),
+            "-o",
+            s(&missing),
+            "-q",
+        ]);
+        let mut child = command(&args).stdin(Stdio::null()).spawn().unwrap();
+        let status = wait_at_most(&mut child, Duration::from_secs(20))
+            .expect("it stops at once instead of reading the corpus");
+        assert_eq!(status.code(), Some(2), "{args:?}");
+        let mut err = String::new();
+        child
+            .stderr
+            .take()
+            .unwrap()
+            .read_to_string(&mut err)
+            .unwrap();
+        assert!(err.contains("out.tsv"), "{err}");
+    }
+}
+
+#[test]
+fn defect_02_interrupted_extract_removes_its_temporary_files() {
+    let dir = tempdir();
+    let corpus = baler::extract::synthetic::SyntheticCorpus {
+        sentence_pairs: 200_000,
+        mean_length: 20,
+        vocabulary: 5000,
+        variant: 3,
+    }
+    .write(dir.path(), "harbour", "")
+    .unwrap();
+    let temp = dir.path().join("temp");
+    let out_dir = dir.path().join("out");
+    std::fs::create_dir_all(&temp).unwrap();
+    std::fs::create_dir_all(&out_dir).unwrap();
+    let table = out_dir.join("table.tsv");
+    let (code, err) = interrupt(
+        &[
+            "extract",
+            "--source",
+            s(&corpus.source),
+            "--target",
+            s(&corpus.target),
+            "--alignment",
+            s(corpus.alignment.as_ref().unwrap()),
+            "-o",
+            s(&table),
+            "--memory",
+            "16M",
+            "--threads",
+            "1",
+            "--temp-dir",
+            s(&temp),
+            "-q",
+        ],
+        "-INT",
+        // interrupted once its spilled runs exist inside the temporary directory
+        || {
+            std::fs::read_dir(&temp)
+                .unwrap()
+                .flatten()
+                .any(|d| std::fs::read_dir(d.path()).is_ok_and(|mut r| r.next().is_some()))
+        },
+    );
+    assert_eq!(code, Some(130), "{err}");
+    assert!(err.contains("interrupted"), "{err}");
+    assert_eq!(entries(&temp), Vec::<String>::new());
+    assert_eq!(entries(&out_dir), Vec::<String>::new());
+}

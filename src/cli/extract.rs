@@ -5,7 +5,7 @@
 //! `shard` (map) → `merge` (reduce) → `tally` (map) → `attach` (reduce).
 
 use std::io::Write;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 use baler::extract::corpus::{CorpusOptions, CorpusPaths, CorpusStats};
@@ -14,7 +14,7 @@ use baler::extract::score::{Discount, MergeOptions};
 use baler::extract::sentences::TallyOptions;
 use baler::extract::shard::ShardOptions;
 use baler::extract::{peak_memory, ExtractOptions};
-use baler::files::Output;
+use baler::files::{check_output, Output};
 use baler::Error;
 
 #[derive(clap::Args)]
@@ -323,6 +323,11 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
                 temp_dir: resources.temp_dir.clone(),
                 index,
             };
+            let inputs: Vec<&Path> = runs.iter().map(PathBuf::as_path).collect();
+            check_output(&output, &inputs)?;
+            if let Some(index) = &options.index {
+                check_output(index, &inputs)?;
+            }
             let mut out = Output::create(&output)?;
             let s = baler::extract::score::merge_and_score(&runs, &mut out, &output, &options)?;
             out.commit()?;
@@ -378,6 +383,9 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             tallies,
             output,
         }) => {
+            let mut inputs: Vec<&Path> = tallies.iter().map(PathBuf::as_path).collect();
+            inputs.push(&table);
+            check_output(&output, &inputs)?;
             let mut out = Output::create(&output)?;
             baler::extract::sentences::attach(&table, &tallies, &mut out, &output)?;
             out.commit()?;

@@ -30,6 +30,16 @@ pub struct CorpusPaths {
     pub alignment: Option<PathBuf>,
 }
 
+impl CorpusPaths {
+    /// The files read: source, target and the alignment when given (for
+    /// [`crate::files::check_output`]).
+    pub fn inputs(&self) -> Vec<&Path> {
+        let mut inputs = vec![self.source.as_path(), self.target.as_path()];
+        inputs.extend(self.alignment.as_deref());
+        inputs
+    }
+}
+
 /// How to read the corpus.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct CorpusOptions {

@@ -111,7 +111,7 @@ impl FstFeed {
 /// Builds an index while the reduce step streams the table; the parts go to temporary files
 /// and are joined by [`IndexWriter::finish`].
 pub(crate) struct IndexWriter {
-    dir: tempfile::TempDir,
+    dir: crate::files::TempDir,
     targets: FstFeed,
     sources: FstFeed,
     rows: BufWriter<File>,
@@ -196,17 +196,9 @@ impl IndexWriter {
         self.rows.flush().map_err(dir_err)?;
         self.info.sentence_pairs = sentence_pairs;
         self.info.max_sentence_length = max_sentence_length;
-        let parent = match out.parent() {
-            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-            _ => PathBuf::from("."),
-        };
-        let temp = tempfile::Builder::new()
-            .prefix(".baler-partial-")
-            .tempfile_in(&parent)
-            .map_err(|e| Error::io(out, "creating", e))?
-            .into_temp_path();
+        let temp = crate::files::Partial::beside(out)?;
         let werr = |e| Error::io(out, "writing", e);
-        let file = File::create(&temp).map_err(werr)?;
+        let file = File::create(temp.path()).map_err(werr)?;
         let mut enc = zstd::stream::write::Encoder::new(BufWriter::new(file), 1).map_err(werr)?;
         enc.include_checksum(true).map_err(werr)?;
         let json = serde_json::to_vec(&self.info).expect("index info serializes");
@@ -230,8 +222,7 @@ impl IndexWriter {
         let mut w = enc.finish().map_err(werr)?;
         w.flush().map_err(werr)?;
         drop(w);
-        temp.persist(out)
-            .map_err(|e| Error::io(out, "renaming into place", e.error))?;
+        temp.persist()?;
         Ok(())
     }
 }

@@ -125,6 +125,7 @@ pub fn extract(
         }
     }
     shard::check_settings(paths, &options.shard)?;
+    crate::files::check_output(out, &paths.inputs())?;
     let mut output = Output::create(out)?;
     if let Some(done) =
         resident::extract_resident(paths, &options.shard, options.discount, &mut output, out)?

@@ -16,7 +16,7 @@ pub(crate) struct Resorter {
     budget: usize,
     arena: Vec<u8>,
     index: Vec<Slot>,
-    dir: Option<tempfile::TempDir>,
+    dir: Option<crate::files::TempDir>,
     parent: Option<PathBuf>,
     runs: Vec<PathBuf>,
 }
@@ -120,7 +120,7 @@ impl Resorter {
 pub(crate) struct Sorted {
     memory: Option<(Vec<u8>, Vec<Slot>, usize)>,
     merger: Option<RunMerger>,
-    _dir: Option<tempfile::TempDir>,
+    _dir: Option<crate::files::TempDir>,
 }
 
 impl Sorted {

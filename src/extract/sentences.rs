@@ -486,6 +486,9 @@ pub fn tally(
             ));
         }
     }
+    let mut inputs = corpus.inputs();
+    inputs.push(index);
+    files::check_output(out, &inputs)?;
     let mut index = IndexReader::open(index)?;
     let max_sentence_length = options
         .max_sentence_length
@@ -504,15 +507,7 @@ pub fn tally(
         + index.info.targets as usize * 4;
     // Half of what is left: the chunk's vectors grow by doubling.
     let chunk_budget = ((options.memory as usize).saturating_sub(fixed) / 2).max(1 << 16);
-    let dir = match out.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
-    let temp = tempfile::Builder::new()
-        .prefix(".baler-partial-")
-        .tempfile_in(&dir)
-        .map_err(|e| Error::io(out, "creating", e))?
-        .into_temp_path();
+    let temp = crate::files::Partial::beside(out)?;
     let mut writer: Option<TallyWriter> = None;
     let mut info = TallyInfo {
         table_pairs: index.info.rows,
@@ -545,7 +540,7 @@ pub fn tally(
         )?;
         (info.corpus, info.shard) = stats;
         if writer.is_none() {
-            writer = Some(TallyWriter::create(&temp, &info)?);
+            writer = Some(TallyWriter::create(temp.path(), &info)?);
         }
         let writer = writer.as_mut().expect("created above");
         for k in 0..chunk.offsets.len() - 1 {
@@ -562,8 +557,7 @@ pub fn tally(
         }
     }
     writer.expect("at least one pass").finish()?;
-    temp.persist(out)
-        .map_err(|e| Error::io(out, "renaming into place", e.error))?;
+    temp.persist()?;
     Ok(info)
 }
 

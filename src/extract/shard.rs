@@ -15,6 +15,7 @@ use super::phrases::{write_inside, PhraseFinder, PhraseLimits, SpanPair};
 use super::report::Progress;
 use super::runs::{RunInfo, RunMerger, RunReader, RunWriter, PHRASE_KIND, WORD_KIND};
 use crate::error::{Error, Result};
+use crate::files::TempDir;
 
 const BATCH: usize = 512;
 
@@ -54,15 +55,13 @@ pub struct ShardRuns {
     pub runs: Vec<PathBuf>,
     /// The shard's combined header.
     pub info: RunInfo,
-    _dir: tempfile::TempDir,
+    _dir: TempDir,
 }
 
-pub(crate) fn temp_dir(parent: &Option<PathBuf>, prefix: &str) -> Result<tempfile::TempDir> {
-    let mut b = tempfile::Builder::new();
-    b.prefix(prefix);
-    let parent_path = parent.clone().unwrap_or_else(std::env::temp_dir);
-    b.tempdir_in(&parent_path)
-        .map_err(|e| Error::io(parent_path, "creating a temporary directory in", e))
+/// A registered temporary directory (removed on drop and on Ctrl-C/SIGTERM) named `prefix…`
+/// inside `parent`, or the system's temporary directory.
+pub(crate) fn temp_dir(parent: &Option<PathBuf>, prefix: &str) -> Result<TempDir> {
+    TempDir::new(parent.as_deref(), prefix)
 }
 
 /// Checks the settings of an extraction before any work.
@@ -295,23 +294,14 @@ pub fn merge_runs_into(runs: &[PathBuf], out: &Path) -> Result<RunInfo> {
         acc.add(&r.info().corpus);
         acc
     });
-    let dir = match out.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
-    let temp = tempfile::Builder::new()
-        .prefix(".baler-partial-")
-        .tempfile_in(&dir)
-        .map_err(|e| Error::io(out, "creating", e))?
-        .into_temp_path();
-    let mut writer = RunWriter::create(&temp, &info)?;
+    let temp = crate::files::Partial::beside(out)?;
+    let mut writer = RunWriter::create(temp.path(), &info)?;
     let mut merger = RunMerger::new(readers)?;
     while let Some((key, count)) = merger.next_record()? {
         writer.push(key, count)?;
     }
     writer.finish()?;
-    temp.persist(out)
-        .map_err(|e| Error::io(out, "renaming into place", e.error))?;
+    temp.persist()?;
     Ok(info)
 }
 
@@ -355,6 +345,8 @@ pub(crate) fn combined_info(paths: &[PathBuf], readers: &[RunReader]) -> Result<
 /// assert_eq!((info.corpus.sentence_pairs, info.pair_occurrences), (1, 3));
 /// ```
 pub fn extract_shard(paths: &CorpusPaths, options: &ShardOptions, out: &Path) -> Result<RunInfo> {
+    check_settings(paths, options)?;
+    crate::files::check_output(out, &paths.inputs())?;
     let runs = extract_runs(paths, options)?;
     merge_runs_into(&runs.runs, out)
 }
