@@ -22,6 +22,7 @@
 //! # Ok(()) }
 //! ```
 
+use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use serde::Serialize;
@@ -168,4 +169,68 @@ pub fn versus(base: &Quality, other: &Quality, samples: usize) -> QualityDelta {
         share_better: 1.0 - r.bleu_p,
         chrf: other.chrf - base.chrf,
     }
+}
+
+/// Quality of every table, the base first.
+#[derive(Clone, Debug, Serialize)]
+pub struct QualityReport {
+    /// (table, quality, difference from the base)
+    pub tables: Vec<(String, Quality, Option<QualityDelta>)>,
+}
+
+impl QualityReport {
+    /// The readable block: one line per table.
+    pub fn to_text(&self) -> String {
+        let mut s = String::from(
+            "\ntranslation quality (paired bootstrap against the base, 1000 samples)\n",
+        );
+        let _ = writeln!(
+            s,
+            "{:<40} {:>7} {:>7} {:>8} {:>18} {:>8}",
+            "table", "BLEU", "chrF", "ΔBLEU", "95% interval", "better"
+        );
+        for (name, q, d) in &self.tables {
+            match d {
+                None => {
+                    let _ = writeln!(s, "{name:<40} {:>7.2} {:>7.2}", q.bleu, q.chrf);
+                }
+                Some(d) => {
+                    let _ = writeln!(
+                        s,
+                        "{name:<40} {:>7.2} {:>7.2} {:>+8.2} {:>18} {:>8.3}",
+                        q.bleu,
+                        q.chrf,
+                        d.bleu,
+                        format!("[{:+.2}, {:+.2}]", d.bleu_interval.0, d.bleu_interval.1),
+                        d.share_better
+                    );
+                }
+            }
+        }
+        s
+    }
+}
+
+/// Decodes the test set with `base` and each of `others` (packed tables) using the model at
+/// `lm` and the weights file `weights` (defaults otherwise), and scores each against
+/// `reference`, with the paired-bootstrap difference of each other table from the base.
+pub fn measure_tables(
+    lm: &Path,
+    weights: Option<&Path>,
+    test: &Path,
+    reference: &Path,
+    base: &Path,
+    others: &[PathBuf],
+) -> Result<QualityReport> {
+    let lm = LanguageModel::open(lm)?;
+    let set = TestSet::read(test, reference)?;
+    let setup = QualitySetup::new(&lm, weights.map(Path::to_path_buf));
+    let base_q = measure_path(base, &set, &setup)?;
+    let mut tables = vec![(base.display().to_string(), base_q.clone(), None)];
+    for p in others {
+        let q = measure_path(p, &set, &setup)?;
+        let d = versus(&base_q, &q, setup.samples);
+        tables.push((p.display().to_string(), q, Some(d)));
+    }
+    Ok(QualityReport { tables })
 }

@@ -822,3 +822,93 @@ fn keep_test_phrases_keeps_only_sources_in_the_text() {
         ["au", "au quai", "bac", "bac part", "le", "le bac", "part", "quai"]
     );
 }
+
+/// A recipe on the demo data with a `[quality]` table: `baler build` reports BLEU and chrF of
+/// the packed table equal to decoding the held-out set by hand (`baler translate`) and scoring
+/// it with `baler evaluate` (whose BLEU and chrF are checked against sacrebleu above).
+#[test]
+fn build_recipes_report_bleu_and_chrf() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = |n: &str| crate::util::repo(&format!("demo-data/{n}"));
+    let lm = dir.path().join("es.balm");
+    baler_ok(&["lm", "build", s(&data("toolshed.es")), "-o", s(&lm), "-q"]);
+    let head = format!(
+        "[corpus]\nsource = \"{}\"\ntarget = \"{}\"\nalignment = \"{}\"\n\
+         [[filter]]\nsignificance = \"alpha+epsilon\"\n\
+         [output]\ntable = \"out.bale\"\nreport = \"report.json\"\n",
+        s(&data("toolshed.en")),
+        s(&data("toolshed.es")),
+        s(&data("toolshed.align"))
+    );
+    let held_out = format!(
+        "[held_out]\nsource = \"{}\"\nreference = \"{}\"\n",
+        s(&data("toolshed.test.en")),
+        s(&data("toolshed.test.es"))
+    );
+    let recipe = crate::util::write(
+        dir.path(),
+        "r.toml",
+        &format!("{head}{held_out}[quality]\nlm = \"es.balm\"\n"),
+    );
+    let text = baler_ok(&["build", s(&recipe), "--quiet"]);
+    assert!(text.contains("translation quality"), "{text}");
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("report.json")).unwrap())
+            .unwrap();
+    let tables = report["quality"]["tables"].as_array().unwrap();
+    assert_eq!(tables.len(), 2, "{report}");
+    let packed = &tables[1][1];
+    let hyp = dir.path().join("hyp.es");
+    baler_ok(&[
+        "translate",
+        s(&dir.path().join("out.bale")),
+        "--lm",
+        s(&lm),
+        "--input",
+        s(&data("toolshed.test.en")),
+        "-o",
+        s(&hyp),
+    ]);
+    let (bleu, chrf) = evaluate(&hyp, &data("toolshed.test.es"));
+    assert!(
+        (packed["bleu"].as_f64().unwrap() - bleu).abs() < 0.01,
+        "{report} {bleu}"
+    );
+    assert!(
+        (packed["chrf"].as_f64().unwrap() - chrf).abs() < 0.01,
+        "{report} {chrf}"
+    );
+    assert!(bleu > 0.0);
+
+    // checked before any work, at the recipe's line
+    let cases = [
+        (
+            format!("{head}[quality]\nlm = \"es.balm\"\n"),
+            10,
+            "reference",
+        ),
+        (
+            format!("{head}{held_out}[quality]\nlm = \"missing.balm\"\n"),
+            14,
+            "missing.balm",
+        ),
+        (
+            format!("{head}{held_out}[quality]\nlm = \"es.balm\"\nlanguage = \"es\"\n"),
+            15,
+            "unknown field",
+        ),
+    ];
+    std::fs::remove_file(dir.path().join("out.bale")).unwrap();
+    for (i, (text, line, needle)) in cases.iter().enumerate() {
+        let path = crate::util::write(dir.path(), &format!("bad{i}.toml"), text);
+        let out = baler(&["build", s(&path), "--quiet"], None);
+        assert_eq!(out.status.code(), Some(2), "case {i}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            err.contains(&format!("bad{i}.toml:{line}:")),
+            "case {i}: {err}"
+        );
+        assert!(err.contains(needle), "case {i}: {err}");
+        assert!(!dir.path().join("out.bale").exists(), "case {i}");
+    }
+}

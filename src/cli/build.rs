@@ -47,13 +47,13 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         );
     }
     let text = if args.json {
-        let mut s = serde_json::to_string_pretty(&report.comparison).expect("figures serialize");
+        let mut s = serde_json::to_string_pretty(&report.to_json()).expect("figures serialize");
         s.push('\n');
         s
     } else if args.csv {
         report.comparison.to_csv()
     } else {
-        report.comparison.to_text()
+        report.to_text()
     };
     super::print(&text)?;
     Ok(ExitCode::SUCCESS)

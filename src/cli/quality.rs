@@ -4,11 +4,9 @@
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-use baler::lm::LanguageModel;
 use baler::measure::{Panel, PlotPoint, SweepReport};
-use baler::quality::{self, Quality, QualityDelta, QualitySetup, TestSet};
+use baler::quality::{self, QualityReport};
 use baler::Error;
-use serde::Serialize;
 
 /// `--lm` and `--weights`.
 #[derive(clap::Args, Clone)]
@@ -22,65 +20,6 @@ pub struct QualityArgs {
     pub weights: Option<PathBuf>,
 }
 
-/// Quality of every table, the base first.
-#[derive(Serialize)]
-pub struct QualityReport {
-    /// (table, quality, difference from the base)
-    pub tables: Vec<(String, Quality, Option<QualityDelta>)>,
-}
-
-impl QualityReport {
-    pub fn to_text(&self) -> String {
-        let mut s = String::from(
-            "\ntranslation quality (paired bootstrap against the base, 1000 samples)\n",
-        );
-        let _ = writeln!(
-            s,
-            "{:<40} {:>7} {:>7} {:>8} {:>18} {:>8}",
-            "table", "BLEU", "chrF", "ΔBLEU", "95% interval", "better"
-        );
-        for (name, q, d) in &self.tables {
-            match d {
-                None => {
-                    let _ = writeln!(s, "{name:<40} {:>7.2} {:>7.2}", q.bleu, q.chrf);
-                }
-                Some(d) => {
-                    let _ = writeln!(
-                        s,
-                        "{name:<40} {:>7.2} {:>7.2} {:>+8.2} {:>18} {:>8.3}",
-                        q.bleu,
-                        q.chrf,
-                        d.bleu,
-                        format!("[{:+.2}, {:+.2}]", d.bleu_interval.0, d.bleu_interval.1),
-                        d.share_better
-                    );
-                }
-            }
-        }
-        s
-    }
-}
-
-fn measure_all(
-    args: &QualityArgs,
-    test: &Path,
-    reference: &Path,
-    base: &Path,
-    others: &[PathBuf],
-) -> baler::Result<QualityReport> {
-    let lm = LanguageModel::open(args.lm.as_ref().expect("checked"))?;
-    let set = TestSet::read(test, reference)?;
-    let setup = QualitySetup::new(&lm, args.weights.clone());
-    let base_q = quality::measure_path(base, &set, &setup)?;
-    let mut tables = vec![(base.display().to_string(), base_q.clone(), None)];
-    for p in others {
-        let q = quality::measure_path(p, &set, &setup)?;
-        let d = quality::versus(&base_q, &q, setup.samples);
-        tables.push((p.display().to_string(), q, Some(d)));
-    }
-    Ok(QualityReport { tables })
-}
-
 /// `compare`'s quality block, when `--lm` is given.
 pub fn for_tables(
     args: &QualityArgs,
@@ -90,7 +29,15 @@ pub fn for_tables(
     others: &[PathBuf],
 ) -> baler::Result<Option<QualityReport>> {
     match (&args.lm, reference) {
-        (Some(_), Some(r)) => measure_all(args, test, r, base, others).map(Some),
+        (Some(_), Some(r)) => quality::measure_tables(
+            args.lm.as_ref().expect("checked"),
+            args.weights.as_deref(),
+            test,
+            r,
+            base,
+            others,
+        )
+        .map(Some),
         _ => Ok(None),
     }
 }
@@ -129,7 +76,14 @@ pub fn for_sweep(
         packed
     };
     let paths: Vec<PathBuf> = report.settings.iter().map(|s| s.path.clone()).collect();
-    let q = measure_all(args, test, reference, &base, &paths)?;
+    let q = quality::measure_tables(
+        args.lm.as_ref().expect("checked"),
+        args.weights.as_deref(),
+        test,
+        reference,
+        &base,
+        &paths,
+    )?;
     let mut csv = String::from(
         "setting,table,file_bytes,bleu,chrf,bleu_delta,bleu_low,bleu_high,share_better\n",
     );

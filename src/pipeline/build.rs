@@ -9,6 +9,7 @@ use crate::files::{Output, TempDir};
 use crate::measure::{self, CompareOptions, Comparison, MeasuredTable};
 use crate::pack::PackReport;
 use crate::prune::PruneStats;
+use crate::quality::{self, QualityReport};
 use crate::recipe::Recipe;
 
 /// What [`build`] did.
@@ -22,6 +23,24 @@ pub struct BuildReport {
     pub pack: PackReport,
     /// The unpruned table against the packed one (on the held-out set when there is one).
     pub comparison: Comparison,
+    /// BLEU and chrF of both on the held-out set, when the recipe has `[quality]`.
+    pub quality: Option<QualityReport>,
+}
+
+impl BuildReport {
+    /// The report as JSON: the comparison, with a `quality` key when quality was measured.
+    pub fn to_json(&self) -> serde_json::Value {
+        let mut value = serde_json::to_value(&self.comparison).expect("figures serialize");
+        if let Some(q) = &self.quality {
+            value["quality"] = serde_json::to_value(q).expect("figures serialize");
+        }
+        value
+    }
+
+    /// The readable report: the comparison, then the quality block.
+    pub fn to_text(&self) -> String {
+        self.comparison.to_text() + &self.quality.as_ref().map_or(String::new(), |q| q.to_text())
+    }
 }
 
 /// Runs `recipe`: extracts the corpus into the unpruned table (kept at `extracted`, or in a
@@ -117,15 +136,46 @@ pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
         test.as_ref().and_then(|t| t.1.as_deref()),
         &options,
     )?;
-    if let Some(path) = &recipe.report {
-        write_json(path, &comparison)?;
-    }
-    Ok(BuildReport {
+    let quality = match (&recipe.quality, &recipe.held_out) {
+        (Some(q), Some(h)) => {
+            let reference = h.reference.as_deref().expect("checked by the recipe");
+            // decoding reads packed tables: pack the unpruned table once, in the work folder
+            let base = work.path().join("unpruned.bale");
+            let name = extracted.to_string_lossy().into_owned();
+            crate::pack::pack_tsv(
+                crate::files::open_input(&extracted)?,
+                &name,
+                &base,
+                &crate::pack::PackOptions::default(),
+            )?;
+            let mut report = quality::measure_tables(
+                &q.lm,
+                q.weights.as_deref(),
+                &h.source,
+                reference,
+                &base,
+                std::slice::from_ref(&recipe.table),
+            )?;
+            report.tables[0].0 = if recipe.extracted.is_some() {
+                extracted.display().to_string()
+            } else {
+                "extracted (not kept)".to_string()
+            };
+            Some(report)
+        }
+        _ => None,
+    };
+    let report = BuildReport {
         extract: summary,
         prune: stats,
         pack: packed,
         comparison,
-    })
+        quality,
+    };
+    if let Some(path) = &recipe.report {
+        write_json(path, &report.to_json())?;
+    }
+    Ok(report)
 }
 
 fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {

@@ -42,7 +42,11 @@
 //!
 //! [held_out]                    # optional; relative to the recipe's folder
 //! source = "toolshed.test.en"
-//! reference = "toolshed.test.es"        # optional
+//! reference = "toolshed.test.es"        # optional; required by [quality]
+//!
+//! [quality]                     # optional; decode the held-out set, report BLEU and chrF
+//! lm = "../demo-out/toolshed.es.balm"    # target-language model (`baler lm build`)
+//! weights = "toolshed.weights"          # optional decoder weights (`baler tune`)
 //! ```
 //!
 //! Every relative path, input or output, is relative to the recipe's folder, so a recipe
@@ -90,6 +94,16 @@ pub struct HeldOut {
     pub max_length: Option<usize>,
 }
 
+/// Translation quality to report: the held-out set is decoded with the unpruned and the
+/// packed table and scored against its reference.
+#[derive(Clone, Debug, PartialEq)]
+pub struct QualityRecipe {
+    /// The target-language model.
+    pub lm: PathBuf,
+    /// A decoder weights file (defaults otherwise).
+    pub weights: Option<PathBuf>,
+}
+
 /// A parsed, resolved recipe: the options of every stage, and where things go.
 #[derive(Clone, Debug)]
 pub struct Recipe {
@@ -117,6 +131,8 @@ pub struct Recipe {
     pub report: Option<PathBuf>,
     /// The held-out set.
     pub held_out: Option<HeldOut>,
+    /// Translation quality on the held-out set (needs its reference).
+    pub quality: Option<QualityRecipe>,
 }
 
 #[derive(Deserialize)]
@@ -132,6 +148,14 @@ struct Spec {
     pack: Option<Spanned<toml::Table>>,
     output: OutputSpec,
     held_out: Option<HeldOutSpec>,
+    quality: Option<Spanned<QualitySpec>>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct QualitySpec {
+    lm: Spanned<String>,
+    weights: Option<Spanned<String>>,
 }
 
 #[derive(Deserialize)]
@@ -436,6 +460,40 @@ impl Recipe {
                 ));
             }
         }
+        let quality = match &spec.quality {
+            None => None,
+            Some(q) => {
+                let has_reference = held_out.as_ref().is_some_and(|h| h.reference.is_some());
+                if !has_reference {
+                    return Err(at(
+                        q.span(),
+                        Error::invalid(
+                            "quality",
+                            "needs [held_out] with a reference to score translations against",
+                        ),
+                    ));
+                }
+                let q = q.get_ref();
+                let lm = input(q.lm.get_ref());
+                // The model is opened (and its checksum verified) now, before any work.
+                crate::lm::LanguageModel::open(&lm).map_err(|e| at(q.lm.span(), e))?;
+                let weights = match &q.weights {
+                    Some(w) => {
+                        let path = input(w.get_ref());
+                        crate::decode::Weights::read(
+                            &path,
+                            crate::decode::Weights {
+                                values: Default::default(),
+                            },
+                        )
+                        .map_err(|e| at(w.span(), e))?;
+                        Some(path)
+                    }
+                    None => None,
+                };
+                Some(QualityRecipe { lm, weights })
+            }
+        };
         Ok(Recipe {
             file: file.to_path_buf(),
             text: text.to_string(),
@@ -453,6 +511,7 @@ impl Recipe {
             stats: o.stats.as_deref().map(output),
             report: o.report.as_deref().map(output),
             held_out,
+            quality,
         })
     }
 }
