@@ -31,6 +31,7 @@ use crate::decode::{translate_all, DecodeSettings, Decoder, Weights};
 use crate::error::{Error, Result};
 use crate::evaluate::{paired_bootstrap, CorpusStats};
 use crate::lm::LanguageModel;
+use crate::measure::QualityFigures;
 use crate::read::Table;
 
 /// A test set: source sentences and their reference translations, line by line.
@@ -179,6 +180,24 @@ pub struct QualityReport {
 }
 
 impl QualityReport {
+    /// The figures of each table in order, the base first, as [`TableReport::quality`]
+    /// holds them.
+    ///
+    /// [`TableReport::quality`]: crate::measure::TableReport::quality
+    pub fn figures(&self) -> Vec<QualityFigures> {
+        self.tables
+            .iter()
+            .map(|(_, q, d)| QualityFigures {
+                bleu: q.bleu,
+                chrf: q.chrf,
+                bleu_delta: d.as_ref().map(|d| d.bleu),
+                bleu_delta_low: d.as_ref().map(|d| d.bleu_interval.0),
+                bleu_delta_high: d.as_ref().map(|d| d.bleu_interval.1),
+                share_better: d.as_ref().map(|d| d.share_better),
+            })
+            .collect()
+    }
+
     /// The readable block: one line per table.
     pub fn to_text(&self) -> String {
         let mut s = String::from(
@@ -209,6 +228,26 @@ impl QualityReport {
         }
         s
     }
+}
+
+/// Checks, before any work, what [`measure_tables`] will read: opens the model (verifying
+/// its checksum), parses the weights file and reads the test set (source and reference must
+/// have as many lines).
+///
+/// # Errors
+/// The first problem found, naming its file.
+pub fn check_setup(lm: &Path, weights: Option<&Path>, test: &Path, reference: &Path) -> Result<()> {
+    LanguageModel::open(lm)?;
+    if let Some(w) = weights {
+        Weights::read(
+            w,
+            Weights {
+                values: Default::default(),
+            },
+        )?;
+    }
+    TestSet::read(test, reference)?;
+    Ok(())
 }
 
 /// Decodes the test set with `base` and each of `others` (packed tables) using the model at

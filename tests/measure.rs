@@ -829,3 +829,88 @@ fn build_without_a_held_out_set_reports_sizes_and_divergence() {
     let left: Vec<_> = std::fs::read_dir(dir.path().join("out")).unwrap().collect();
     assert_eq!(left.len(), 1);
 }
+
+/// `--column` picks the score column retained mass and divergence read. By hand: source `a`
+/// keeps `x` only; normalized over `a`'s options, p_t_given_s gives `x` r = ½ and p_s_given_t
+/// r = 1 / (1 + ¼) = 0.8; with nested pruning JS = ln 2 + ½ (r ln r − (1+r) ln(1+r)) (see
+/// `source_agreement`). `b` is unchanged (0), so the means are halved.
+#[test]
+fn column_flag_measures_the_named_score() {
+    let dir = tempfile::tempdir().unwrap();
+    let header = "source\ttarget\tp_t_given_s\tp_s_given_t\n";
+    let base = dir.path().join("base.tsv");
+    let other = dir.path().join("other.tsv");
+    let test = dir.path().join("test.txt");
+    std::fs::write(
+        &base,
+        format!("{header}a\tx\t0.5\t1\na\ty\t0.5\t0.25\nb\tz\t1\t1\n"),
+    )
+    .unwrap();
+    std::fs::write(&other, format!("{header}a\tx\t0.5\t1\nb\tz\t1\t1\n")).unwrap();
+    std::fs::write(&test, "a b\n").unwrap();
+    let js = |r: f64| LN_2 + 0.5 * (r * r.ln() - (1.0 + r) * (1.0 + r).ln());
+    for (column, r) in [
+        (None, 0.5),
+        (Some("p_t_given_s"), 0.5),
+        (Some("p_s_given_t"), 0.8),
+    ] {
+        let mut args = vec!["compare", s(&base), s(&other), "--test", s(&test), "--json"];
+        if let Some(c) = column {
+            args.extend(["--column", c]);
+        }
+        let v: serde_json::Value = serde_json::from_str(&ok(&args, None)).unwrap();
+        assert_eq!(v["column"], column.unwrap_or("p_t_given_s"));
+        let g = &v["tables"][1]["agreement"];
+        let mass = g["retained_mass"].as_f64().unwrap();
+        let divergence = g["divergence"].as_f64().unwrap();
+        assert!((mass - (r + 1.0) / 2.0).abs() < 1e-12, "{column:?}: {mass}");
+        assert!(
+            (divergence - js(r) / 2.0).abs() < 1e-12,
+            "{column:?}: {divergence}"
+        );
+    }
+    let out = run(
+        &[
+            "compare",
+            s(&base),
+            s(&other),
+            "--test",
+            s(&test),
+            "--column",
+            "colour",
+        ],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("colour"));
+
+    // sweep: the CSV's divergence follows the column too
+    let swept = dir.path().join("sweep");
+    ok(
+        &[
+            "sweep",
+            s(&base),
+            "--test",
+            s(&test),
+            "--vary",
+            "top-k=1",
+            "--column",
+            "p_s_given_t",
+            "-o",
+            s(&swept),
+            "-q",
+        ],
+        None,
+    );
+    let csv = std::fs::read_to_string(swept.join("sweep.csv")).unwrap();
+    let mut lines = csv.lines();
+    let names: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let row: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let at = |n: &str| {
+        row[names.iter().position(|x| *x == n).unwrap()]
+            .parse::<f64>()
+            .unwrap()
+    };
+    // top-k 1 by p_t_given_s keeps the first of a's tied options, x: r = 0.8 again
+    assert!((at("divergence") - js(0.8) / 2.0).abs() < 1e-12, "{csv}");
+}

@@ -912,3 +912,163 @@ fn build_recipes_report_bleu_and_chrf() {
         assert!(!dir.path().join("out.bale").exists(), "case {i}");
     }
 }
+
+/// A CSV text (CRLF or LF lines, no quoted commas in these files) as header → column index
+/// and rows.
+fn read_csv(path: &Path) -> (HashMap<String, usize>, Vec<Vec<String>>) {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines().map(|l| {
+        l.trim_end_matches('\r')
+            .split(',')
+            .map(str::to_string)
+            .collect::<Vec<_>>()
+    });
+    let header = lines.next().unwrap();
+    let index = header
+        .iter()
+        .enumerate()
+        .map(|(i, n)| (n.clone(), i))
+        .collect();
+    (index, lines.collect())
+}
+
+/// Decodes the demo test set with `table` (`baler translate`) and scores it with `baler
+/// evaluate`, whose BLEU and chrF are checked against sacrebleu above.
+fn translate_and_evaluate(dir: &Path, table: &Path, lm: &Path) -> (f64, f64) {
+    let data = |n: &str| crate::util::repo(&format!("demo-data/{n}"));
+    let hyp = dir.join("hyp.es");
+    baler_ok(&[
+        "translate",
+        s(table),
+        "--lm",
+        s(lm),
+        "--input",
+        s(&data("toolshed.test.en")),
+        "-o",
+        s(&hyp),
+    ]);
+    evaluate(&hyp, &data("toolshed.test.es"))
+}
+
+/// `sweep --lm`: `sweep.csv` gets `bleu` and `chrf` columns equal to decoding each setting's
+/// table by hand and scoring it; the base is packed once (`base.bale`) and plotted as the
+/// reference; `--plot` refuses, before any work, a figure the sweep will not measure.
+#[test]
+fn sweep_adds_bleu_and_chrf_columns() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = |n: &str| crate::util::repo(&format!("demo-data/{n}"));
+    let lm = dir.path().join("es.balm");
+    baler_ok(&["lm", "build", s(&data("toolshed.es")), "-o", s(&lm), "-q"]);
+    let out = dir.path().join("sweep");
+    let (table, test, reference) = (
+        data("toolshed.tsv"),
+        data("toolshed.test.en"),
+        data("toolshed.test.es"),
+    );
+    let common = [
+        "sweep",
+        s(&table),
+        "--test",
+        s(&test),
+        "--reference",
+        s(&reference),
+        "--vary",
+        "significance=alpha-epsilon,alpha+epsilon",
+        "-o",
+        s(&out),
+    ];
+    let text = baler_ok(&[&common[..], &["--lm", s(&lm), "--plot", "bleu,chrf,mass"]].concat());
+    assert!(text.contains("ΔBLEU"), "{text}");
+    let (col, rows) = read_csv(&out.join("sweep.csv"));
+    assert_eq!(rows.len(), 2);
+    let mut bleus = Vec::new();
+    for row in &rows {
+        let table = PathBuf::from(&row[col["table"]]);
+        let (bleu, chrf) = translate_and_evaluate(dir.path(), &table, &lm);
+        let got: f64 = row[col["bleu"]].parse().unwrap();
+        assert!((got - bleu).abs() < 0.01, "{row:?}: {got} vs {bleu}");
+        let got: f64 = row[col["chrf"]].parse().unwrap();
+        assert!((got - chrf).abs() < 0.01, "{row:?}: {got} vs {chrf}");
+        bleus.push(bleu);
+    }
+    let (base_bleu, _) = translate_and_evaluate(dir.path(), &out.join("base.bale"), &lm);
+    for (row, bleu) in rows.iter().zip(&bleus) {
+        let delta: f64 = row[col["bleu_delta"]].parse().unwrap();
+        assert!((delta - (bleu - base_bleu)).abs() < 0.01, "{row:?}");
+        let (lo, hi): (f64, f64) = (
+            row[col["bleu_delta_low"]].parse().unwrap(),
+            row[col["bleu_delta_high"]].parse().unwrap(),
+        );
+        assert!(lo <= hi, "{row:?}");
+    }
+    let svg = std::fs::read_to_string(out.join("sweep.svg")).unwrap();
+    for title in [
+        "Size against BLEU",
+        "Size against chrF",
+        "Size against retained mass",
+    ] {
+        assert!(svg.contains(title), "{title}");
+    }
+
+    // BLEU cannot be plotted without a language model: refused before any table is written
+    let refused = dir.path().join("refused");
+    let mut args = common.to_vec();
+    let last = args.len() - 1;
+    args[last] = s(&refused);
+    let o = baler(&[&args[..], &["--plot", "bleu"]].concat(), None);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("--plot") && err.contains("--lm"), "{err}");
+    assert!(!refused.exists());
+}
+
+/// `compare --lm --csv` carries BLEU and chrF per table and the difference from the base.
+#[test]
+fn compare_csv_has_quality_columns() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = |n: &str| crate::util::repo(&format!("demo-data/{n}"));
+    let lm = dir.path().join("es.balm");
+    baler_ok(&["lm", "build", s(&data("toolshed.es")), "-o", s(&lm), "-q"]);
+    let base = dir.path().join("base.bale");
+    let pruned = dir.path().join("pruned.bale");
+    baler_ok(&["pack", s(&data("toolshed.tsv")), "-o", s(&base), "-q"]);
+    baler_ok(&[
+        "prune",
+        s(&base),
+        "-o",
+        s(&pruned),
+        "--significance",
+        "alpha+epsilon",
+        "-q",
+    ]);
+    let csv = dir.path().join("compare.csv");
+    let text = baler_ok(&[
+        "compare",
+        s(&base),
+        s(&pruned),
+        "--test",
+        s(&data("toolshed.test.en")),
+        "--reference",
+        s(&data("toolshed.test.es")),
+        "--lm",
+        s(&lm),
+        "--csv",
+    ]);
+    std::fs::write(&csv, text).unwrap();
+    let (col, rows) = read_csv(&csv);
+    let mut measured = Vec::new();
+    for row in &rows {
+        let table = PathBuf::from(&row[col["table"]]);
+        let (bleu, chrf) = translate_and_evaluate(dir.path(), &table, &lm);
+        let got: f64 = row[col["bleu"]].parse().unwrap();
+        assert!((got - bleu).abs() < 0.01, "{row:?}: {got} vs {bleu}");
+        let got: f64 = row[col["chrf"]].parse().unwrap();
+        assert!((got - chrf).abs() < 0.01, "{row:?}: {got} vs {chrf}");
+        measured.push(bleu);
+    }
+    assert_eq!(rows[0][col["bleu_delta"]], "", "the base has no difference");
+    let delta: f64 = rows[1][col["bleu_delta"]].parse().unwrap();
+    assert!((delta - (measured[1] - measured[0])).abs() < 0.01);
+    let share: f64 = rows[1][col["share_better"]].parse().unwrap();
+    assert!((0.0..=1.0).contains(&share));
+}

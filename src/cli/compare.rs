@@ -38,24 +38,30 @@ pub struct Args {
     csv: bool,
     #[command(flatten)]
     quality: crate::cli::quality::QualityArgs,
+    #[command(flatten)]
+    column: crate::cli::flags::ColumnFlag,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
     if args.max_length == Some(0) {
         return Err(Error::invalid("--max-length", "must be at least 1"));
     }
+    if let (Some(lm), Some(reference)) = (&args.quality.lm, &args.reference) {
+        baler::quality::check_setup(lm, args.quality.weights.as_deref(), &args.test, reference)?;
+    }
     let (test, reference) = measure::read_test_set(&args.test, args.reference.as_deref())?;
-    let base = MeasuredTable::open(&args.base, measure::PROBABILITY_COLUMN)?;
+    let column = args.column.column.as_str();
+    let base = MeasuredTable::open(&args.base, column)?;
     let others = args
         .others
         .iter()
-        .map(|p| MeasuredTable::open(p, measure::PROBABILITY_COLUMN))
+        .map(|p| MeasuredTable::open(p, column))
         .collect::<baler::Result<Vec<_>>>()?;
     let refs: Vec<&MeasuredTable> = others.iter().collect();
     let options = CompareOptions {
         max_length: args.max_length,
     };
-    let report = measure::compare(&base, &refs, Some(&test), reference.as_deref(), &options)?;
+    let mut report = measure::compare(&base, &refs, Some(&test), reference.as_deref(), &options)?;
     let quality = crate::cli::quality::for_tables(
         &args.quality,
         &args.test,
@@ -63,18 +69,19 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         &args.base,
         &args.others,
     )?;
-    let text = if args.json {
-        let mut value = serde_json::to_value(&report).expect("figures serialize");
-        if let Some(q) = &quality {
-            value["quality"] = serde_json::to_value(q).expect("figures serialize");
+    if let Some(q) = &quality {
+        for (table, figures) in report.tables.iter_mut().zip(q.figures()) {
+            table.quality = Some(figures);
         }
-        let mut s = serde_json::to_string_pretty(&value).expect("figures serialize");
+    }
+    let text = if args.json {
+        let mut s = serde_json::to_string_pretty(&report).expect("figures serialize");
         s.push('\n');
         s
     } else if args.csv {
         report.to_csv()
     } else {
-        report.to_text() + &quality.as_ref().map_or(String::new(), |q| q.to_text())
+        report.to_text()
     };
     super::print(&text)?;
     Ok(ExitCode::SUCCESS)

@@ -111,3 +111,11 @@ impl clap::Args for ResourceFlags {
         Self::augment_args(cmd)
     }
 }
+
+/// `--column`: the score column that retained mass and divergence read (`compare`, `sweep`).
+#[derive(clap::Args, Clone, Debug)]
+pub struct ColumnFlag {
+    /// Score column read as p(target | source) by retained mass and divergence.
+    #[arg(long, value_name = "NAME", default_value = baler::measure::PROBABILITY_COLUMN)]
+    pub column: String,
+}

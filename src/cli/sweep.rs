@@ -1,11 +1,10 @@
 //! `baler sweep`: prune and pack at every setting of a grid, measure each, plot size against
 //! coverage and reachability.
 
-use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use baler::measure::{self, CompareOptions, SweepOptions, Variation};
+use baler::measure::{self, CompareOptions, Figure, SweepOptions, SweepQuality, Variation};
 use baler::Error;
 
 /// Arguments of `baler sweep`.
@@ -40,10 +39,20 @@ pub struct Args {
     quiet: bool,
     #[command(flatten)]
     quality: crate::cli::quality::QualityArgs,
-    /// What to plot against size in DIR/quality.svg (with --lm): bleu, chrf, coverage, mass,
-    /// divergence, comma-separated.
-    #[arg(long, value_delimiter = ',', default_value = "bleu,chrf")]
-    plot: Vec<String>,
+    #[command(flatten)]
+    column: crate::cli::flags::ColumnFlag,
+    /// What DIR/sweep.svg plots against size, comma-separated: bleu, chrf, coverage, mass,
+    /// divergence, reachability [default: bleu,chrf with --lm; coverage (and reachability with
+    /// --reference) otherwise].
+    #[arg(long, value_delimiter = ',', value_name = "FIGURES", value_parser = plot_figure)]
+    plot: Vec<Figure>,
+}
+
+fn plot_figure(text: &str) -> Result<Figure, String> {
+    Figure::parse(text).map_err(|e| match e {
+        Error::InvalidArgument { reason, .. } => reason,
+        other => other.to_string(),
+    })
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
@@ -66,51 +75,82 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         },
         memory: args.memory,
         progress: !args.quiet,
+        column: Some(args.column.column.clone()),
+        quality: match (&args.quality.lm, &args.reference) {
+            (Some(lm), Some(reference)) => Some(SweepQuality {
+                lm: lm.clone(),
+                weights: args.quality.weights.clone(),
+                test: args.test.clone(),
+                reference: reference.clone(),
+            }),
+            _ => None,
+        },
+        plot: args.plot.clone(),
     };
     let report = baler::pipeline::sweep(&args.input, &options)?;
-    crate::cli::quality::for_sweep(
-        &args.quality,
-        &args.test,
-        args.reference.as_deref(),
-        &args.input,
-        &report,
-        &args.plot,
-        &args.output,
-        args.quiet,
-    )?;
     if !args.quiet {
-        let mut out = std::io::stdout().lock();
-        let werr = |e| Error::io("-", "writing", e);
-        writeln!(
-            out,
-            "{:<40} {:>10} {:>8} {:>9} {:>10} {:>9}",
-            "setting", "bytes", "pairs", "coverage", "divergence", "reachable"
-        )
-        .map_err(werr)?;
-        for s in &report.settings {
-            let f = &s.figures;
-            writeln!(
-                out,
-                "{:<40} {:>10} {:>8} {:>9.4} {:>10.4} {:>9}",
-                s.label,
-                f.size.file_bytes,
-                f.size.pairs,
-                f.coverage.as_ref().map_or(0.0, |c| c.token_coverage),
-                f.agreement.divergence,
-                f.reachability
-                    .as_ref()
-                    .map_or("-".to_string(), |r| format!("{:.4}", r.share)),
-            )
-            .map_err(werr)?;
-        }
-        writeln!(
-            out,
-            "wrote {} and {}",
-            report.csv.display(),
-            report.svg.display()
-        )
-        .map_err(werr)?;
-        out.flush().map_err(werr)?;
+        super::print(&summary(&report))?;
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// The readable summary: one line per table, the base first.
+fn summary(report: &measure::SweepReport) -> String {
+    use std::fmt::Write as _;
+    let quality = report.base.quality.is_some();
+    let mut out = String::new();
+    let _ = write!(
+        out,
+        "{:<40} {:>10} {:>8} {:>9} {:>10} {:>9}",
+        "setting", "bytes", "pairs", "coverage", "divergence", "reachable"
+    );
+    if quality {
+        let _ = write!(
+            out,
+            " {:>7} {:>7} {:>8} {:>17}",
+            "BLEU", "chrF", "ΔBLEU", "95% interval"
+        );
+    }
+    out.push('\n');
+    let rows = std::iter::once(("(base)", &report.base)).chain(
+        report
+            .settings
+            .iter()
+            .map(|s| (s.label.as_str(), &s.figures)),
+    );
+    for (label, f) in rows {
+        let _ = write!(
+            out,
+            "{:<40} {:>10} {:>8} {:>9.4} {:>10.4} {:>9}",
+            label,
+            f.size.file_bytes,
+            f.size.pairs,
+            f.coverage.as_ref().map_or(0.0, |c| c.token_coverage),
+            f.agreement.divergence,
+            f.reachability
+                .as_ref()
+                .map_or("-".to_string(), |r| format!("{:.4}", r.share)),
+        );
+        if let Some(q) = &f.quality {
+            let _ = write!(out, " {:>7.2} {:>7.2}", q.bleu, q.chrf);
+            if let (Some(d), Some(lo), Some(hi)) =
+                (q.bleu_delta, q.bleu_delta_low, q.bleu_delta_high)
+            {
+                let _ = write!(out, " {:>+8.2} {:>17}", d, format!("[{lo:+.2}, {hi:+.2}]"));
+            }
+        }
+        out.push('\n');
+    }
+    if quality {
+        out.push_str(
+            "(ΔBLEU: against the base, with the 95% paired-bootstrap interval, 1000 samples)\n",
+        );
+    }
+    let _ = writeln!(
+        out,
+        "wrote {} and {}",
+        report.csv.display(),
+        report.svg.display()
+    );
+    out
 }

@@ -50,8 +50,8 @@ mod table;
 pub use coverage::MAX_ORDER;
 pub use coverage::{coverage, reachability, Coverage, OrderShare, Reachability, SpanShare};
 pub use divergence::{source_agreement, SourceAgreement};
-pub use plot::{plot_panels, plot_svg, series_of, Panel, PlotPoint};
-pub use sweep::{Setting, SettingReport, SweepOptions, SweepReport, Variation};
+pub use plot::{default_figures, plot_panels, plot_svg, series_of, Figure, Panel, PlotPoint};
+pub use sweep::{Setting, SettingReport, SweepOptions, SweepQuality, SweepReport, Variation};
 pub use table::{is_packed, Choice, FoundSpan, MeasuredTable};
 
 use std::fmt::Write as _;
@@ -122,6 +122,27 @@ pub struct TableReport {
     pub agreement: Agreement,
     /// Reachability of the reference, when one was given.
     pub reachability: Option<Reachability>,
+    /// Translation quality of a decoder using the table, when it was measured
+    /// ([`crate::quality`]).
+    pub quality: Option<QualityFigures>,
+}
+
+/// BLEU and chrF of one table's translations of the test text, and for a table other than the
+/// base the paired-bootstrap difference from the base (Koehn 2004).
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct QualityFigures {
+    /// Corpus BLEU (0–100).
+    pub bleu: f64,
+    /// Corpus chrF (0–100).
+    pub chrf: f64,
+    /// BLEU minus the base's (`None` for the base).
+    pub bleu_delta: Option<f64>,
+    /// Lower end of the 95% bootstrap interval of that difference.
+    pub bleu_delta_low: Option<f64>,
+    /// Upper end of the 95% bootstrap interval.
+    pub bleu_delta_high: Option<f64>,
+    /// Share of resampled test sets on which this table's BLEU is above the base's.
+    pub share_better: Option<f64>,
 }
 
 /// The figures of a base table and others, side by side.
@@ -297,7 +318,7 @@ pub fn compare(
         tables.push(baseline.measure(table)?);
     }
     Ok(Comparison {
-        column: PROBABILITY_COLUMN.to_string(),
+        column: base.column().to_string(),
         max_length: baseline.max_length,
         tables,
     })
@@ -342,6 +363,7 @@ impl<'a> Baseline<'a> {
             coverage: pass.as_ref().map(|p| p.coverage.clone()),
             agreement: agreement(base, base, occurrences.as_ref())?,
             reachability: pass.and_then(|p| p.reachability),
+            quality: None,
         };
         Ok(Baseline {
             base,
@@ -371,6 +393,7 @@ impl<'a> Baseline<'a> {
             coverage: pass.as_ref().map(|p| p.coverage.clone()),
             agreement: agreement(self.base, table, self.occurrences.as_ref())?,
             reachability: pass.and_then(|p| p.reachability),
+            quality: None,
         })
     }
 }
@@ -456,6 +479,17 @@ impl Comparison {
                 Cell::of(r.reachability.as_ref().map(|x| x.share))
             });
         }
+        if t.iter().any(|r| r.quality.is_some()) {
+            let q = |f: fn(&QualityFigures) -> Option<f64>| {
+                move |r: &TableReport| Cell::of(r.quality.as_ref().and_then(f))
+            };
+            add("bleu", &q(|q| Some(q.bleu)));
+            add("chrf", &q(|q| Some(q.chrf)));
+            add("bleu_delta", &q(|q| q.bleu_delta));
+            add("bleu_delta_low", &q(|q| q.bleu_delta_low));
+            add("bleu_delta_high", &q(|q| q.bleu_delta_high));
+            add("share_better", &q(|q| q.share_better));
+        }
         rows
     }
 
@@ -511,6 +545,14 @@ impl Comparison {
              base, ln 2 = 0.6931 for a source that lost every option; spans up to {} tokens)",
             self.column, self.max_length
         );
+        if self.tables.iter().any(|t| t.quality.is_some()) {
+            out.push_str(
+                "(translation quality: bleu and chrf of a decoder's translations of the test text \
+                 with each table; bleu \
+                 delta low/high: the 95% interval of the difference from the base by paired \
+                 bootstrap, 1000 samples; share better: of resampled test sets)\n",
+            );
+        }
         out
     }
 

@@ -108,6 +108,15 @@ fn draw_panel(
     let x_range = (xlo - xpad).max(0.0)..xhi + 4.0 * xpad;
     let ypad = ((yhi - ylo) * 0.12).max(yhi.abs() * 0.005).max(1e-3);
     let y_range = ylo - ypad..yhi + ypad;
+    // As many decimals as the spread of the values needs (BLEU: 1, shares: 3).
+    let span = y_range.end - y_range.start;
+    let ydec = if span >= 5.0 {
+        1
+    } else if span >= 0.5 {
+        2
+    } else {
+        3
+    };
     let mut chart = ChartBuilder::on(area)
         .caption(&panel.title, ("sans-serif", 18))
         .margin(16)
@@ -122,7 +131,7 @@ fn draw_panel(
         .x_labels(7)
         .y_labels(7)
         .x_label_formatter(&|v| format!("{v:.2}"))
-        .y_label_formatter(&|v| format!("{v:.3}"))
+        .y_label_formatter(&|v| format!("{v:.ydec$}"))
         .light_line_style(WHITE)
         .draw()
         .map_err(|x| e(&x))?;
@@ -139,8 +148,8 @@ fn draw_panel(
             .map_err(|x| e(&x))?;
         chart
             .draw_series(std::iter::once(Text::new(
-                format!("unpruned: {value:.3}, {:.2} MB", mb(bytes)),
-                (x_range.start, value),
+                format!("unpruned: {value:.ydec$}, {:.2} MB", mb(bytes)),
+                (x_range.start + xpad * 0.2, value + ypad * 0.15),
                 ("sans-serif", 11).into_font().color(&grey),
             )))
             .map_err(|x| e(&x))?;
@@ -270,55 +279,153 @@ fn place_labels(
     out
 }
 
-/// Draws `report` as SVG: packed size against test coverage and, when the sweep had a
-/// reference, a second panel with the reachability of the reference.
-pub fn plot_svg(report: &SweepReport) -> Result<String> {
-    let with_reference = report
-        .settings
-        .iter()
-        .any(|s| s.figures.reachability.is_some());
-    let point = |s: &super::SettingReport, v: f64| PlotPoint {
-        label: s.label.clone(),
-        series: series_of(&s.label),
-        bytes: s.figures.size.file_bytes,
-        value: v,
-    };
-    let base_size = report.base.size.file_bytes;
-    let mut panels = vec![Panel {
-        title: "Size against test coverage".into(),
-        y_label: "share of test tokens covered".into(),
-        base: report
-            .base
-            .coverage
-            .as_ref()
-            .map(|c| (base_size, c.token_coverage)),
-        points: report
-            .settings
-            .iter()
-            .map(|s| {
-                point(
-                    s,
-                    s.figures
-                        .coverage
-                        .as_ref()
-                        .map_or(0.0, |c| c.token_coverage),
+/// A figure a sweep can plot against size (`--plot`).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Figure {
+    /// Corpus BLEU of the decoder's translations (needs a language model and a reference).
+    Bleu,
+    /// Corpus chrF of the same translations.
+    Chrf,
+    /// Share of test tokens covered by the table.
+    Coverage,
+    /// Mean retained probability mass against the unpruned table.
+    Mass,
+    /// Mean divergence against the unpruned table (nats).
+    Divergence,
+    /// Share of reference n-grams reachable (needs a reference).
+    Reachability,
+}
+
+impl Figure {
+    /// Every figure, in the order of its name list.
+    pub const ALL: [Figure; 6] = [
+        Figure::Bleu,
+        Figure::Chrf,
+        Figure::Coverage,
+        Figure::Mass,
+        Figure::Divergence,
+        Figure::Reachability,
+    ];
+
+    /// The name `--plot` takes.
+    pub fn name(self) -> &'static str {
+        match self {
+            Figure::Bleu => "bleu",
+            Figure::Chrf => "chrf",
+            Figure::Coverage => "coverage",
+            Figure::Mass => "mass",
+            Figure::Divergence => "divergence",
+            Figure::Reachability => "reachability",
+        }
+    }
+
+    /// Parses a name of [`Figure::name`].
+    ///
+    /// # Errors
+    /// [`Error::Invalid`] naming `--plot` for any other name.
+    pub fn parse(name: &str) -> Result<Figure> {
+        Figure::ALL
+            .into_iter()
+            .find(|f| f.name() == name.trim())
+            .ok_or_else(|| {
+                let names: Vec<&str> = Figure::ALL.iter().map(|f| f.name()).collect();
+                Error::invalid(
+                    "--plot",
+                    format!("{name:?} is none of {}", names.join(", ")),
                 )
             })
-            .collect(),
-    }];
-    if with_reference {
+    }
+
+    /// The figure for one table, when it was measured.
+    fn of(self, r: &super::TableReport) -> Option<f64> {
+        match self {
+            Figure::Bleu => r.quality.as_ref().map(|q| q.bleu),
+            Figure::Chrf => r.quality.as_ref().map(|q| q.chrf),
+            Figure::Coverage => r.coverage.as_ref().map(|c| c.token_coverage),
+            Figure::Mass => Some(r.agreement.retained_mass),
+            Figure::Divergence => Some(r.agreement.divergence),
+            Figure::Reachability => r.reachability.as_ref().map(|x| x.share),
+        }
+    }
+
+    fn title(self) -> &'static str {
+        match self {
+            Figure::Bleu => "Size against BLEU",
+            Figure::Chrf => "Size against chrF",
+            Figure::Coverage => "Size against test coverage",
+            Figure::Mass => "Size against retained mass",
+            Figure::Divergence => "Size against divergence",
+            Figure::Reachability => "Size against reachability",
+        }
+    }
+
+    fn axis(self, column: &str) -> String {
+        match self {
+            Figure::Bleu => "BLEU (test set)".into(),
+            Figure::Chrf => "chrF (test set)".into(),
+            Figure::Coverage => "share of test tokens covered".into(),
+            Figure::Mass => format!("mean retained mass of {column}"),
+            Figure::Divergence => format!("mean divergence of {column} (nats)"),
+            Figure::Reachability => "share of reference n-grams (1-4) reachable".into(),
+        }
+    }
+}
+
+/// What a sweep plots when not told: quality when it was measured, otherwise coverage and,
+/// with a reference, reachability.
+pub fn default_figures(report: &SweepReport) -> Vec<Figure> {
+    if report.base.quality.is_some() {
+        vec![Figure::Bleu, Figure::Chrf]
+    } else if report.base.reachability.is_some() {
+        vec![Figure::Coverage, Figure::Reachability]
+    } else {
+        vec![Figure::Coverage]
+    }
+}
+
+/// Draws `report` as SVG: one panel per figure of `figures` (or [`default_figures`] when
+/// empty), packed size in MB against the figure, the base as reference lines.
+///
+/// # Errors
+/// [`Error::Invalid`] naming `--plot` when a figure was not measured in this sweep (BLEU
+/// without a language model, reachability without a reference, ...).
+pub fn plot_svg(report: &SweepReport, figures: &[Figure]) -> Result<String> {
+    let figures = if figures.is_empty() {
+        default_figures(report)
+    } else {
+        figures.to_vec()
+    };
+    let base_size = report.base.size.file_bytes;
+    let mut panels = Vec::with_capacity(figures.len());
+    for figure in figures {
+        let Some(base) = figure.of(&report.base) else {
+            return Err(Error::invalid(
+                "--plot",
+                format!(
+                    "{} was not measured in this sweep{}",
+                    figure.name(),
+                    match figure {
+                        Figure::Bleu | Figure::Chrf => " (it needs --lm and --reference)",
+                        Figure::Reachability => " (it needs --reference)",
+                        _ => "",
+                    }
+                ),
+            ));
+        };
         panels.push(Panel {
-            title: "Size against reachability".into(),
-            y_label: "share of reference n-grams (1-4) reachable".into(),
-            base: report
-                .base
-                .reachability
-                .as_ref()
-                .map(|r| (base_size, r.share)),
+            title: figure.title().into(),
+            y_label: figure.axis(&report.column),
+            base: Some((base_size, base)),
             points: report
                 .settings
                 .iter()
-                .map(|s| point(s, s.figures.reachability.as_ref().map_or(0.0, |r| r.share)))
+                .map(|s| PlotPoint {
+                    label: s.label.clone(),
+                    series: series_of(&s.label),
+                    bytes: s.figures.size.file_bytes,
+                    value: figure.of(&s.figures).unwrap_or(f64::NAN),
+                })
+                .filter(|p| p.value.is_finite())
                 .collect(),
         });
     }

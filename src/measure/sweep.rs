@@ -4,7 +4,7 @@ use std::path::PathBuf;
 
 use serde::Serialize;
 
-use super::{CompareOptions, TableReport, PROBABILITY_COLUMN};
+use super::{CompareOptions, TableReport};
 use crate::error::{Error, Result};
 use crate::pack::PackOptions;
 use crate::prune::{Filter, PruneOptions, PruneStats, Ranking, Threshold};
@@ -194,6 +194,27 @@ pub struct SweepOptions {
     pub memory: u64,
     /// Show a progress bar across settings on stderr (when it is a terminal).
     pub progress: bool,
+    /// The score column that retained mass and divergence read (`None`:
+    /// [`super::PROBABILITY_COLUMN`]).
+    pub column: Option<String>,
+    /// Decode the test set with every table and add BLEU and chrF, when asked for.
+    pub quality: Option<SweepQuality>,
+    /// What `sweep.svg` plots against size (empty: [`super::default_figures`]).
+    pub plot: Vec<super::Figure>,
+}
+
+/// What a sweep needs to measure translation quality: the decoder's language model and
+/// weights, and the test set as files (see [`crate::quality::measure_tables`]).
+#[derive(Clone, Debug)]
+pub struct SweepQuality {
+    /// The target-language model (`baler lm build`).
+    pub lm: PathBuf,
+    /// A decoder weights file; the defaults otherwise.
+    pub weights: Option<PathBuf>,
+    /// The test source text.
+    pub test: PathBuf,
+    /// Its reference translation.
+    pub reference: PathBuf,
 }
 
 /// One swept setting: its label, the packed file and its figures.
@@ -212,6 +233,8 @@ pub struct SettingReport {
 /// The result of [`crate::pipeline::sweep`].
 #[derive(Clone, Debug, Serialize)]
 pub struct SweepReport {
+    /// The score column that retained mass and divergence read.
+    pub column: String,
     /// The input's own figures.
     pub base: TableReport,
     /// Longest test span looked up.
@@ -229,7 +252,7 @@ impl SweepReport {
     /// [`super::Comparison::to_csv`].
     pub fn to_csv(&self) -> String {
         let comparison = super::Comparison {
-            column: PROBABILITY_COLUMN.into(),
+            column: self.column.clone(),
             max_length: self.max_length,
             tables: self.settings.iter().map(|s| s.figures.clone()).collect(),
         };

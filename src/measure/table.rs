@@ -58,6 +58,8 @@ enum Store {
 /// ```
 pub struct MeasuredTable {
     name: String,
+    /// The score column read as the probability.
+    column: String,
     file_bytes: u64,
     store: Store,
     longest_source: usize,
@@ -90,6 +92,7 @@ impl MeasuredTable {
             }
             return Ok(MeasuredTable {
                 name,
+                column: column.to_string(),
                 file_bytes,
                 store: Store::Packed {
                     table: Box::new(table),
@@ -152,6 +155,7 @@ impl MeasuredTable {
             .unwrap_or(0);
         Ok(MeasuredTable {
             name: name.to_string(),
+            column: column.to_string(),
             file_bytes: counted.bytes,
             store: Store::Loaded {
                 sources,
@@ -171,6 +175,11 @@ impl MeasuredTable {
     /// The name given when opening (the path).
     pub fn name(&self) -> &str {
         &self.name
+    }
+
+    /// The score column read as p(target | source) (given when opening).
+    pub fn column(&self) -> &str {
+        &self.column
     }
 
     /// Size of the file in bytes.

@@ -37,9 +37,9 @@ impl BuildReport {
         value
     }
 
-    /// The readable report: the comparison, then the quality block.
+    /// The readable report: the comparison (with quality rows when measured).
     pub fn to_text(&self) -> String {
-        self.comparison.to_text() + &self.quality.as_ref().map_or(String::new(), |q| q.to_text())
+        self.comparison.to_text()
     }
 }
 
@@ -129,7 +129,7 @@ pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
     let options = CompareOptions {
         max_length: recipe.held_out.as_ref().and_then(|h| h.max_length),
     };
-    let comparison = measure::compare(
+    let mut comparison = measure::compare(
         &base,
         &[&table],
         test.as_ref().map(|t| t.0.as_slice()),
@@ -141,13 +141,12 @@ pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
             let reference = h.reference.as_deref().expect("checked by the recipe");
             // decoding reads packed tables: pack the unpruned table once, in the work folder
             let base = work.path().join("unpruned.bale");
-            let name = extracted.to_string_lossy().into_owned();
-            crate::pack::pack_tsv(
-                crate::files::open_input(&extracted)?,
-                &name,
-                &base,
-                &crate::pack::PackOptions::default(),
-            )?;
+            let unpruned = Packing {
+                settings: recipe.pack.clone(),
+                resources: pack.resources.clone(),
+                ..Packing::default()
+            };
+            super::pack_file(&extracted, &base, &unpruned)?;
             let mut report = quality::measure_tables(
                 &q.lm,
                 q.weights.as_deref(),
@@ -165,6 +164,13 @@ pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
         }
         _ => None,
     };
+    if let Some(q) = &quality {
+        let figures = q.figures();
+        // the comparison's base is the extracted table; its quality is the unpruned packing's
+        for (table, f) in comparison.tables.iter_mut().zip(figures) {
+            table.quality = Some(f);
+        }
+    }
     let report = BuildReport {
         extract: summary,
         prune: stats,

@@ -2,26 +2,51 @@
 
 use std::path::Path;
 
-use super::{prune_and_pack, prune_file, Packing};
+use super::{pack_file, prune_and_pack, prune_file, Packing};
 use crate::error::{Error, Result};
 use crate::files::{Output, TempDir};
 use crate::measure::{
-    self, MeasuredTable, Setting, SettingReport, SweepOptions, SweepReport, PROBABILITY_COLUMN,
+    self, Figure, MeasuredTable, Setting, SettingReport, SweepOptions, SweepReport,
+    PROBABILITY_COLUMN,
 };
 use crate::prune::PruneOptions;
+use crate::quality;
+use crate::read::is_packed;
 
 /// Prunes and packs `input` at every setting of `options.variations`' grid into
 /// `out_dir/setting-NN.bale`, measures each against the unpruned input (as [`crate::measure::compare`]
 /// does), and writes `out_dir/sweep.csv` (one line per setting) and `out_dir/sweep.svg`
-/// ([`measure::plot_svg`]). A TSV input not grouped by source is sorted once first.
+/// ([`measure::plot_svg`] of `options.plot`). A TSV input not grouped by source is sorted once
+/// first.
+///
+/// With `options.quality`, every table (the base included) also translates the test set and
+/// gets BLEU and chrF ([`quality::measure_tables`]); decoding reads packed tables, so a TSV
+/// input is first packed into `out_dir/base.bale`, which then stands for the base in every
+/// figure (sizes are compared packed against packed).
 pub fn sweep(input: &Path, options: &SweepOptions) -> Result<SweepReport> {
     if options.variations.is_empty() {
         return Err(Error::invalid("--vary", "give at least one NAME=VALUES"));
     }
     let settings = Setting::grid(&options.variations)?;
+    check_plot(options)?;
+    if let Some(q) = &options.quality {
+        quality::check_setup(&q.lm, q.weights.as_deref(), &q.test, &q.reference)?;
+    }
+    let column = options.column.as_deref().unwrap_or(PROBABILITY_COLUMN);
     std::fs::create_dir_all(&options.out_dir)
         .map_err(|e| Error::io(&options.out_dir, "creating", e))?;
-    let base = MeasuredTable::open(input, PROBABILITY_COLUMN)?;
+    let packed_base = options.out_dir.join("base.bale");
+    let input = if options.quality.is_some() && !is_packed(input) {
+        let mut packing = Packing::default();
+        if options.memory != 0 {
+            packing.resources.memory = options.memory;
+        }
+        pack_file(input, &packed_base, &packing)?;
+        packed_base.as_path()
+    } else {
+        input
+    };
+    let base = MeasuredTable::open(input, column)?;
     let sorted_dir;
     let sorted_copy;
     let source: &Path = if base.is_sorted_by_source() {
@@ -58,7 +83,7 @@ pub fn sweep(input: &Path, options: &SweepOptions) -> Result<SweepReport> {
         let mut prune = setting.prune.clone();
         prune.memory = options.memory;
         let (stats, _) = prune_and_pack(source, &path, &prune, &setting.packing(options))?;
-        let table = MeasuredTable::open(&path, PROBABILITY_COLUMN)?;
+        let table = MeasuredTable::open(&path, column)?;
         let figures = baseline.measure(&table)?;
         reports.push(SettingReport {
             label: setting.label.clone(),
@@ -71,22 +96,60 @@ pub fn sweep(input: &Path, options: &SweepOptions) -> Result<SweepReport> {
     bar.finish_and_clear();
     let csv = options.out_dir.join("sweep.csv");
     let svg = options.out_dir.join("sweep.svg");
-    let report = SweepReport {
+    let mut report = SweepReport {
+        column: column.to_string(),
         base: baseline.report.clone(),
         max_length: baseline.max_length,
         settings: reports,
         csv,
         svg,
     };
+    if let Some(q) = &options.quality {
+        let paths: Vec<_> = report.settings.iter().map(|s| s.path.clone()).collect();
+        let measured = quality::measure_tables(
+            &q.lm,
+            q.weights.as_deref(),
+            &q.test,
+            &q.reference,
+            input,
+            &paths,
+        )?;
+        let tables = std::iter::once(&mut report.base)
+            .chain(report.settings.iter_mut().map(|s| &mut s.figures));
+        for (table, figures) in tables.zip(measured.figures()) {
+            table.quality = Some(figures);
+        }
+    }
     let mut out = Output::create(&report.csv)?;
     std::io::Write::write_all(&mut out, report.to_csv().as_bytes())
         .map_err(|e| Error::io(&report.csv, "writing", e))?;
     out.commit()?;
     let mut out = Output::create(&report.svg)?;
-    std::io::Write::write_all(&mut out, measure::plot_svg(&report)?.as_bytes())
-        .map_err(|e| Error::io(&report.svg, "writing", e))?;
+    std::io::Write::write_all(
+        &mut out,
+        measure::plot_svg(&report, &options.plot)?.as_bytes(),
+    )
+    .map_err(|e| Error::io(&report.svg, "writing", e))?;
     out.commit()?;
     Ok(report)
+}
+
+/// Refuses, before any work, a plotted figure this sweep will not measure.
+fn check_plot(options: &SweepOptions) -> Result<()> {
+    for figure in &options.plot {
+        let missing = match figure {
+            Figure::Bleu | Figure::Chrf if options.quality.is_none() => {
+                "it needs a language model (--lm) and a reference"
+            }
+            Figure::Reachability if options.reference.is_none() => "it needs a reference",
+            _ => continue,
+        };
+        return Err(Error::invalid(
+            "--plot",
+            format!("cannot plot {}: {missing}", figure.name()),
+        ));
+    }
+    Ok(())
 }
 
 impl Setting {
