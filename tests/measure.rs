@@ -608,9 +608,24 @@ fn build_matches_the_stages_run_by_hand() {
         std::fs::copy(repo(&format!("demo-data/{name}")), data.join(name)).unwrap();
     }
     let recipe = data.join("toolshed.recipe.toml");
+    // the recipe's [quality] reads the language model run-demo.sh builds first
+    let lm = dir.path().join("demo-out/toolshed.es.balm");
+    std::fs::create_dir(dir.path().join("demo-out")).unwrap();
+    ok(
+        &[
+            "lm",
+            "build",
+            s(&data.join("toolshed.es")),
+            "-o",
+            s(&lm),
+            "-q",
+        ],
+        None,
+    );
     let elsewhere = tempfile::tempdir().unwrap();
     let report = ok(&["build", s(&recipe), "--quiet"], Some(elsewhere.path()));
     assert!(report.contains("toolshed.bale"), "{report}");
+    assert!(report.contains("translation quality"), "{report}");
     assert!(report.contains("reachable"), "{report}");
     let built = dir.path().join("demo-out/toolshed.bale");
     // by hand: extract → prune → pack, with the recipe's options
