@@ -50,3 +50,24 @@ r = json.load(sys.stdin); s = r["systems"][1]; bs = r["bootstrap"]
 print(s["bleu"], s["chrf"], bs["bleu_p"], *bs["bleu_delta_interval"])')
   printf '%-16s %12s %8.2f %8.2f  [%.2f, %.2f], share of resamples with pruned <= full: %.3f\n' "$setting" "$size" "$b" "$c" "$lo" "$hi" "$p"
 done
+
+# A sweep of 6 settings (significance × top-k) with quality, timed whole (goal < 10 minutes on
+# 2 cores): prune and pack each setting, decode the test set with each table and the base.
+if [ "${SWEEP:-1}" != 0 ]; then
+  rm -rf "$W/sweep"
+  t0=$(now)
+  "$B" sweep "$W/table.tsv" --test "$W/test.en" --reference "$W/test.fr" --lm "$W/fr.balm" \
+    --vary significance=alpha+epsilon,alpha-epsilon,20 --vary top-k=20,100 -o "$W/sweep" -q \
+    ${WEIGHTS:+--weights "$WEIGHTS"}
+  t1=$(now)
+  echo "sweep of 6 settings with BLEU and chrF: $(secs "$t0" "$t1") s (goal < 600 s)"
+  python3 - "$W/sweep/sweep.csv" <<'PY'
+import csv, sys
+rows = list(csv.DictReader(open(sys.argv[1], newline="")))
+print(f"{'setting':<40} {'bytes':>10} {'BLEU':>7} {'chrF':>7} {'ΔBLEU':>7}  95% interval")
+for r in rows:
+    print(f"{r['setting']:<40} {int(r['file_bytes']):>10} {float(r['bleu']):>7.2f} "
+          f"{float(r['chrf']):>7.2f} {float(r['bleu_delta']):>+7.2f}  "
+          f"[{float(r['bleu_delta_low']):+.2f}, {float(r['bleu_delta_high']):+.2f}]")
+PY
+fi
