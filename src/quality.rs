@@ -214,6 +214,7 @@ impl QualityReport {
 /// Decodes the test set with `base` and each of `others` (packed tables) using the model at
 /// `lm` and the weights file `weights` (defaults otherwise), and scores each against
 /// `reference`, with the paired-bootstrap difference of each other table from the base.
+/// Sentences are decoded on `threads` threads (0: every core).
 pub fn measure_tables(
     lm: &Path,
     weights: Option<&Path>,
@@ -221,10 +222,12 @@ pub fn measure_tables(
     reference: &Path,
     base: &Path,
     others: &[PathBuf],
+    threads: usize,
 ) -> Result<QualityReport> {
     let lm = LanguageModel::open(lm)?;
     let set = TestSet::read(test, reference)?;
-    let setup = QualitySetup::new(&lm, weights.map(Path::to_path_buf));
+    let mut setup = QualitySetup::new(&lm, weights.map(Path::to_path_buf));
+    setup.threads = threads;
     let base_q = measure_path(base, &set, &setup)?;
     let mut tables = vec![(base.display().to_string(), base_q.clone(), None)];
     for p in others {

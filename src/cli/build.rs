@@ -22,16 +22,15 @@ pub struct Args {
     /// Print the final report as CSV.
     #[arg(long)]
     csv: bool,
-    /// No progress bars and no stage summaries on stderr.
-    #[arg(short, long)]
-    quiet: bool,
+    #[command(flatten)]
+    quiet: crate::cli::flags::Quiet,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
     let recipe = Recipe::load(&args.recipe)?;
     let started = std::time::Instant::now();
-    let report = baler::pipeline::build(&recipe, !args.quiet)?;
-    if !args.quiet {
+    let report = baler::pipeline::build(&recipe, !args.quiet.quiet)?;
+    if !args.quiet.quiet {
         let e = &report.extract;
         eprintln!(
             "baler build: extracted {} pairs ({} sources) from {} sentence pairs",

@@ -16,17 +16,19 @@ pub struct Args {
     #[arg(required = true, num_args = 1..=2)]
     hypotheses: Vec<PathBuf>,
     /// The reference translations.
-    #[arg(long)]
+    #[arg(long, value_name = "FILE")]
     reference: PathBuf,
     /// Print JSON instead of text.
     #[arg(long)]
     json: bool,
     /// Resampled test sets for the paired bootstrap (two hypothesis files only).
-    #[arg(long, default_value_t = 1000)]
+    #[arg(long, value_name = "N", default_value_t = 1000)]
     samples: usize,
     /// Seed of the resampling.
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, value_name = "N", default_value_t = 1)]
     seed: u64,
+    #[command(flatten)]
+    quiet: crate::cli::flags::Quiet,
 }
 
 /// Reads every line of `path`.
@@ -42,6 +44,8 @@ pub fn read_lines(path: &Path) -> baler::Result<Vec<String>> {
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
+    // Nothing but errors goes to standard error here; `-q` is taken like on every command.
+    let _quiet: bool = args.quiet.quiet;
     let refs = read_lines(&args.reference)?;
     let mut systems = Vec::new();
     for h in &args.hypotheses {

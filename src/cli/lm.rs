@@ -29,20 +29,17 @@ struct BuildArgs {
     /// Tokenized text (`.gz`/`.zst` decompressed; `-` for standard input).
     text: PathBuf,
     /// The model file to write.
-    #[arg(short, long)]
+    #[arg(short, long, value_name = "MODEL")]
     output: PathBuf,
     /// n-gram order.
-    #[arg(long, default_value_t = 4)]
+    #[arg(long, value_name = "N", default_value_t = 4)]
     order: usize,
-    /// Memory budget for the n-gram counts, e.g. 512M.
-    #[arg(long, default_value = "1G", value_parser = crate::cli::size_arg)]
-    memory: u64,
     /// Also write the model as ARPA text to this file.
-    #[arg(long)]
+    #[arg(long, value_name = "FILE")]
     arpa: Option<PathBuf>,
-    /// Print no summary.
-    #[arg(short, long)]
-    quiet: bool,
+    /// `--memory` (for the n-gram counts) and `-q`.
+    #[command(flatten)]
+    resources: crate::cli::flags::MemoryFlags,
 }
 
 #[derive(clap::Args)]
@@ -52,6 +49,8 @@ struct ScoreArgs {
     /// Print only the corpus summary, not one line per sentence.
     #[arg(long)]
     summary: bool,
+    #[command(flatten)]
+    quiet: crate::cli::flags::Quiet,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
@@ -67,14 +66,14 @@ fn build(a: BuildArgs) -> baler::Result<ExitCode> {
     let input = files::open_input(&a.text)?;
     let options = BuildOptions {
         order: a.order,
-        memory: a.memory,
+        memory: a.resources.resources.memory,
     };
     let model = lm::build(input, &name, &options)?;
     model.write(&a.output)?;
     if let Some(arpa) = &a.arpa {
         lm::export_arpa(&LanguageModel::open(&a.output)?, arpa)?;
     }
-    if !a.quiet {
+    if !a.resources.quiet {
         let d: Vec<String> = model
             .discounts
             .iter()
@@ -93,6 +92,8 @@ fn build(a: BuildArgs) -> baler::Result<ExitCode> {
 }
 
 fn score(a: ScoreArgs) -> baler::Result<ExitCode> {
+    // Nothing but errors goes to standard error here; `-q` is taken like on every command.
+    let _quiet: bool = a.quiet.quiet;
     let model = LanguageModel::open(&a.model)?;
     let stdio = Path::new(files::STDIO);
     let werr = |e| Error::io(stdio, "writing", e);

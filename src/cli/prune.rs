@@ -18,7 +18,7 @@ struct Flags {
     /// Table to prune: interchange TSV (any order; .gz/.zst; - for stdin) or a packed .bale.
     input: PathBuf,
     /// Where to write: TSV (.gz/.zst compressed; - for stdout) or, by extension, a packed .bale.
-    #[arg(short, long)]
+    #[arg(short, long, value_name = "TABLE")]
     output: PathBuf,
     /// Keep pairs whose one-sided Fisher test gives -ln p >= this: NUMBER, alpha+epsilon or
     /// alpha-epsilon (repeatable).
@@ -39,7 +39,7 @@ struct Flags {
     #[arg(long, conflicts_with = "source")]
     phrase_counts: bool,
     /// Keep the K best options of each source phrase (repeatable; see --by).
-    #[arg(long, value_name = "K", action = clap::ArgAction::Append)]
+    #[arg(long, value_name = "N", action = clap::ArgAction::Append)]
     top_k: Vec<usize>,
     /// Ranking for --top-k: COLUMN, or COLUMN=WEIGHT,COLUMN=WEIGHT,... for the log-linear
     /// sum of weight * ln(value). Ties go to the target first in byte order. Give one for all

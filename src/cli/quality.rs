@@ -13,10 +13,10 @@ use baler::Error;
 pub struct QualityArgs {
     /// Target-language model: decode the test set with each (packed) table and add BLEU and
     /// chrF against --reference.
-    #[arg(long, requires = "reference")]
+    #[arg(long, value_name = "MODEL", requires = "reference")]
     pub lm: Option<PathBuf>,
     /// Decoder weights file (`baler tune`); defaults otherwise.
-    #[arg(long, requires = "lm")]
+    #[arg(long, value_name = "FILE", requires = "lm")]
     pub weights: Option<PathBuf>,
 }
 
@@ -27,6 +27,7 @@ pub fn for_tables(
     reference: Option<&Path>,
     base: &Path,
     others: &[PathBuf],
+    threads: usize,
 ) -> baler::Result<Option<QualityReport>> {
     match (&args.lm, reference) {
         (Some(_), Some(r)) => quality::measure_tables(
@@ -36,6 +37,7 @@ pub fn for_tables(
             r,
             base,
             others,
+            threads,
         )
         .map(Some),
         _ => Ok(None),
@@ -52,6 +54,7 @@ pub fn for_sweep(
     report: &SweepReport,
     plot: &[String],
     out_dir: &Path,
+    resources: &baler::settings::Resources,
     quiet: bool,
 ) -> baler::Result<()> {
     let (Some(_), Some(reference)) = (&args.lm, reference) else {
@@ -72,7 +75,8 @@ pub fn for_sweep(
         let packed = out_dir.join("base.bale");
         let name = input.to_string_lossy().into_owned();
         let reader = baler::files::open_input(input)?;
-        baler::pack::pack_tsv(reader, &name, &packed, &baler::pack::PackOptions::default())?;
+        let options = resources.pack_options(&Default::default());
+        baler::pack::pack_tsv(reader, &name, &packed, &options)?;
         packed
     };
     let paths: Vec<PathBuf> = report.settings.iter().map(|s| s.path.clone()).collect();
@@ -83,6 +87,7 @@ pub fn for_sweep(
         reference,
         &base,
         &paths,
+        resources.threads,
     )?;
     let mut csv = String::from(
         "setting,table,file_bytes,bleu,chrf,bleu_delta,bleu_low,bleu_high,share_better\n",

@@ -18,10 +18,10 @@ pub struct Args {
     /// The unpruned table: TSV (any order) or packed .bale.
     input: PathBuf,
     /// Held-out source text: one tokenized sentence per line.
-    #[arg(long, value_name = "SRC")]
+    #[arg(long, value_name = "FILE")]
     test: PathBuf,
     /// Its reference translation: adds reachability to the figures and the plot.
-    #[arg(long, value_name = "TGT")]
+    #[arg(long, value_name = "FILE")]
     reference: Option<PathBuf>,
     /// An option and its values: NAME=V1,V2,... (repeatable: a grid).
     #[arg(long, value_name = "NAME=V1,V2,...", required = true, action = clap::ArgAction::Append)]
@@ -32,18 +32,22 @@ pub struct Args {
     /// Longest test span looked up (default: the input's longest source phrase).
     #[arg(long, value_name = "N")]
     max_length: Option<usize>,
-    /// Memory budget for sorting and packing.
-    #[arg(long, value_name = "SIZE", default_value = baler::settings::MEMORY.default, value_parser = super::size_arg)]
-    memory: u64,
-    /// No progress bar and no summary.
-    #[arg(short, long)]
-    quiet: bool,
+    /// Print the report as JSON on standard output instead of the readable table.
+    #[arg(long)]
+    json: bool,
     #[command(flatten)]
     quality: crate::cli::quality::QualityArgs,
     /// What to plot against size in DIR/quality.svg (with --lm): bleu, chrf, coverage, mass,
     /// divergence, comma-separated.
-    #[arg(long, value_delimiter = ',', default_value = "bleu,chrf")]
+    #[arg(
+        long,
+        value_name = "NAME,...",
+        value_delimiter = ',',
+        default_value = "bleu,chrf"
+    )]
     plot: Vec<String>,
+    #[command(flatten)]
+    resources: crate::cli::flags::ResourceFlags,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
@@ -64,9 +68,10 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         compare: CompareOptions {
             max_length: args.max_length,
         },
-        memory: args.memory,
-        progress: !args.quiet,
+        resources: args.resources.resources.clone(),
+        progress: !args.resources.quiet,
     };
+    let quiet = args.resources.quiet;
     let report = baler::pipeline::sweep(&args.input, &options)?;
     crate::cli::quality::for_sweep(
         &args.quality,
@@ -76,9 +81,14 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         &report,
         &args.plot,
         &args.output,
-        args.quiet,
+        &args.resources.resources,
+        quiet || args.json,
     )?;
-    if !args.quiet {
+    if args.json {
+        let mut text = serde_json::to_string_pretty(&report).expect("figures serialize");
+        text.push('\n');
+        super::print(&text)?;
+    } else if !quiet {
         let mut out = std::io::stdout().lock();
         let werr = |e| Error::io("-", "writing", e);
         writeln!(

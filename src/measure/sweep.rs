@@ -190,8 +190,8 @@ pub struct SweepOptions {
     pub out_dir: PathBuf,
     /// How the figures are measured.
     pub compare: CompareOptions,
-    /// Memory budget for packing (0: the packer's default).
-    pub memory: u64,
+    /// Memory, threads and temporary directory of the sorting, pruning and packing.
+    pub resources: crate::settings::Resources,
     /// Show a progress bar across settings on stderr (when it is a terminal).
     pub progress: bool,
 }

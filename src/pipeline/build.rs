@@ -146,7 +146,7 @@ pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
                 crate::files::open_input(&extracted)?,
                 &name,
                 &base,
-                &crate::pack::PackOptions::default(),
+                &recipe.pack_resources.pack_options(&Default::default()),
             )?;
             let mut report = quality::measure_tables(
                 &q.lm,
@@ -155,6 +155,7 @@ pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
                 reference,
                 &base,
                 std::slice::from_ref(&recipe.table),
+                recipe.pack_resources.threads,
             )?;
             report.tables[0].0 = if recipe.extracted.is_some() {
                 extracted.display().to_string()
