@@ -15,7 +15,7 @@ use baler::settings::{self, PackSettings, Resources, Setting};
 use clap::{Arg, ArgMatches, FromArgMatches};
 
 /// The clap argument of a registry entry; its value is validated by `check` while parsing.
-fn arg(setting: &'static Setting, check: fn(&str, &str) -> baler::Result<()>) -> Arg {
+pub(crate) fn arg(setting: &'static Setting, check: fn(&str, &str) -> baler::Result<()>) -> Arg {
     let key = setting.key;
     let mut a = Arg::new(key)
         .long(&*Box::leak(setting.flag().into_boxed_str())) // once per flag, at start-up
