@@ -1,8 +1,7 @@
 //! `baler extract`: phrase-pair extraction, scores and sentence-level counts.
 
 use std::collections::{BTreeMap, BTreeSet, HashMap};
-use std::path::{Path, PathBuf};
-use std::process::Command;
+use std::path::Path;
 
 use baler::extract::corpus::CorpusPaths;
 use baler::extract::phrases::{PhraseFinder, PhraseLimits, SpanPair};
@@ -10,15 +9,7 @@ use baler::extract::synthetic::SyntheticCorpus;
 use baler::table::{CountColumn, TsvReader};
 use proptest::prelude::*;
 
-fn baler() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_baler"))
-}
-
-fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
-}
+use crate::util::{bin as baler, repo, write};
 
 fn fast_pairs(ns: usize, nt: usize, links: &[(u16, u16)], limits: PhraseLimits) -> Vec<SpanPair> {
     let mut found = Vec::new();
@@ -719,7 +710,7 @@ fn discounting_is_applied_behind_a_flag() {
 /// (invented data: this guards the shipped file against drift, it is not an outside reference).
 #[test]
 fn shipped_demo_table_is_the_extraction_of_the_demo_corpus() {
-    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data");
+    let root = repo("demo-data");
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("toolshed.tsv");
     let run = baler()

@@ -1,7 +1,6 @@
 //! `baler compare`, `baler sweep`, `baler build` and the measures behind them.
 
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
 use std::sync::OnceLock;
 
 use baler::measure::{
@@ -11,34 +10,9 @@ use baler::prune::{Filter, PruneOptions, Pruner, Ranking, Threshold};
 use baler::table::{PhrasePair, TsvReader, TsvWriter};
 use proptest::prelude::*;
 
+use crate::util::{baler_in as run, ok_in as ok, repo, s};
+
 const LN_2: f64 = std::f64::consts::LN_2;
-
-fn repo(path: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join(path)
-}
-
-fn run(args: &[&str], dir: Option<&Path>) -> Output {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_baler"));
-    cmd.args(args);
-    if let Some(d) = dir {
-        cmd.current_dir(d);
-    }
-    cmd.output().expect("baler runs")
-}
-
-fn ok(args: &[&str], dir: Option<&Path>) -> String {
-    let out = run(args, dir);
-    assert!(
-        out.status.success(),
-        "baler {args:?} failed: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8(out.stdout).unwrap()
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
-}
 
 fn words(text: &str) -> Vec<String> {
     text.split_whitespace().map(String::from).collect()

@@ -7,7 +7,7 @@ use std::path::Path;
 use std::process::{Child, Stdio};
 use std::time::{Duration, Instant};
 
-use crate::util::{baler, baler_ok, command, entries, repo, s, write};
+use crate::util::{baler, baler_ok, command, entries, repo, s, stderr, write};
 
 /// A small table whose sources are out of byte order.
 const UNSORTED: &str = "source\ttarget\tp_t_given_s\n\
@@ -26,10 +26,6 @@ const COUNTED: &str = "# sentence_pairs=1000\n\
 
 fn tempdir() -> tempfile::TempDir {
     tempfile::tempdir().unwrap()
-}
-
-fn stderr(out: &std::process::Output) -> String {
-    String::from_utf8_lossy(&out.stderr).into_owned()
 }
 
 /// Waits for `child` up to `limit`; `None` (and the child killed) when it is still running.

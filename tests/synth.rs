@@ -11,6 +11,8 @@ use baler::table::{CountColumn, PhrasePair, TsvReader};
 use rand_xoshiro::rand_core::{RngCore, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
 
+use crate::util::{bin as baler, repo};
+
 fn small(pairs: u64) -> SynthOptions {
     SynthOptions {
         pairs,
@@ -361,10 +363,6 @@ fn occupancy_matches_birthday_example_and_simulation() {
     }
 }
 
-fn baler() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_baler"))
-}
-
 #[test]
 fn cli_writes_a_compressed_table_that_reads_back() {
     let dir = tempfile::tempdir().unwrap();
@@ -458,7 +456,7 @@ fn cli_rejects_bad_options_and_writes_nothing() {
 }
 
 fn demo_data() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data")
+    repo("demo-data")
 }
 
 fn lines(path: &Path) -> Vec<String> {
