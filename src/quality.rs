@@ -45,28 +45,7 @@ pub struct TestSet {
 impl TestSet {
     /// Reads both files; their line counts must agree.
     pub fn read(source: &Path, reference: &Path) -> Result<TestSet> {
-        let read = |p: &Path| -> Result<Vec<String>> {
-            let name = p.to_string_lossy().into_owned();
-            let mut input = crate::files::open_input(p)?;
-            let (mut lines, mut line) = (Vec::new(), String::new());
-            while crate::files::read_line(&mut input, &mut line, &name, lines.len() as u64 + 1)? {
-                lines.push(line.clone());
-            }
-            Ok(lines)
-        };
-        let (s, r) = (read(source)?, read(reference)?);
-        if s.len() != r.len() {
-            return Err(Error::input(
-                reference.to_string_lossy(),
-                0,
-                format!(
-                    "{} lines, but {} has {}",
-                    r.len(),
-                    source.display(),
-                    s.len()
-                ),
-            ));
-        }
+        let (s, r) = crate::files::read_parallel(source, reference)?;
         Ok(TestSet {
             source: s,
             reference: r,

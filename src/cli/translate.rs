@@ -101,7 +101,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         threshold: args.threshold,
     };
     let decoder = Decoder::new(&table, &lm, weights.clone(), settings);
-    let lines = crate::cli::evaluate::read_lines(&args.input)?;
+    let lines = baler::files::read_lines(&args.input)?;
     let out_of = baler::decode::translate_all(
         &decoder,
         &lines,

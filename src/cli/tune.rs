@@ -46,19 +46,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     let lm = LanguageModel::open(&args.lm)?;
     let start =
         crate::cli::translate::resolve_weights(table.schema(), args.weights.as_deref(), &[])?;
-    let source = crate::cli::evaluate::read_lines(&args.source)?;
-    let reference = crate::cli::evaluate::read_lines(&args.reference)?;
-    if source.len() != reference.len() {
-        return Err(Error::input(
-            args.reference.to_string_lossy(),
-            0,
-            format!(
-                "{} lines, but the source has {}",
-                reference.len(),
-                source.len()
-            ),
-        ));
-    }
+    let (source, reference) = baler::files::read_parallel(&args.source, &args.reference)?;
     let settings = TuneSettings {
         rounds: args.rounds,
         threads: args.resources.resources.threads,
