@@ -5,7 +5,7 @@
 //! Tables are interchange TSV (loaded into memory) or packed (looked up in place); both are
 //! seen through [`MeasuredTable`]. [`compare`] measures a base table and others side by side
 //! ([`Comparison`]), which renders as a readable table ([`Comparison::to_text`]), CSV
-//! ([`Comparison::to_csv`]) or JSON (serde). [`sweep`] prunes and packs at every setting of a
+//! ([`Comparison::to_csv`]) or JSON (serde). [`crate::pipeline::sweep`] prunes and packs at every setting of a
 //! grid and measures each against the unpruned input.
 //!
 //! # Definitions
