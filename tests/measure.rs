@@ -803,3 +803,75 @@ fn build_without_a_held_out_set_reports_sizes_and_divergence() {
     let left: Vec<_> = std::fs::read_dir(dir.path().join("out")).unwrap().collect();
     assert_eq!(left.len(), 1);
 }
+
+/// `--json` on every report: each prints one JSON document on standard output, with the
+/// figures the readable report shows.
+#[test]
+fn every_report_prints_json() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = demo_tsv(dir.path());
+    let test = repo("demo-data/toolshed.test.en");
+    let reference = repo("demo-data/toolshed.test.es");
+    let table = dir.path().join("t.bale");
+    ok(&["pack", s(&input), "-o", s(&table), "-q"], None);
+    let model = dir.path().join("m.balm");
+    ok(
+        &[
+            "lm",
+            "build",
+            s(&reference),
+            "-o",
+            s(&model),
+            "--order",
+            "2",
+            "-q",
+        ],
+        None,
+    );
+    let sweep_dir = dir.path().join("sweep");
+    let json = |args: &[&str]| -> serde_json::Value {
+        let text = ok(args, None);
+        serde_json::from_str(&text).unwrap_or_else(|e| panic!("{args:?}: {e}\n{text}"))
+    };
+    let v = json(&["inspect", s(&table), "--json"]);
+    assert!(v["meta"]["pairs"].as_u64().unwrap() > 0, "{v}");
+    let v = json(&[
+        "compare",
+        s(&table),
+        s(&table),
+        "--test",
+        s(&test),
+        "--json",
+    ]);
+    assert_eq!(v["tables"].as_array().unwrap().len(), 2, "{v}");
+    let v = json(&[
+        "sweep",
+        s(&input),
+        "--test",
+        s(&test),
+        "--vary",
+        "top-k=1,2",
+        "-o",
+        s(&sweep_dir),
+        "--json",
+    ]);
+    assert_eq!(v["settings"].as_array().unwrap().len(), 2, "{v}");
+    assert_eq!(v["settings"][0]["label"], "top-k=1");
+    let v = json(&[
+        "evaluate",
+        s(&reference),
+        "--reference",
+        s(&reference),
+        "--json",
+    ]);
+    assert!(v.is_array() || v.is_object(), "{v}");
+    let out = crate::util::baler(
+        &["lm", "score", s(&model), "--json"],
+        Some("the saw\nthe drill bit\n"),
+    );
+    assert!(out.status.success(), "{}", crate::util::stderr(&out));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["sentences"], 2, "{v}");
+    assert_eq!(v["per_sentence"].as_array().unwrap().len(), 2, "{v}");
+    assert!(v["perplexity"].as_f64().unwrap() > 1.0, "{v}");
+}

@@ -49,6 +49,10 @@ struct ScoreArgs {
     /// Print only the corpus summary, not one line per sentence.
     #[arg(long)]
     summary: bool,
+    /// Print JSON instead: the corpus figures, and `per_sentence` (log10_prob and oov of
+    /// each) unless --summary.
+    #[arg(long)]
+    json: bool,
     #[command(flatten)]
     quiet: crate::cli::flags::Quiet,
 }
@@ -101,6 +105,7 @@ fn score(a: ScoreArgs) -> baler::Result<ExitCode> {
     let mut out = Output::create(stdio)?;
     let mut line = String::new();
     let (mut n, mut total, mut predicted, mut oov, mut words) = (0u64, 0.0f64, 0usize, 0usize, 0);
+    let mut sentences = Vec::new();
     while files::read_line(&mut input, &mut line, files::STDIO, n + 1)? {
         n += 1;
         let tokens = baler::evaluate::tokens(&line);
@@ -109,11 +114,27 @@ fn score(a: ScoreArgs) -> baler::Result<ExitCode> {
         predicted += s.predicted;
         oov += s.oov;
         words += tokens.len();
-        if !a.summary {
+        if a.summary {
+        } else if a.json {
+            sentences.push(serde_json::json!({"log10_prob": s.log10_prob, "oov": s.oov}));
+        } else {
             writeln!(out, "{:.4}\t{}", s.log10_prob, s.oov).map_err(werr)?;
         }
     }
     let perplexity = 10f64.powf(-total / predicted.max(1) as f64);
+    if a.json {
+        let mut report = serde_json::json!({
+            "sentences": n, "words": words, "oov": oov, "log10_prob": total,
+            "perplexity": perplexity,
+        });
+        if !a.summary {
+            report["per_sentence"] = serde_json::Value::Array(sentences);
+        }
+        let text = serde_json::to_string_pretty(&report).expect("figures serialize");
+        writeln!(out, "{text}").map_err(werr)?;
+        out.commit()?;
+        return Ok(ExitCode::SUCCESS);
+    }
     writeln!(
         out,
         "# sentences={n} words={words} oov={oov} log10_prob={total:.4} perplexity={perplexity:.3}"

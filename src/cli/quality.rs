@@ -56,9 +56,9 @@ pub fn for_sweep(
     out_dir: &Path,
     resources: &baler::settings::Resources,
     quiet: bool,
-) -> baler::Result<()> {
+) -> baler::Result<Option<QualityReport>> {
     let (Some(_), Some(reference)) = (&args.lm, reference) else {
-        return Ok(());
+        return Ok(None);
     };
     for p in plot {
         if !["bleu", "chrf", "coverage", "mass", "divergence"].contains(&p.as_str()) {
@@ -182,5 +182,5 @@ pub fn for_sweep(
             out_dir.join("quality.svg").display()
         );
     }
-    Ok(())
+    Ok(Some(q))
 }

@@ -73,7 +73,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     };
     let quiet = args.resources.quiet;
     let report = baler::pipeline::sweep(&args.input, &options)?;
-    crate::cli::quality::for_sweep(
+    let quality = crate::cli::quality::for_sweep(
         &args.quality,
         &args.test,
         args.reference.as_deref(),
@@ -85,7 +85,11 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         quiet || args.json,
     )?;
     if args.json {
-        let mut text = serde_json::to_string_pretty(&report).expect("figures serialize");
+        let mut value = serde_json::to_value(&report).expect("figures serialize");
+        if let Some(q) = &quality {
+            value["quality"] = serde_json::to_value(q).expect("figures serialize");
+        }
+        let mut text = serde_json::to_string_pretty(&value).expect("figures serialize");
         text.push('\n');
         super::print(&text)?;
     } else if !quiet {
