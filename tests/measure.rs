@@ -700,19 +700,7 @@ fn bad_recipes_name_file_line_and_reason() {
             "good-turing",
         ),
     ];
-    for (i, (text, line, needle)) in cases.iter().enumerate() {
-        let path = dir.path().join(format!("bad{i}.toml"));
-        std::fs::write(&path, text).unwrap();
-        let out = run(&["build", s(&path), "--quiet"], Some(dir.path()));
-        assert_eq!(out.status.code(), Some(2), "case {i}");
-        let err = String::from_utf8_lossy(&out.stderr);
-        assert!(
-            err.contains(&format!("bad{i}.toml:{line}:")),
-            "case {i}: {err}"
-        );
-        assert!(err.contains(needle), "case {i}: {err}");
-        assert!(!dir.path().join("out.bale").exists());
-    }
+    crate::util::assert_bad_recipes(dir.path(), &cases);
 }
 
 #[test]

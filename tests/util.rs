@@ -110,3 +110,21 @@ pub fn entries(dir: &Path) -> Vec<String> {
     names.sort();
     names
 }
+
+/// Writes each recipe text to `dir/badN.toml` and asserts that `baler build` refuses it: exit
+/// code 2, an error at `badN.toml:LINE:` that contains the case's needle, and no
+/// `dir/out.bale` written.
+pub fn assert_bad_recipes(dir: &Path, cases: &[(String, u32, &str)]) {
+    for (i, (text, line, needle)) in cases.iter().enumerate() {
+        let path = write(dir, &format!("bad{i}.toml"), text);
+        let out = baler_in(&["build", s(&path), "--quiet"], Some(dir));
+        assert_eq!(out.status.code(), Some(2), "case {i}");
+        let err = stderr(&out);
+        assert!(
+            err.contains(&format!("bad{i}.toml:{line}:")),
+            "case {i}: {err}"
+        );
+        assert!(err.contains(needle), "case {i}: {err}");
+        assert!(!dir.join("out.bale").exists(), "case {i}");
+    }
+}
