@@ -22,12 +22,16 @@ pub struct Args {
     /// Print the final report as CSV.
     #[arg(long)]
     csv: bool,
+    /// `--threads` and `--temp-dir` for every stage, over the recipe's values; `-q`.
     #[command(flatten)]
-    quiet: crate::cli::flags::Quiet,
+    quiet: crate::cli::flags::StageFlags,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
-    let recipe = Recipe::load(&args.recipe)?;
+    let mut recipe = Recipe::load(&args.recipe)?;
+    for (key, value) in &args.quiet.given {
+        recipe.set_resource(key, value)?;
+    }
     let started = std::time::Instant::now();
     let report = baler::pipeline::build(&recipe, !args.quiet.quiet)?;
     if !args.quiet.quiet {

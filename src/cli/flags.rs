@@ -4,7 +4,8 @@
 //! Commands take the shared concepts from here, never declare them themselves:
 //! [`ResourceFlags`] (`--memory`, `--threads`, `--temp-dir`, `-q`) where work spills to disk,
 //! [`ThreadFlags`] (`--threads`, `-q`) where it only runs in parallel, [`MemoryFlags`]
-//! (`--memory`, `-q`) where it is bounded in memory alone, and [`Quiet`] (`-q`) everywhere else.
+//! (`--memory`, `-q`) where it is bounded in memory alone, [`StageFlags`] (`--threads`,
+//! `--temp-dir`, `-q`) for `build`, and [`Quiet`] (`-q`) everywhere else.
 //!
 //! Placeholders name the kind of value, never the flag: `FILE`, `DIR`, `TABLE` (a phrase
 //! table), `MODEL` (a language model), `N` (a whole number), `NUMBER` (a real number),
@@ -133,6 +134,15 @@ fn resources_of(m: &ArgMatches, which: &[Setting]) -> Result<Resources, clap::Er
     Ok(r)
 }
 
+/// The entries of `which` given on the command line, with their text.
+fn given(m: &ArgMatches, which: &[Setting]) -> Vec<(&'static str, String)> {
+    which
+        .iter()
+        .filter(|s| m.value_source(s.key) == Some(clap::parser::ValueSource::CommandLine))
+        .filter_map(|s| m.get_one::<String>(s.key).map(|v| (s.key, v.clone())))
+        .collect()
+}
+
 /// Declares a flag group made of registry resource entries and `-q`.
 macro_rules! resource_group {
     ($(#[$doc:meta])* $name:ident, [$($setting:expr),+]) => {
@@ -140,8 +150,12 @@ macro_rules! resource_group {
         #[derive(Clone, Debug, Default)]
         pub struct $name {
             /// The resources given (defaults for those not in this group).
+            #[allow(dead_code)] // `build` reads only `given`
             pub resources: Resources,
             pub quiet: bool,
+            /// The keys given on the command line (not defaulted), with their text.
+            #[allow(dead_code)] // only `build` needs to tell given from defaulted
+            pub given: Vec<(&'static str, String)>,
         }
 
         impl FromArgMatches for $name {
@@ -149,6 +163,7 @@ macro_rules! resource_group {
                 Ok($name {
                     resources: resources_of(m, &[$($setting),+])?,
                     quiet: m.get_flag("quiet"),
+                    given: given(m, &[$($setting),+]),
                 })
             }
             fn update_from_arg_matches(&mut self, m: &ArgMatches) -> Result<(), clap::Error> {
@@ -180,6 +195,12 @@ resource_group!(
     /// `--threads` and `-q/--quiet`: commands that run in parallel but never spill.
     ThreadFlags,
     [settings::THREADS]
+);
+resource_group!(
+    /// `--threads`, `--temp-dir` and `-q/--quiet`: commands whose stages each have their own
+    /// memory budget (`build`, whose recipe sets them), so only given flags override.
+    StageFlags,
+    [settings::THREADS, settings::TEMP_DIR]
 );
 resource_group!(
     /// `--memory` and `-q/--quiet`: commands bounded in memory that neither spill nor

@@ -346,6 +346,44 @@ impl Recipe {
     }
 }
 
+impl Recipe {
+    /// Sets `threads` or `temp_dir` (snake or kebab case) for every stage, over the recipe's
+    /// own values, as `baler build --threads` does. Memory budgets stay per stage.
+    ///
+    /// # Examples
+    /// ```
+    /// use baler::recipe::Recipe;
+    /// let text = "[corpus]\nsource = \"a\"\ntarget = \"b\"\nalignment = \"c\"\n\
+    ///             [extract]\nthreads = 2\n[output]\ntable = \"t.bale\"\n";
+    /// let mut recipe = Recipe::parse(text, "r.toml".as_ref(), ".".as_ref(), None)?;
+    /// recipe.set_resource("threads", "1")?;
+    /// assert_eq!((recipe.extract.shard.threads, recipe.pack_resources.threads), (1, 1));
+    /// assert!(recipe.set_resource("memory", "1G").is_err());
+    /// # Ok::<(), baler::Error>(())
+    /// ```
+    pub fn set_resource(&mut self, key: &str, text: &str) -> Result<()> {
+        let mut given = self.pack_resources.clone();
+        given.set(key, text)?;
+        match key.trim_start_matches("--").replace('-', "_").as_str() {
+            "threads" => {
+                self.extract.shard.threads = given.thread_count();
+                self.pack_resources.threads = given.threads;
+            }
+            "temp_dir" => {
+                self.extract.shard.temp_dir = given.temp_dir.clone();
+                self.pack_resources.temp_dir = given.temp_dir;
+            }
+            other => {
+                return Err(Error::invalid(
+                    other,
+                    "is set per stage in the recipe, not for the whole build",
+                ))
+            }
+        }
+        Ok(())
+    }
+}
+
 /// The `[pack]` table: packing settings and the resources of packing.
 struct Packing {
     settings: PackSettings,
