@@ -128,6 +128,54 @@ pub fn read_line(
     }
 }
 
+/// Every line of `path` (`.gz`/`.zst` decompressed; `-`: standard input), without line ends.
+/// Errors name the file and the line.
+pub fn read_lines(path: &Path) -> Result<Vec<String>> {
+    let name = path.to_string_lossy().into_owned();
+    let mut input = open_input(path)?;
+    let (mut lines, mut line) = (Vec::new(), String::new());
+    while read_line(&mut input, &mut line, &name, lines.len() as u64 + 1)? {
+        lines.push(line.clone());
+    }
+    Ok(lines)
+}
+
+/// The lines of two line-parallel files, such as a text and its translation. When their line
+/// counts differ, the error names `second` at the first line one of them lacks.
+///
+/// # Examples
+/// ```
+/// let dir = tempfile::tempdir()?;
+/// let (a, b) = (dir.path().join("a.txt"), dir.path().join("b.txt"));
+/// std::fs::write(&a, "one\ntwo\n")?;
+/// std::fs::write(&b, "uno\n")?;
+/// let e = baler::files::read_parallel(&a, &b).unwrap_err().to_string();
+/// assert!(e.contains("b.txt:2") && e.contains("1 lines, but"), "{e}");
+/// # Ok::<(), Box<dyn std::error::Error>>(())
+/// ```
+pub fn read_parallel(first: &Path, second: &Path) -> Result<(Vec<String>, Vec<String>)> {
+    let (a, b) = (read_lines(first)?, read_lines(second)?);
+    check_parallel((first, a.len()), (second, b.len()))?;
+    Ok((a, b))
+}
+
+/// The check of [`read_parallel`] on line counts already read: `(file, lines)` of each.
+pub fn check_parallel(first: (&Path, usize), second: (&Path, usize)) -> Result<()> {
+    if first.1 == second.1 {
+        return Ok(());
+    }
+    Err(Error::input(
+        second.0.to_string_lossy(),
+        first.1.min(second.1) as u64 + 1,
+        format!(
+            "{} lines, but {} has {}",
+            second.1,
+            first.0.display(),
+            first.1
+        ),
+    ))
+}
+
 enum Sink {
     Plain(BufWriter<File>),
     Gzip(flate2::write::GzEncoder<BufWriter<File>>),

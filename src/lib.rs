@@ -1,25 +1,38 @@
 //! baler: extract, prune, pack and query phrase tables for phrase-based machine translation.
 //!
-//! The pipeline after word alignment, one module per stage:
+//! The map of every public module, one line each. The pipeline after word alignment, one
+//! module per stage:
 //!
 //! * [`table`]: the tab-separated interchange format every stage reads and writes.
 //! * [`extract`]: phrase pairs consistent with a word alignment, with relative-frequency and
 //!   lexical scores and the sentence-level counts pruning needs.
 //! * [`prune`]: significance testing (Fisher's exact test), top-k, threshold and
 //!   relative-entropy filters over source-grouped streams.
-//! * [`pack`]: the compact binary format; [`Table`] ([`read`]) reads it from a memory map;
-//!   [`format`] holds its byte layout; [`quantize`] its score codebooks.
+//! * [`pack`]: writes the compact binary format (scores quantized by a private codebook module).
+//! * [`read`]: [`Table`], the packed format read from a memory map: lookups, spans, iteration.
+//! * [`format`](mod@format): every byte layout: the packed table's sections and the language model file.
 //! * [`measure`]: sizes, held-out coverage, retained mass, divergence; the sweep grid.
+//!
+//! Translation quality:
+//!
+//! * [`lm`]: n-gram language models (interpolated modified Kneser-Ney), ARPA export.
+//! * [`decode`]: the phrase-based stack decoder over a packed table and a language model.
+//! * [`evaluate`]: corpus BLEU, chrF and paired bootstrap resampling.
+//! * [`tune`]: fitting the decoder's weights on a development set.
+//! * [`quality`]: a table's translation quality on a test set, for compare, sweep and build.
 //!
 //! Around them:
 //!
 //! * [`pipeline`]: the only place that wires stages together over files (prune a file, prune
 //!   into a pack, pack or repack a file, sweep, build from a [`recipe`]).
-//! * [`settings`]: every packing and resource option, defined once; flags, recipe keys and
-//!   sweep names derive from it.
+//! * [`recipe`]: the TOML build recipe, fully checked before any work.
+//! * [`settings`]: every packing, resource and filter option, defined once; flags, recipe keys
+//!   and sweep names derive from it.
 //! * [`files`]: the one I/O layer (inputs, atomic outputs, temporary directories, removal on
-//!   interrupt); [`sort`]: the one external sorter; [`error`]: the one error type.
+//!   interrupt, line-parallel texts).
 //! * [`synth`]: synthetic tables for benchmarks.
+//! * [`Error`] and [`Result`]: the one error type (its module and the external sorter are
+//!   internal).
 //!
 //! ```
 //! # fn main() -> baler::Result<()> {
@@ -35,7 +48,7 @@
 #![deny(missing_docs)]
 
 pub mod decode;
-pub mod error;
+mod error;
 pub mod evaluate;
 pub mod extract;
 pub mod files;
@@ -47,11 +60,11 @@ pub mod pack;
 pub mod pipeline;
 pub mod prune;
 pub mod quality;
-pub mod quantize;
+mod quantize;
 pub mod read;
 pub mod recipe;
 pub mod settings;
-pub mod sort;
+mod sort;
 pub mod synth;
 pub mod table;
 pub mod tune;

@@ -46,28 +46,7 @@ pub struct TestSet {
 impl TestSet {
     /// Reads both files; their line counts must agree.
     pub fn read(source: &Path, reference: &Path) -> Result<TestSet> {
-        let read = |p: &Path| -> Result<Vec<String>> {
-            let name = p.to_string_lossy().into_owned();
-            let mut input = crate::files::open_input(p)?;
-            let (mut lines, mut line) = (Vec::new(), String::new());
-            while crate::files::read_line(&mut input, &mut line, &name, lines.len() as u64 + 1)? {
-                lines.push(line.clone());
-            }
-            Ok(lines)
-        };
-        let (s, r) = (read(source)?, read(reference)?);
-        if s.len() != r.len() {
-            return Err(Error::input(
-                reference.to_string_lossy(),
-                0,
-                format!(
-                    "{} lines, but {} has {}",
-                    r.len(),
-                    source.display(),
-                    s.len()
-                ),
-            ));
-        }
+        let (s, r) = crate::files::read_parallel(source, reference)?;
         Ok(TestSet {
             source: s,
             reference: r,
@@ -253,6 +232,7 @@ pub fn check_setup(lm: &Path, weights: Option<&Path>, test: &Path, reference: &P
 /// Decodes the test set with `base` and each of `others` (packed tables) using the model at
 /// `lm` and the weights file `weights` (defaults otherwise), and scores each against
 /// `reference`, with the paired-bootstrap difference of each other table from the base.
+/// Sentences are decoded on `threads` threads (0: every core).
 pub fn measure_tables(
     lm: &Path,
     weights: Option<&Path>,
@@ -260,10 +240,12 @@ pub fn measure_tables(
     reference: &Path,
     base: &Path,
     others: &[PathBuf],
+    threads: usize,
 ) -> Result<QualityReport> {
     let lm = LanguageModel::open(lm)?;
     let set = TestSet::read(test, reference)?;
-    let setup = QualitySetup::new(&lm, weights.map(Path::to_path_buf));
+    let mut setup = QualitySetup::new(&lm, weights.map(Path::to_path_buf));
+    setup.threads = threads;
     let base_q = measure_path(base, &set, &setup)?;
     let mut tables = vec![(base.display().to_string(), base_q.clone(), None)];
     for p in others {

@@ -14,18 +14,7 @@ use crate::format::domain;
 /// The most distinct values kept when sampling a column for fitting.
 pub const DEFAULT_SAMPLE_SIZE: usize = 1 << 18;
 
-/// A fitted codebook for one score column.
-///
-/// # Examples
-/// ```
-/// use baler::quantize::Codebook;
-/// let values: Vec<f64> = (1..=1000).map(|i| i as f64 / 1000.0).collect();
-/// let book = Codebook::fit(&values, 4);
-/// assert_eq!(book.len(), 16);
-/// let code = book.encode(0.5);
-/// let back = book.decode(code);
-/// assert!((back.ln() - 0.5f64.ln()).abs() < 0.1);
-/// ```
+/// A fitted codebook for one score column (the unit test `fit_encode_decode` shows a use).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Codebook {
     domain: u8,
@@ -286,6 +275,17 @@ impl Reservoir {
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn fit_encode_decode() {
+        let values: Vec<f64> = (1..=1000).map(|i| i as f64 / 1000.0).collect();
+        let book = Codebook::fit(&values, 4);
+        assert_eq!(book.len(), 16);
+        let code = book.encode(0.5);
+        let back = book.decode(code);
+        assert!((back.ln() - 0.5f64.ln()).abs() < 0.1);
+    }
+
     use super::*;
 
     #[test]

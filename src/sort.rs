@@ -16,21 +16,8 @@ use crate::files::TempDir;
 
 const RECORD_OVERHEAD: usize = 24;
 
-/// Sorts `(key, value)` byte records, spilling to disk past a memory budget.
-///
-/// # Examples
-/// ```
-/// let mut sorter = baler::sort::ExternalSorter::new(64, None).unwrap(); // tiny: forces spills
-/// for word in ["quay", "anchor", "buoy", "anchor"] {
-///     sorter.push(word.as_bytes(), &[word.len() as u8]).unwrap();
-/// }
-/// let mut keys = Vec::new();
-/// let mut merged = sorter.finish().unwrap();
-/// while let Some((key, _value)) = merged.next_record().unwrap() {
-///     keys.push(String::from_utf8(key.to_vec()).unwrap());
-/// }
-/// assert_eq!(keys, ["anchor", "anchor", "buoy", "quay"]);
-/// ```
+/// Sorts `(key, value)` byte records, spilling to disk past a memory budget (see the unit
+/// test `sorts_with_spills` for a use).
 pub struct ExternalSorter {
     budget: usize,
     arena: Vec<u8>,
@@ -299,5 +286,24 @@ impl SortedRecords {
         self.current = Some((key, value));
         let (k, v) = self.current.as_ref().unwrap();
         Ok(Some((k.as_slice(), v.as_slice())))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::ExternalSorter;
+
+    #[test]
+    fn sorts_with_spills() {
+        let mut sorter = ExternalSorter::new(64, None).unwrap(); // tiny: forces spills
+        for word in ["quay", "anchor", "buoy", "anchor"] {
+            sorter.push(word.as_bytes(), &[word.len() as u8]).unwrap();
+        }
+        let mut keys = Vec::new();
+        let mut merged = sorter.finish().unwrap();
+        while let Some((key, _value)) = merged.next_record().unwrap() {
+            keys.push(String::from_utf8(key.to_vec()).unwrap());
+        }
+        assert_eq!(keys, ["anchor", "anchor", "buoy", "quay"]);
     }
 }

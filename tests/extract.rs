@@ -2,7 +2,6 @@
 
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 use std::path::{Path, PathBuf};
-use std::process::Command;
 
 use baler::extract::corpus::CorpusPaths;
 use baler::extract::phrases::{PhraseFinder, PhraseLimits, SpanPair};
@@ -10,15 +9,7 @@ use baler::extract::synthetic::SyntheticCorpus;
 use baler::table::{CountColumn, TsvReader};
 use proptest::prelude::*;
 
-fn baler() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_baler"))
-}
-
-fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
-}
+use crate::util::{bin as baler, repo, write};
 
 fn fast_pairs(ns: usize, nt: usize, links: &[(u16, u16)], limits: PhraseLimits) -> Vec<SpanPair> {
     let mut found = Vec::new();
@@ -719,7 +710,7 @@ fn discounting_is_applied_behind_a_flag() {
 /// (invented data: this guards the shipped file against drift, it is not an outside reference).
 #[test]
 fn shipped_demo_table_is_the_extraction_of_the_demo_corpus() {
-    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data");
+    let root = repo("demo-data");
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("toolshed.tsv");
     let run = baler()
@@ -790,25 +781,70 @@ fn extract_step(args: &[&str], paths: &[&Path]) -> std::process::Output {
     c.output().unwrap()
 }
 
+/// `extract shard` over `paths` into `dir/a.run`, asserted to succeed.
+fn shard_run(dir: &Path, paths: &CorpusPaths) -> PathBuf {
+    let run = dir.join("a.run");
+    let mut args = vec!["shard", "-q", "--source"]
+        .into_iter()
+        .map(String::from)
+        .collect::<Vec<_>>();
+    args.extend([
+        paths.source.display().to_string(),
+        "--target".into(),
+        paths.target.display().to_string(),
+        "--alignment".into(),
+        paths.alignment.as_ref().unwrap().display().to_string(),
+        "-o".into(),
+        run.display().to_string(),
+    ]);
+    let args: Vec<&str> = args.iter().map(String::as_str).collect();
+    let o = extract_step(&args, &[]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    run
+}
+
+/// The merged table, its index and the tally of one shard: `merge run -o dir/m.tsv --index
+/// dir/m.index`, then `tally` into `dir/a.tally`, each asserted to succeed.
+struct Reduced {
+    table: PathBuf,
+    index: PathBuf,
+    tally: PathBuf,
+}
+
+fn merge_and_tally(dir: &Path, paths: &CorpusPaths, run: &Path) -> Reduced {
+    let r = Reduced {
+        table: dir.join("m.tsv"),
+        index: dir.join("m.index"),
+        tally: dir.join("a.tally"),
+    };
+    let (tb, ix, ty) = (
+        r.table.to_str().unwrap(),
+        r.index.to_str().unwrap(),
+        r.tally.to_str().unwrap(),
+    );
+    let o = extract_step(&["merge", "-q", "-o", tb, "--index", ix], &[run]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let (s, t) = (
+        paths.source.to_str().unwrap(),
+        paths.target.to_str().unwrap(),
+    );
+    let o = extract_step(
+        &[
+            "tally", "-q", "--index", ix, "--source", s, "--target", t, "-o", ty,
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    r
+}
+
 /// Defect 5 of the reliability review: `merge a.run a.run` doubled every count. A run records
 /// the identity of its corpus shard, and a shard given twice is refused.
 #[test]
 fn defect5_merge_refuses_a_repeated_run() {
     let dir = tempfile::tempdir().unwrap();
     let paths = small_corpus(dir.path(), 50);
-    let run = dir.path().join("a.run");
-    let o = baler()
-        .args(["extract", "shard", "-q", "--source"])
-        .arg(&paths.source)
-        .arg("--target")
-        .arg(&paths.target)
-        .arg("--alignment")
-        .arg(paths.alignment.as_ref().unwrap())
-        .arg("-o")
-        .arg(&run)
-        .output()
-        .unwrap();
-    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let run = shard_run(dir.path(), &paths);
     let merged = dir.path().join("m.tsv");
     let o = extract_step(
         &["merge", "-q", "-o", merged.to_str().unwrap()],
@@ -829,62 +865,8 @@ fn defect5_merge_refuses_a_repeated_run() {
 fn defect5_attach_refuses_a_repeated_tally() {
     let dir = tempfile::tempdir().unwrap();
     let paths = small_corpus(dir.path(), 50);
-    let run = dir.path().join("a.run");
-    let (s, t, a) = (
-        paths.source.to_str().unwrap(),
-        paths.target.to_str().unwrap(),
-        paths.alignment.as_ref().unwrap().to_str().unwrap(),
-    );
-    let r = run.to_str().unwrap();
-    let o = extract_step(
-        &[
-            "shard",
-            "-q",
-            "--source",
-            s,
-            "--target",
-            t,
-            "--alignment",
-            a,
-            "-o",
-            r,
-        ],
-        &[],
-    );
-    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    let (table, index, tally) = (
-        dir.path().join("m.tsv"),
-        dir.path().join("m.index"),
-        dir.path().join("a.tally"),
-    );
-    let o = extract_step(
-        &[
-            "merge",
-            "-q",
-            "-o",
-            table.to_str().unwrap(),
-            "--index",
-            index.to_str().unwrap(),
-        ],
-        &[&run],
-    );
-    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    let o = extract_step(
-        &[
-            "tally",
-            "-q",
-            "--index",
-            index.to_str().unwrap(),
-            "--source",
-            s,
-            "--target",
-            t,
-            "-o",
-            tally.to_str().unwrap(),
-        ],
-        &[],
-    );
-    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let run = shard_run(dir.path(), &paths);
+    let Reduced { table, tally, .. } = merge_and_tally(dir.path(), &paths, &run);
     let out = dir.path().join("final.tsv");
     let o = extract_step(
         &[
@@ -912,53 +894,23 @@ fn defect5_attach_refuses_a_repeated_tally() {
 fn defect4_damaged_intermediates_are_errors() {
     let dir = tempfile::tempdir().unwrap();
     let paths = small_corpus(dir.path(), 200);
-    let (s, t, a) = (
+    let (s, t) = (
         paths.source.to_str().unwrap(),
         paths.target.to_str().unwrap(),
-        paths.alignment.as_ref().unwrap().to_str().unwrap(),
     );
-    let run = dir.path().join("a.run");
-    let r = run.to_str().unwrap();
-    let o = extract_step(
-        &[
-            "shard",
-            "-q",
-            "--source",
-            s,
-            "--target",
-            t,
-            "--alignment",
-            a,
-            "-o",
-            r,
-        ],
-        &[],
-    );
-    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    let (table, index, tally) = (
-        dir.path().join("m.tsv"),
-        dir.path().join("m.index"),
-        dir.path().join("a.tally"),
-    );
-    let (tb, ix, ty) = (
-        table.to_str().unwrap(),
-        index.to_str().unwrap(),
-        tally.to_str().unwrap(),
-    );
-    let o = extract_step(&["merge", "-q", "-o", tb, "--index", ix], &[&run]);
-    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let run = shard_run(dir.path(), &paths);
+    let Reduced {
+        table,
+        index,
+        tally,
+    } = merge_and_tally(dir.path(), &paths, &run);
+    let tb = table.to_str().unwrap();
     let tally_args = |index: &str, out: &str| {
         let v = [
             "tally", "-q", "--index", index, "--source", s, "--target", t, "-o", out,
         ];
         v.map(String::from)
     };
-    let o = baler()
-        .arg("extract")
-        .args(tally_args(ix, ty))
-        .output()
-        .unwrap();
-    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let damaged = dir.path().join("damaged");
     let out = dir.path().join("out");
     for (file, kind) in [(&run, "run"), (&index, "index"), (&tally, "tally")] {

@@ -1,7 +1,6 @@
 //! `baler compare`, `baler sweep`, `baler build` and the measures behind them.
 
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
 use std::sync::OnceLock;
 
 use baler::measure::{
@@ -11,34 +10,9 @@ use baler::prune::{Filter, PruneOptions, Pruner, Ranking, Threshold};
 use baler::table::{PhrasePair, TsvReader, TsvWriter};
 use proptest::prelude::*;
 
+use crate::util::{baler_in as run, ok_in as ok, repo, s};
+
 const LN_2: f64 = std::f64::consts::LN_2;
-
-fn repo(path: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join(path)
-}
-
-fn run(args: &[&str], dir: Option<&Path>) -> Output {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_baler"));
-    cmd.args(args);
-    if let Some(d) = dir {
-        cmd.current_dir(d);
-    }
-    cmd.output().expect("baler runs")
-}
-
-fn ok(args: &[&str], dir: Option<&Path>) -> String {
-    let out = run(args, dir);
-    assert!(
-        out.status.success(),
-        "baler {args:?} failed: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8(out.stdout).unwrap()
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
-}
 
 fn words(text: &str) -> Vec<String> {
     text.split_whitespace().map(String::from).collect()
@@ -741,19 +715,7 @@ fn bad_recipes_name_file_line_and_reason() {
             "good-turing",
         ),
     ];
-    for (i, (text, line, needle)) in cases.iter().enumerate() {
-        let path = dir.path().join(format!("bad{i}.toml"));
-        std::fs::write(&path, text).unwrap();
-        let out = run(&["build", s(&path), "--quiet"], Some(dir.path()));
-        assert_eq!(out.status.code(), Some(2), "case {i}");
-        let err = String::from_utf8_lossy(&out.stderr);
-        assert!(
-            err.contains(&format!("bad{i}.toml:{line}:")),
-            "case {i}: {err}"
-        );
-        assert!(err.contains(needle), "case {i}: {err}");
-        assert!(!dir.path().join("out.bale").exists());
-    }
+    crate::util::assert_bad_recipes(dir.path(), &cases);
 }
 
 #[test]
@@ -928,4 +890,76 @@ fn column_flag_measures_the_named_score() {
     };
     // top-k 1 by p_t_given_s keeps the first of a's tied options, x: r = 0.8 again
     assert!((at("divergence") - js(0.8) / 2.0).abs() < 1e-12, "{csv}");
+}
+
+/// `--json` on every report: each prints one JSON document on standard output, with the
+/// figures the readable report shows.
+#[test]
+fn every_report_prints_json() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = demo_tsv(dir.path());
+    let test = repo("demo-data/toolshed.test.en");
+    let reference = repo("demo-data/toolshed.test.es");
+    let table = dir.path().join("t.bale");
+    ok(&["pack", s(&input), "-o", s(&table), "-q"], None);
+    let model = dir.path().join("m.balm");
+    ok(
+        &[
+            "lm",
+            "build",
+            s(&reference),
+            "-o",
+            s(&model),
+            "--order",
+            "2",
+            "-q",
+        ],
+        None,
+    );
+    let sweep_dir = dir.path().join("sweep");
+    let json = |args: &[&str]| -> serde_json::Value {
+        let text = ok(args, None);
+        serde_json::from_str(&text).unwrap_or_else(|e| panic!("{args:?}: {e}\n{text}"))
+    };
+    let v = json(&["inspect", s(&table), "--json"]);
+    assert!(v["meta"]["pairs"].as_u64().unwrap() > 0, "{v}");
+    let v = json(&[
+        "compare",
+        s(&table),
+        s(&table),
+        "--test",
+        s(&test),
+        "--json",
+    ]);
+    assert_eq!(v["tables"].as_array().unwrap().len(), 2, "{v}");
+    let v = json(&[
+        "sweep",
+        s(&input),
+        "--test",
+        s(&test),
+        "--vary",
+        "top-k=1,2",
+        "-o",
+        s(&sweep_dir),
+        "--json",
+    ]);
+    assert_eq!(v["settings"].as_array().unwrap().len(), 2, "{v}");
+    assert_eq!(v["settings"][0]["label"], "top-k=1");
+    let v = json(&[
+        "evaluate",
+        s(&reference),
+        "--reference",
+        s(&reference),
+        "--json",
+    ]);
+    assert!(v.is_array() || v.is_object(), "{v}");
+    let out = crate::util::baler(
+        &["lm", "score", s(&model), "--json"],
+        Some("the saw\nthe drill bit\n"),
+    );
+    assert!(out.status.success(), "{}", crate::util::stderr(&out));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["sentences"], 2, "{v}");
+    assert_eq!(v["per_sentence"].as_array().unwrap().len(), 2, "{v}");
+    assert!(v["perplexity"].as_f64().unwrap() > 1.0, "{v}");
 }

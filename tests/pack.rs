@@ -202,8 +202,41 @@ proptest! {
     }
 }
 
+/// The packed sample of [`pack_sample`] and what the damage cases ask of it, built once and
+/// shared by every case (building it per case cost most of these tests' time).
+struct Sample {
+    bytes: Vec<u8>,
+    /// Byte ranges covered by a checksum: header fields, section table, every section.
+    checksummed: Vec<std::ops::Range<usize>>,
+    /// End of the last section (zero padding may follow).
+    data_end: usize,
+}
+
+fn sample() -> &'static Sample {
+    static SAMPLE: std::sync::OnceLock<Sample> = std::sync::OnceLock::new();
+    SAMPLE.get_or_init(|| {
+        let bytes = pack_sample();
+        let table = Table::from_bytes(bytes.clone()).unwrap();
+        let sections = table.section_sizes();
+        let entries =
+            baler::format::FILE_HEADER_LEN + sections.len() * baler::format::SECTION_ENTRY_LEN;
+        let mut checksummed = vec![0..16, baler::format::FILE_HEADER_LEN..entries];
+        checksummed.extend(
+            sections
+                .iter()
+                .map(|s| s.offset as usize..(s.offset + s.length) as usize),
+        );
+        let data_end = sections.iter().map(|s| s.offset + s.length).max().unwrap() as usize;
+        Sample {
+            bytes,
+            checksummed,
+            data_end,
+        }
+    })
+}
+
 /// A table with every kind of column, packed into several small blocks.
-fn sample_file() -> (tempfile::TempDir, std::path::PathBuf, Vec<u8>) {
+fn pack_sample() -> Vec<u8> {
     let mut runner = proptest::test_runner::TestRunner::deterministic();
     let mut table = random_table().new_tree(&mut runner).unwrap().current();
     while table.pairs.len() < 60
@@ -223,8 +256,7 @@ fn sample_file() -> (tempfile::TempDir, std::path::PathBuf, Vec<u8>) {
         ..Default::default()
     };
     pack_tsv(table.tsv().as_bytes(), "t.tsv", &path, &options).unwrap();
-    let bytes = std::fs::read(&path).unwrap();
-    (dir, path, bytes)
+    std::fs::read(&path).unwrap()
 }
 
 /// Everything a reader does with a file; must return (Ok or Err), never panic or hang.
@@ -253,19 +285,9 @@ fn exercise(bytes: Vec<u8>) -> Result<(), String> {
     }
 }
 
-/// The bytes covered by a checksum: header fields, section table, and every section.
-fn checksummed(bytes: &[u8], position: usize) -> bool {
-    if position < 16 {
-        return true;
-    }
-    let table = Table::from_bytes(bytes.to_vec()).unwrap();
-    let entries = baler::format::FILE_HEADER_LEN
-        + table.section_sizes().len() * baler::format::SECTION_ENTRY_LEN;
-    (baler::format::FILE_HEADER_LEN..entries).contains(&position)
-        || table
-            .section_sizes()
-            .iter()
-            .any(|s| (s.offset as usize..(s.offset + s.length) as usize).contains(&position))
+/// Whether byte `position` of the sample is covered by a checksum.
+fn checksummed(position: usize) -> bool {
+    sample().checksummed.iter().any(|r| r.contains(&position))
 }
 
 /// Mutated-file cases: `BALER_FUZZ_CASES` (CI runs a longer smoke), else 400.
@@ -282,12 +304,11 @@ proptest! {
     /// Mutated files: reported, never a panic; any change to checksummed bytes is detected.
     #[test]
     fn damaged_files_are_reported(position in any::<prop::sample::Index>(), flip in 1u8..=255) {
-        let (_dir, _path, original) = sample_file();
-        let mut bytes = original.clone();
+        let mut bytes = sample().bytes.clone();
         let i = position.index(bytes.len());
         bytes[i] ^= flip;
         let outcome = exercise(bytes);
-        if checksummed(&original, i) {
+        if checksummed(i) {
             prop_assert!(outcome.is_err(), "a change at byte {} went unnoticed", i);
         }
     }
@@ -295,19 +316,15 @@ proptest! {
     /// Truncated files are reported at open.
     #[test]
     fn truncated_files_are_reported(cut in any::<prop::sample::Index>()) {
-        let (_dir, _path, original) = sample_file();
         // Cutting only the zero padding after the last section leaves a valid file.
-        let table = Table::from_bytes(original.clone()).unwrap();
-        let end = table.section_sizes().iter().map(|s| s.offset + s.length).max().unwrap() as usize;
-        let n = cut.index(end);
-        prop_assert!(Table::from_bytes(original[..n].to_vec()).is_err());
+        let n = cut.index(sample().data_end);
+        prop_assert!(Table::from_bytes(sample().bytes[..n].to_vec()).is_err());
     }
 }
 
 #[test]
 fn undamaged_sample_passes_every_check() {
-    let (_dir, _path, bytes) = sample_file();
-    exercise(bytes).unwrap();
+    exercise(sample().bytes.clone()).unwrap();
 }
 
 #[test]
@@ -458,7 +475,7 @@ fn output_to_a_device_leaves_the_device_in_place() {
 /// back, compare within the error the file reports; the default and the f32 layouts.
 #[test]
 fn demo_table_round_trips() {
-    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data/toolshed.tsv");
+    let path = crate::util::repo("demo-data/toolshed.tsv");
     let reader =
         baler::table::TsvReader::new(baler::files::open_input(&path).unwrap(), "toolshed.tsv")
             .unwrap();

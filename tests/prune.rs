@@ -1,14 +1,13 @@
 //! `baler prune`: the Fisher test against stored reference values, and the filters end to end.
 
 use std::path::{Path, PathBuf};
-use std::process::Command;
 
 use baler::prune::fisher::neg_ln_p;
 
+use crate::util::{repo, s, write};
+
 fn data(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("tests/data")
-        .join(name)
+    repo("tests/data").join(name)
 }
 
 struct Reference {
@@ -111,11 +110,9 @@ fn one_one_one_is_ln_n() {
 
 // ---- the command line ----
 
+/// Runs `baler` with `args`, standard input closed.
 fn baler(args: &[&str]) -> std::process::Output {
-    Command::new(env!("CARGO_BIN_EXE_baler"))
-        .args(args)
-        .output()
-        .expect("run baler")
+    crate::util::baler_in(args, None)
 }
 
 struct Dir(tempfile::TempDir);
@@ -125,9 +122,7 @@ impl Dir {
         Dir(tempfile::tempdir().unwrap())
     }
     fn write(&self, name: &str, text: &str) -> String {
-        let p = self.0.path().join(name);
-        std::fs::write(&p, text).unwrap();
-        p.to_string_lossy().into_owned()
+        s(&write(self.0.path(), name, text)).to_string()
     }
     fn path(&self, name: &str) -> String {
         self.0.path().join(name).to_string_lossy().into_owned()
@@ -525,7 +520,7 @@ fn unsorted_input_is_sorted_first_with_the_same_result() {
 fn stdin_input_and_stdout_output() {
     let dir = Dir::new();
     let input = dir.write("t.tsv", HARBOUR);
-    let run = Command::new(env!("CARGO_BIN_EXE_baler"))
+    let run = crate::util::bin()
         .args(["prune", "-", "-o", "-", "-q", "--top-k", "1"])
         .stdin(std::fs::File::open(&input).unwrap())
         .output()

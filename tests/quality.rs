@@ -899,18 +899,7 @@ fn build_recipes_report_bleu_and_chrf() {
         ),
     ];
     std::fs::remove_file(dir.path().join("out.bale")).unwrap();
-    for (i, (text, line, needle)) in cases.iter().enumerate() {
-        let path = crate::util::write(dir.path(), &format!("bad{i}.toml"), text);
-        let out = baler(&["build", s(&path), "--quiet"], None);
-        assert_eq!(out.status.code(), Some(2), "case {i}");
-        let err = String::from_utf8_lossy(&out.stderr);
-        assert!(
-            err.contains(&format!("bad{i}.toml:{line}:")),
-            "case {i}: {err}"
-        );
-        assert!(err.contains(needle), "case {i}: {err}");
-        assert!(!dir.path().join("out.bale").exists(), "case {i}");
-    }
+    crate::util::assert_bad_recipes(dir.path(), &cases);
 }
 
 /// A CSV text (CRLF or LF lines, no quoted commas in these files) as header → column index

@@ -7,7 +7,7 @@ use std::path::Path;
 use std::process::{Child, Stdio};
 use std::time::{Duration, Instant};
 
-use crate::util::{baler, baler_ok, command, entries, repo, s, write};
+use crate::util::{baler, baler_ok, command, entries, repo, s, stderr, write};
 
 /// A small table whose sources are out of byte order.
 const UNSORTED: &str = "source\ttarget\tp_t_given_s\n\
@@ -26,10 +26,6 @@ const COUNTED: &str = "# sentence_pairs=1000\n\
 
 fn tempdir() -> tempfile::TempDir {
     tempfile::tempdir().unwrap()
-}
-
-fn stderr(out: &std::process::Output) -> String {
-    String::from_utf8_lossy(&out.stderr).into_owned()
 }
 
 /// Waits for `child` up to `limit`; `None` (and the child killed) when it is still running.
@@ -64,6 +60,18 @@ fn defect_01_prune_to_stdout_never_restarts_a_written_stream() {
     assert!(out.status.success(), "{}", stderr(&out));
 }
 
+/// The rest of a finished child's standard error (captured by [`command`]).
+fn read_stderr(child: &mut Child) -> String {
+    let mut err = String::new();
+    child
+        .stderr
+        .take()
+        .expect("stderr captured")
+        .read_to_string(&mut err)
+        .unwrap();
+    err
+}
+
 /// Starts `args`, waits until `ready` holds, interrupts it with `signal`, and returns its
 /// exit code and stderr.
 fn interrupt(args: &[&str], signal: &str, ready: impl Fn() -> bool) -> (Option<i32>, String) {
@@ -83,13 +91,7 @@ fn interrupt(args: &[&str], signal: &str, ready: impl Fn() -> bool) -> (Option<i
         .unwrap();
     assert!(sent.success());
     let status = wait_at_most(&mut child, Duration::from_secs(30)).expect("it stops");
-    let mut err = String::new();
-    child
-        .stderr
-        .take()
-        .unwrap()
-        .read_to_string(&mut err)
-        .unwrap();
+    let err = read_stderr(&mut child);
     (status.code(), err)
 }
 
@@ -139,23 +141,53 @@ fn defect_03_closed_pipe_is_success_and_full_disk_an_error() {
     let table = dir.path().join("t.bale");
     let tsv = write(dir.path(), "t.tsv", COUNTED);
     baler_ok(&["pack", s(&tsv), "-o", s(&table), "-q"]);
+    let text = write(dir.path(), "text.txt", "the lighthouse\nthe pier\n");
+    let model = dir.path().join("m.balm");
+    baler_ok(&[
+        "lm",
+        "build",
+        s(&text),
+        "-o",
+        s(&model),
+        "--order",
+        "2",
+        "-q",
+    ]);
+    let test = write(dir.path(), "test.txt", "el faro\nel muelle\n");
     for args in [
         vec!["inspect", s(&table)],
         vec!["inspect", s(&table), "--verify"],
+        vec!["inspect", s(&table), "--json"],
         vec!["dump", s(&table)],
         vec!["lookup", s(&table), "el faro", "el muelle"],
+        // every other command that writes to standard output
+        vec!["prune", s(&tsv), "-o", "-", "--top-k", "1", "-q"],
+        vec![
+            "compare",
+            s(&table),
+            s(&table),
+            "--test",
+            s(&test),
+            "--json",
+        ],
+        vec!["evaluate", s(&text), "--reference", s(&text)],
+        vec!["lm", "score", s(&model)],
+        vec!["synth", "--pairs", "20000", "-o", "-", "-q"],
+        vec![
+            "translate",
+            s(&table),
+            "--lm",
+            s(&model),
+            "--input",
+            s(&test),
+            "-q",
+        ],
     ] {
         // closed pipe: the reader is gone before the first write
         let mut child = command(&args).stdin(Stdio::null()).spawn().unwrap();
         drop(child.stdout.take());
         let status = wait_at_most(&mut child, Duration::from_secs(30)).unwrap();
-        let mut err = String::new();
-        child
-            .stderr
-            .take()
-            .unwrap()
-            .read_to_string(&mut err)
-            .unwrap();
+        let err = read_stderr(&mut child);
         assert_eq!(status.code(), Some(0), "{args:?} into a closed pipe: {err}");
         assert!(!err.contains("panicked"), "{err}");
         // full disk
@@ -374,13 +406,7 @@ fn defect_10_an_unwritable_output_is_found_before_the_work() {
         drop(stdin);
         let status = status.expect("it stops at once instead of reading the input");
         assert_eq!(status.code(), Some(2), "{args:?}");
-        let mut err = String::new();
-        child
-            .stderr
-            .take()
-            .unwrap()
-            .read_to_string(&mut err)
-            .unwrap();
+        let err = read_stderr(&mut child);
         assert!(err.contains("out.tsv"), "{err}");
     }
 }
@@ -665,13 +691,7 @@ fn defect_10_extract_finds_an_unwritable_output_before_the_work() {
         let status = wait_at_most(&mut child, Duration::from_secs(20))
             .expect("it stops at once instead of reading the corpus");
         assert_eq!(status.code(), Some(2), "{args:?}");
-        let mut err = String::new();
-        child
-            .stderr
-            .take()
-            .unwrap()
-            .read_to_string(&mut err)
-            .unwrap();
+        let err = read_stderr(&mut child);
         assert!(err.contains("out.tsv"), "{err}");
     }
 }

@@ -17,9 +17,7 @@ use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
-fn manifest_path(relative: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join(relative)
-}
+use crate::util::{bin as baler, repo as manifest_path};
 
 fn fixture() -> PathBuf {
     manifest_path("tests/data/spec/harbour.tsv")
@@ -53,7 +51,7 @@ fn run(command: &mut Command) -> Vec<u8> {
 }
 
 fn pack(input: &Path, output: &Path, options: &[&str]) {
-    run(Command::new(env!("CARGO_BIN_EXE_baler"))
+    run(baler()
         .arg("pack")
         .arg(input)
         .arg("-o")
@@ -63,9 +61,7 @@ fn pack(input: &Path, output: &Path, options: &[&str]) {
 }
 
 fn dump(table: &Path) -> Vec<u8> {
-    run(Command::new(env!("CARGO_BIN_EXE_baler"))
-        .arg("dump")
-        .arg(table))
+    run(baler().arg("dump").arg(table))
 }
 
 /// The reference reader's command, reading `table` with the sources taken from the packed TSV.
@@ -403,11 +399,7 @@ fn compatibility_files_of_format_1_0_are_refused_with_how_to_repack() {
         "generated-4bit-dictionary",
     ] {
         let table = dir.join(format!("{name}.bale"));
-        let out = Command::new(env!("CARGO_BIN_EXE_baler"))
-            .arg("dump")
-            .arg(&table)
-            .output()
-            .unwrap();
+        let out = baler().arg("dump").arg(&table).output().unwrap();
         assert!(!out.status.success(), "{name}");
         let stderr = String::from_utf8_lossy(&out.stderr);
         assert!(
@@ -436,9 +428,7 @@ fn compatibility_files_of_format_2_0_still_read() {
             dump(&table) == expected,
             "{name}: baler dump no longer reproduces the frozen dump"
         );
-        run(Command::new(env!("CARGO_BIN_EXE_baler"))
-            .args(["inspect", "--verify"])
-            .arg(&table));
+        run(baler().args(["inspect", "--verify"]).arg(&table));
         if python {
             let got = run(&mut reference(&table, &dir.join(input)));
             assert!(

@@ -11,6 +11,8 @@ use baler::table::{CountColumn, PhrasePair, TsvReader};
 use rand_xoshiro::rand_core::{RngCore, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
 
+use crate::util::{bin as baler, repo};
+
 fn small(pairs: u64) -> SynthOptions {
     SynthOptions {
         pairs,
@@ -298,36 +300,29 @@ fn alias_sampler_matches_zipf_law_by_chi_square() {
     let table = AliasTable::new(&p);
     let mut rng = Xoshiro256PlusPlus::seed_from_u64(99);
     let draws = 400_000u32;
-    let mut observed = vec![0u32; n];
-    for _ in 0..draws {
-        observed[table.sample(&mut rng) as usize] += 1;
-    }
-    let statistic: f64 = observed
-        .iter()
-        .zip(&p)
-        .map(|(&o, &p)| {
-            let e = p * f64::from(draws);
-            (f64::from(o) - e).powi(2) / e
-        })
-        .sum();
+    // Pearson's statistic of `draws` samples of `table` against the Zipf probabilities p
+    let chi_square = |table: &AliasTable, rng: &mut Xoshiro256PlusPlus| -> f64 {
+        let mut observed = vec![0u32; n];
+        for _ in 0..draws {
+            observed[table.sample(rng) as usize] += 1;
+        }
+        observed
+            .iter()
+            .zip(&p)
+            .map(|(&o, &p)| {
+                let e = p * f64::from(draws);
+                (f64::from(o) - e).powi(2) / e
+            })
+            .sum()
+    };
+    let statistic = chi_square(&table, &mut rng);
     let critical = ChiSquared::new((n - 1) as f64).unwrap().inverse_cdf(0.999);
     assert!(statistic < critical, "chi-square {statistic} >= {critical}");
     // And it can fail: a sampler off by a little on the top rank is caught.
     let mut skewed = p.clone();
     skewed[0] *= 1.05;
     let table = AliasTable::new(&skewed);
-    let mut observed = vec![0u32; n];
-    for _ in 0..draws {
-        observed[table.sample(&mut rng) as usize] += 1;
-    }
-    let statistic: f64 = observed
-        .iter()
-        .zip(&p)
-        .map(|(&o, &p)| {
-            let e = p * f64::from(draws);
-            (f64::from(o) - e).powi(2) / e
-        })
-        .sum();
+    let statistic = chi_square(&table, &mut rng);
     assert!(
         statistic > critical,
         "skewed sampler not detected: {statistic}"
@@ -359,10 +354,6 @@ fn occupancy_matches_birthday_example_and_simulation() {
             "{balls} in {cells}: {simulated} vs {formula}"
         );
     }
-}
-
-fn baler() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_baler"))
 }
 
 #[test]
@@ -458,7 +449,7 @@ fn cli_rejects_bad_options_and_writes_nothing() {
 }
 
 fn demo_data() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data")
+    repo("demo-data")
 }
 
 fn lines(path: &Path) -> Vec<String> {

@@ -13,6 +13,11 @@ pub fn baler_bin() -> PathBuf {
         .unwrap_or_else(|| PathBuf::from(env!("CARGO_BIN_EXE_baler")))
 }
 
+/// A plain `baler` command (the binary under test), to add arguments to.
+pub fn bin() -> Command {
+    Command::new(baler_bin())
+}
+
 /// A `baler` command with `args`, its output captured.
 pub fn command(args: &[&str]) -> Command {
     let mut cmd = Command::new(baler_bin());
@@ -39,6 +44,33 @@ pub fn baler(args: &[&str], stdin: Option<&str>) -> Output {
             .unwrap();
     }
     child.wait_with_output().unwrap()
+}
+
+/// Runs `baler` with `args` in the folder `dir` (this process's when `None`), standard input
+/// closed; returns the process output.
+pub fn baler_in(args: &[&str], dir: Option<&Path>) -> Output {
+    let mut cmd = command(args);
+    cmd.stdin(Stdio::null());
+    if let Some(d) = dir {
+        cmd.current_dir(d);
+    }
+    cmd.output().expect("baler runs")
+}
+
+/// [`baler_in`], asserting success; returns standard output.
+pub fn ok_in(args: &[&str], dir: Option<&Path>) -> String {
+    let out = baler_in(args, dir);
+    assert!(
+        out.status.success(),
+        "baler {args:?} failed: {}",
+        stderr(&out)
+    );
+    String::from_utf8(out.stdout).unwrap()
+}
+
+/// A process's standard error as text.
+pub fn stderr(out: &Output) -> String {
+    String::from_utf8_lossy(&out.stderr).into_owned()
 }
 
 /// Runs `baler` and asserts success; returns standard output.
@@ -77,4 +109,22 @@ pub fn entries(dir: &Path) -> Vec<String> {
         .collect();
     names.sort();
     names
+}
+
+/// Writes each recipe text to `dir/badN.toml` and asserts that `baler build` refuses it: exit
+/// code 2, an error at `badN.toml:LINE:` that contains the case's needle, and no
+/// `dir/out.bale` written.
+pub fn assert_bad_recipes(dir: &Path, cases: &[(String, u32, &str)]) {
+    for (i, (text, line, needle)) in cases.iter().enumerate() {
+        let path = write(dir, &format!("bad{i}.toml"), text);
+        let out = baler_in(&["build", s(&path), "--quiet"], Some(dir));
+        assert_eq!(out.status.code(), Some(2), "case {i}");
+        let err = stderr(&out);
+        assert!(
+            err.contains(&format!("bad{i}.toml:{line}:")),
+            "case {i}: {err}"
+        );
+        assert!(err.contains(needle), "case {i}: {err}");
+        assert!(!dir.join("out.bale").exists(), "case {i}");
+    }
 }

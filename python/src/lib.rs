@@ -125,46 +125,40 @@ fn name_dict<'py, T: IntoPyObject<'py> + Copy>(
     Ok(dict)
 }
 
-#[pymethods]
-impl TranslationOption {
-    /// Scores by column name, in the table's column order.
-    #[getter]
-    fn scores<'py>(&self, py: Python<'py>) -> PyResult<Bound<'py, PyDict>> {
-        name_dict(py, &self.columns.scores, &self.score_values)
-    }
+/// The `scores` and `counts` getters of a class with `columns`, `score_values` and
+/// `count_values` (`TranslationOption`, `Pair`), and its `__repr__` from `$repr`.
+macro_rules! scored_methods {
+    ($class:ty, |$this:ident| $repr:expr) => {
+        #[pymethods]
+        impl $class {
+            /// Scores by column name, in the table's column order.
+            #[getter]
+            fn scores<'py>(&self, py: Python<'py>) -> PyResult<Bound<'py, PyDict>> {
+                name_dict(py, &self.columns.scores, &self.score_values)
+            }
 
-    /// Exact counts by column name (empty when the table stores none).
-    #[getter]
-    fn counts<'py>(&self, py: Python<'py>) -> PyResult<Bound<'py, PyDict>> {
-        name_dict(py, &self.columns.counts, &self.count_values)
-    }
+            /// Exact counts by column name (empty when the table stores none).
+            #[getter]
+            fn counts<'py>(&self, py: Python<'py>) -> PyResult<Bound<'py, PyDict>> {
+                name_dict(py, &self.columns.counts, &self.count_values)
+            }
 
-    fn __repr__(&self) -> String {
-        format!(
-            "TranslationOption(target={:?}, scores={:?})",
-            self.target, self.score_values
-        )
-    }
+            fn __repr__(&self) -> String {
+                let $this = self;
+                $repr
+            }
+        }
+    };
 }
 
-#[pymethods]
-impl Pair {
-    /// Scores by column name, in the table's column order.
-    #[getter]
-    fn scores<'py>(&self, py: Python<'py>) -> PyResult<Bound<'py, PyDict>> {
-        name_dict(py, &self.columns.scores, &self.score_values)
-    }
-
-    /// Exact counts by column name (empty when the table stores none).
-    #[getter]
-    fn counts<'py>(&self, py: Python<'py>) -> PyResult<Bound<'py, PyDict>> {
-        name_dict(py, &self.columns.counts, &self.count_values)
-    }
-
-    fn __repr__(&self) -> String {
-        format!("Pair(source={:?}, target={:?})", self.source, self.target)
-    }
-}
+scored_methods!(TranslationOption, |o| format!(
+    "TranslationOption(target={:?}, scores={:?})",
+    o.target, o.score_values
+));
+scored_methods!(Pair, |p| format!(
+    "Pair(source={:?}, target={:?})",
+    p.source, p.target
+));
 
 #[pymethods]
 impl Span {

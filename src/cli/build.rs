@@ -22,16 +22,19 @@ pub struct Args {
     /// Print the final report as CSV.
     #[arg(long)]
     csv: bool,
-    /// No progress bars and no stage summaries on stderr.
-    #[arg(short, long)]
-    quiet: bool,
+    /// `--threads` and `--temp-dir` for every stage, over the recipe's values; `-q`.
+    #[command(flatten)]
+    quiet: crate::cli::flags::StageFlags,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
-    let recipe = Recipe::load(&args.recipe)?;
+    let mut recipe = Recipe::load(&args.recipe)?;
+    for (key, value) in &args.quiet.given {
+        recipe.set_resource(key, value)?;
+    }
     let started = std::time::Instant::now();
-    let report = baler::pipeline::build(&recipe, !args.quiet)?;
-    if !args.quiet {
+    let report = baler::pipeline::build(&recipe, !args.quiet.quiet)?;
+    if !args.quiet.quiet {
         let e = &report.extract;
         eprintln!(
             "baler build: extracted {} pairs ({} sources) from {} sentence pairs",

@@ -22,10 +22,10 @@ pub struct Args {
     #[arg(required = true, value_name = "OTHER")]
     others: Vec<PathBuf>,
     /// Held-out source text: one tokenized sentence per line.
-    #[arg(long, value_name = "SRC")]
+    #[arg(long, value_name = "FILE")]
     test: PathBuf,
     /// Its reference translation, line by line: adds the reachability of reference n-grams.
-    #[arg(long, value_name = "TGT")]
+    #[arg(long, value_name = "FILE")]
     reference: Option<PathBuf>,
     /// Longest test span looked up (default: the base's longest source phrase).
     #[arg(long, value_name = "N")]
@@ -40,6 +40,8 @@ pub struct Args {
     quality: crate::cli::quality::QualityArgs,
     #[command(flatten)]
     column: crate::cli::flags::ColumnFlag,
+    #[command(flatten)]
+    threads: crate::cli::flags::ThreadFlags,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
@@ -68,6 +70,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         args.reference.as_deref(),
         &args.base,
         &args.others,
+        args.threads.resources.threads,
     )?;
     if let Some(q) = &quality {
         for (table, figures) in report.tables.iter_mut().zip(q.figures()) {

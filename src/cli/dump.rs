@@ -13,8 +13,10 @@ pub struct Args {
     /// The packed table.
     table: PathBuf,
     /// Where to write the TSV (`-`: standard output; `.gz`/`.zst` compress).
-    #[arg(short, long, default_value = "-")]
+    #[arg(short, long, value_name = "FILE", default_value = "-")]
     output: PathBuf,
+    #[command(flatten)]
+    quiet: crate::cli::flags::Quiet,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
@@ -23,9 +25,14 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     let output = Output::create(&args.output)?;
     let werr = |e| Error::io(&args.output, "writing", e);
     let mut writer = TsvWriter::new(output, table.header()).map_err(werr)?;
-    for pair in table.pairs_iter() {
+    let bar = args.quiet.bar(Some(table.meta().pairs), "dumping");
+    for (i, pair) in table.pairs_iter().enumerate() {
         writer.write_pair(&pair?).map_err(werr)?;
+        if i % 65536 == 0 {
+            bar.set_position(i as u64);
+        }
     }
+    bar.finish_and_clear();
     writer.into_inner().commit()?;
     Ok(ExitCode::SUCCESS)
 }

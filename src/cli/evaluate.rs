@@ -16,48 +16,29 @@ pub struct Args {
     #[arg(required = true, num_args = 1..=2)]
     hypotheses: Vec<PathBuf>,
     /// The reference translations.
-    #[arg(long)]
+    #[arg(long, value_name = "FILE")]
     reference: PathBuf,
     /// Print JSON instead of text.
     #[arg(long)]
     json: bool,
     /// Resampled test sets for the paired bootstrap (two hypothesis files only).
-    #[arg(long, default_value_t = 1000)]
+    #[arg(long, value_name = "N", default_value_t = 1000)]
     samples: usize,
     /// Seed of the resampling.
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, value_name = "N", default_value_t = 1)]
     seed: u64,
-}
-
-/// Reads every line of `path`.
-pub fn read_lines(path: &Path) -> baler::Result<Vec<String>> {
-    let name = path.to_string_lossy().into_owned();
-    let mut input = files::open_input(path)?;
-    let mut lines = Vec::new();
-    let mut line = String::new();
-    while files::read_line(&mut input, &mut line, &name, lines.len() as u64 + 1)? {
-        lines.push(line.clone());
-    }
-    Ok(lines)
+    #[command(flatten)]
+    quiet: crate::cli::flags::Quiet,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
-    let refs = read_lines(&args.reference)?;
+    // Nothing but errors goes to standard error here; `-q` is taken like on every command.
+    let _quiet: bool = args.quiet.quiet;
+    let refs = files::read_lines(&args.reference)?;
     let mut systems = Vec::new();
     for h in &args.hypotheses {
-        let hyps = read_lines(h)?;
-        if hyps.len() != refs.len() {
-            return Err(Error::input(
-                h.to_string_lossy(),
-                0,
-                format!(
-                    "{} lines, but the reference {} has {}",
-                    hyps.len(),
-                    args.reference.display(),
-                    refs.len()
-                ),
-            ));
-        }
+        let hyps = files::read_lines(h)?;
+        files::check_parallel((&args.reference, refs.len()), (h, hyps.len()))?;
         systems.push(CorpusStats::new(&hyps, &refs));
     }
     let stdout = Path::new(files::STDIO);

@@ -17,16 +17,20 @@ pub struct Args {
     /// Print JSON instead of the readable report.
     #[arg(long)]
     json: bool,
+    #[command(flatten)]
+    quiet: crate::cli::flags::Quiet,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
     let table = baler::Table::open(&args.table)?;
+    let verify = || {
+        let bar = args.quiet.bar(None, "verifying every checksum and record");
+        let report = table.verify();
+        bar.finish_and_clear();
+        report
+    };
     if args.json {
-        let verified = if args.verify {
-            Some(table.verify()?)
-        } else {
-            None
-        };
+        let verified = if args.verify { Some(verify()?) } else { None };
         let sections: Vec<_> = table
             .section_sizes()
             .iter()
@@ -196,7 +200,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     }
     super::print(&out)?;
     if args.verify {
-        let r = table.verify()?;
+        let r = verify()?;
         super::print(&format!(
             "\nverified   {} section checksums, {} blocks, {} pairs, {} targets: all good\n",
             r.sections, r.blocks, r.pairs, r.targets

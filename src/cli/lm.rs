@@ -29,20 +29,17 @@ struct BuildArgs {
     /// Tokenized text (`.gz`/`.zst` decompressed; `-` for standard input).
     text: PathBuf,
     /// The model file to write.
-    #[arg(short, long)]
+    #[arg(short, long, value_name = "MODEL")]
     output: PathBuf,
     /// n-gram order.
-    #[arg(long, default_value_t = 4)]
+    #[arg(long, value_name = "N", default_value_t = 4)]
     order: usize,
-    /// Memory budget for the n-gram counts, e.g. 512M.
-    #[arg(long, default_value = "1G", value_parser = crate::cli::size_arg)]
-    memory: u64,
     /// Also write the model as ARPA text to this file.
-    #[arg(long)]
+    #[arg(long, value_name = "FILE")]
     arpa: Option<PathBuf>,
-    /// Print no summary.
-    #[arg(short, long)]
-    quiet: bool,
+    /// `--memory` (for the n-gram counts) and `-q`.
+    #[command(flatten)]
+    resources: crate::cli::flags::MemoryFlags,
 }
 
 #[derive(clap::Args)]
@@ -52,6 +49,12 @@ struct ScoreArgs {
     /// Print only the corpus summary, not one line per sentence.
     #[arg(long)]
     summary: bool,
+    /// Print JSON instead: the corpus figures, and `per_sentence` (log10_prob and oov of
+    /// each) unless --summary.
+    #[arg(long)]
+    json: bool,
+    #[command(flatten)]
+    quiet: crate::cli::flags::Quiet,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
@@ -67,14 +70,14 @@ fn build(a: BuildArgs) -> baler::Result<ExitCode> {
     let input = files::open_input(&a.text)?;
     let options = BuildOptions {
         order: a.order,
-        memory: a.memory,
+        memory: a.resources.resources.memory,
     };
     let model = lm::build(input, &name, &options)?;
     model.write(&a.output)?;
     if let Some(arpa) = &a.arpa {
         lm::export_arpa(&LanguageModel::open(&a.output)?, arpa)?;
     }
-    if !a.quiet {
+    if !a.resources.quiet {
         let d: Vec<String> = model
             .discounts
             .iter()
@@ -93,6 +96,8 @@ fn build(a: BuildArgs) -> baler::Result<ExitCode> {
 }
 
 fn score(a: ScoreArgs) -> baler::Result<ExitCode> {
+    // Nothing but errors goes to standard error here; `-q` is taken like on every command.
+    let _quiet: bool = a.quiet.quiet;
     let model = LanguageModel::open(&a.model)?;
     let stdio = Path::new(files::STDIO);
     let werr = |e| Error::io(stdio, "writing", e);
@@ -100,6 +105,7 @@ fn score(a: ScoreArgs) -> baler::Result<ExitCode> {
     let mut out = Output::create(stdio)?;
     let mut line = String::new();
     let (mut n, mut total, mut predicted, mut oov, mut words) = (0u64, 0.0f64, 0usize, 0usize, 0);
+    let mut sentences = Vec::new();
     while files::read_line(&mut input, &mut line, files::STDIO, n + 1)? {
         n += 1;
         let tokens = baler::evaluate::tokens(&line);
@@ -108,11 +114,27 @@ fn score(a: ScoreArgs) -> baler::Result<ExitCode> {
         predicted += s.predicted;
         oov += s.oov;
         words += tokens.len();
-        if !a.summary {
+        if a.summary {
+        } else if a.json {
+            sentences.push(serde_json::json!({"log10_prob": s.log10_prob, "oov": s.oov}));
+        } else {
             writeln!(out, "{:.4}\t{}", s.log10_prob, s.oov).map_err(werr)?;
         }
     }
     let perplexity = 10f64.powf(-total / predicted.max(1) as f64);
+    if a.json {
+        let mut report = serde_json::json!({
+            "sentences": n, "words": words, "oov": oov, "log10_prob": total,
+            "perplexity": perplexity,
+        });
+        if !a.summary {
+            report["per_sentence"] = serde_json::Value::Array(sentences);
+        }
+        let text = serde_json::to_string_pretty(&report).expect("figures serialize");
+        writeln!(out, "{text}").map_err(werr)?;
+        out.commit()?;
+        return Ok(ExitCode::SUCCESS);
+    }
     writeln!(
         out,
         "# sentences={n} words={words} oov={oov} log10_prob={total:.4} perplexity={perplexity:.3}"

@@ -29,9 +29,8 @@ pub struct Args {
     /// Write the phrases not in the table to FILE, one per line, in the order asked.
     #[arg(long, value_name = "FILE")]
     misses: Option<PathBuf>,
-    /// No count of misses on stderr.
-    #[arg(short, long)]
-    quiet: bool,
+    #[command(flatten)]
+    quiet: crate::cli::flags::Quiet,
 }
 
 /// `phrase` as stored: tokens separated by single spaces.
@@ -118,7 +117,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     if let Some((out, _)) = misses {
         out.commit()?;
     }
-    if missed > 0 && !args.quiet {
+    if missed > 0 && !args.quiet.quiet {
         eprintln!("baler: {missed} of {asked} phrases not in the table");
     }
     Ok(if asked > 0 && missed == asked {

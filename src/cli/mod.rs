@@ -111,3 +111,132 @@ pub(crate) fn print(text: &str) -> baler::Result<()> {
 pub(crate) fn size_arg(text: &str) -> Result<u64, String> {
     baler::files::parse_size(text).map_err(|e| e.to_string())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::Cli;
+    use clap::CommandFactory;
+
+    /// Placeholders allowed in help texts: the kind of value, never the flag's own name
+    /// (see `cli/flags.rs`).
+    const PLACEHOLDERS: &[&str] = &[
+        "FILE",
+        "DIR",
+        "TABLE",
+        "MODEL",
+        "N",
+        "NUMBER",
+        "SIZE",
+        "BITS",
+        "KIND",
+        "THRESHOLD",
+        "RANKING",
+        "COLUMN",
+        "COLUMN=VALUE",
+        "FEATURE=VALUE",
+        "NAME=V1,V2,...",
+        "NAME,...",
+    ];
+    /// Commands that run in parallel: `--threads`, 0 meaning every core.
+    const THREADED: &[&str] = &[
+        "prune",
+        "pack",
+        "compare",
+        "sweep",
+        "translate",
+        "tune",
+        "build",
+    ];
+    /// Commands that spill to disk: `--temp-dir`, and `--memory` unless each stage has its own.
+    const SPILLING: &[&str] = &["prune", "pack", "sweep", "build"];
+    const OWN_BUDGETS: &[&str] = &["build"];
+    /// Commands whose flags are declared by the extraction work (issue 11) and not yet taken
+    /// from `cli/flags.rs`: their `--threads` refuses 0 and their placeholders name roles.
+    const NOT_YET_SHARED: &[&str] = &[
+        "extract",
+        "extract shard",
+        "extract merge",
+        "extract tally",
+        "extract attach",
+    ];
+
+    /// Every leaf command with its full name (`lm build`).
+    fn leaves(cmd: &clap::Command, prefix: &str, out: &mut Vec<(String, clap::Command)>) {
+        for sub in cmd.get_subcommands().filter(|s| s.get_name() != "help") {
+            let name = format!("{prefix}{}", sub.get_name()).trim().to_string();
+            if sub.get_subcommands().all(|s| s.get_name() == "help") {
+                out.push((name.clone(), sub.clone()));
+            }
+            // a command with subcommands may run itself too (extract)
+            if sub.has_subcommands() {
+                if sub
+                    .get_arguments()
+                    .any(|a| !a.is_global_set() && a.get_id() != "help" && a.get_id() != "version")
+                {
+                    out.push((name.clone(), sub.clone()));
+                }
+                leaves(sub, &format!("{name} "), out);
+            }
+        }
+    }
+
+    #[test]
+    fn every_command_shares_the_concepts() {
+        let mut cli = Cli::command();
+        cli.build();
+        let mut commands = Vec::new();
+        leaves(&cli, "", &mut commands);
+        assert!(commands.len() >= 17, "{} commands found", commands.len());
+        let mut problems = Vec::new();
+        for (name, cmd) in &commands {
+            let arg = |id: &str| cmd.get_arguments().find(|a| a.get_id() == id);
+            if NOT_YET_SHARED.contains(&name.as_str()) {
+                continue;
+            }
+            match arg("quiet") {
+                Some(q) if q.get_short() == Some('q') => {}
+                _ => problems.push(format!("{name}: no -q/--quiet")),
+            }
+            for a in cmd.get_arguments().filter(|a| !a.is_positional()) {
+                let takes_value = a.get_action().takes_values();
+                if !takes_value {
+                    continue;
+                }
+                for v in a.get_value_names().unwrap_or_default() {
+                    if !PLACEHOLDERS.contains(&v.as_str()) {
+                        problems.push(format!("{name}: --{} <{v}>", a.get_id()));
+                    }
+                }
+                if a.get_value_names().is_none() {
+                    problems.push(format!("{name}: --{} has no placeholder", a.get_id()));
+                }
+            }
+            let threads = arg("threads");
+            if THREADED.contains(&name.as_str()) && threads.is_none() {
+                problems.push(format!("{name}: no --threads"));
+            }
+            if let Some(t) = threads {
+                let help = t.get_help().map(|h| h.to_string()).unwrap_or_default();
+                if help != baler::settings::THREADS.help {
+                    problems.push(format!("{name}: --threads not from the registry"));
+                }
+            }
+            for id in ["memory", "temp_dir"] {
+                let budgets = id == "memory" && OWN_BUDGETS.contains(&name.as_str());
+                if SPILLING.contains(&name.as_str()) && !budgets && arg(id).is_none() {
+                    problems.push(format!("{name}: no --{id}"));
+                }
+            }
+            if let Some(m) = arg("memory") {
+                let help = m.get_help().map(|h| h.to_string()).unwrap_or_default();
+                let default: Vec<_> = m.get_default_values().iter().collect();
+                if help != baler::settings::MEMORY.help
+                    || default != [baler::settings::MEMORY.default.expect("a default")]
+                {
+                    problems.push(format!("{name}: --memory not from the registry"));
+                }
+            }
+        }
+        assert!(problems.is_empty(), "{}", problems.join("\n"));
+    }
+}

@@ -13,7 +13,7 @@ pub struct Args {
     /// a packed .bale to repack (its settings are kept unless given here).
     input: PathBuf,
     /// The packed table to write.
-    #[arg(short, long)]
+    #[arg(short, long, value_name = "TABLE")]
     output: PathBuf,
     #[command(flatten)]
     pack: PackFlags,

@@ -3,9 +3,10 @@
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use super::flags::{PackFlags, ResourceFlags};
+use super::flags::{arg, PackFlags, ResourceFlags};
 use baler::pipeline::{self, Packing};
-use baler::prune::{CountSource, Filter, PruneOptions, Ranking, Threshold};
+use baler::prune::{CountSource, Filter, PruneOptions, Ranking};
+use baler::settings::filters;
 use baler::Error;
 use clap::{ArgMatches, FromArgMatches};
 
@@ -18,12 +19,8 @@ struct Flags {
     /// Table to prune: interchange TSV (any order; .gz/.zst; - for stdin) or a packed .bale.
     input: PathBuf,
     /// Where to write: TSV (.gz/.zst compressed; - for stdout) or, by extension, a packed .bale.
-    #[arg(short, long)]
+    #[arg(short, long, value_name = "TABLE")]
     output: PathBuf,
-    /// Keep pairs whose one-sided Fisher test gives -ln p >= this: NUMBER, alpha+epsilon or
-    /// alpha-epsilon (repeatable).
-    #[arg(long, value_name = "THRESHOLD", action = clap::ArgAction::Append)]
-    significance: Vec<String>,
     /// Add the computed -ln p as the score column `neg_ln_p`.
     #[arg(long)]
     annotate: bool,
@@ -38,28 +35,6 @@ struct Flags {
     /// count_target over all phrase-pair occurrences) when sentence-level counts are absent.
     #[arg(long, conflicts_with = "source")]
     phrase_counts: bool,
-    /// Keep the K best options of each source phrase (repeatable; see --by).
-    #[arg(long, value_name = "K", action = clap::ArgAction::Append)]
-    top_k: Vec<usize>,
-    /// Ranking for --top-k: COLUMN, or COLUMN=WEIGHT,COLUMN=WEIGHT,... for the log-linear
-    /// sum of weight * ln(value). Ties go to the target first in byte order. Give one for all
-    /// --top-k, or one per --top-k in the same order. Default p_t_given_s.
-    #[arg(long, value_name = "RANKING", action = clap::ArgAction::Append)]
-    by: Vec<String>,
-    /// Keep pairs whose score or count column is at least VALUE (COLUMN=VALUE; repeatable).
-    #[arg(long, value_name = "COLUMN=VALUE", action = clap::ArgAction::Append)]
-    min: Vec<String>,
-    /// Keep pairs whose score or count column is at most VALUE (COLUMN=VALUE; repeatable).
-    #[arg(long, value_name = "COLUMN=VALUE", action = clap::ArgAction::Append)]
-    max: Vec<String>,
-    /// Keep pairs whose relative-entropy score p(t|s)(ln p(t|s) - ln p'(t|s)) is at least
-    /// this, p' being the best monotone composition of shorter pairs of the table.
-    #[arg(long, value_name = "THRESHOLD", action = clap::ArgAction::Append, allow_negative_numbers = true)]
-    relative_entropy: Vec<f64>,
-    /// Keep only source phrases that occur in this tokenized text (e.g. a test set's source
-    /// side), as before decoding it.
-    #[arg(long, value_name = "FILE", action = clap::ArgAction::Append)]
-    keep_test_phrases: Vec<PathBuf>,
     /// After the filters, divide this score column by its sum over the options kept for each
     /// source, so that it sums to 1 again (repeatable). Scores are unchanged otherwise.
     #[arg(long, value_name = "COLUMN", action = clap::ArgAction::Append)]
@@ -77,52 +52,36 @@ struct Flags {
 /// Flags plus the filters in command-line order.
 pub struct Args {
     flags: Box<Flags>,
-    /// (position on the command line, flag id, value)
+    /// (position on the command line, filter key, value)
     order: Vec<(usize, &'static str, String)>,
+    /// `--by`, in order.
+    by: Vec<String>,
 }
-
-const FILTER_FLAGS: [&str; 6] = [
-    "significance",
-    "top_k",
-    "min",
-    "max",
-    "relative_entropy",
-    "keep_test_phrases",
-];
 
 impl FromArgMatches for Args {
     fn from_arg_matches(matches: &ArgMatches) -> Result<Self, clap::Error> {
         let flags = Box::new(Flags::from_arg_matches(matches)?);
         let mut order = Vec::new();
-        for id in FILTER_FLAGS {
-            let Some(indices) = matches.indices_of(id) else {
+        for setting in &filters::FILTERS {
+            let Some(indices) = matches.indices_of(setting.key) else {
                 continue;
             };
-            let values: Vec<String> = match id {
-                "top_k" => flags.top_k.iter().map(|v| v.to_string()).collect(),
-                "keep_test_phrases" => flags
-                    .keep_test_phrases
-                    .iter()
-                    .map(|v| v.to_string_lossy().into_owned())
-                    .collect(),
-                "relative_entropy" => flags
-                    .relative_entropy
-                    .iter()
-                    .map(|v| v.to_string())
-                    .collect(),
-                _ => matches
-                    .get_many::<String>(id)
-                    .into_iter()
-                    .flatten()
-                    .cloned()
-                    .collect(),
-            };
+            let values = matches
+                .get_many::<String>(setting.key)
+                .into_iter()
+                .flatten();
             for (index, value) in indices.zip(values) {
-                order.push((index, id, value));
+                order.push((index, setting.key, value.clone()));
             }
         }
         order.sort_by_key(|e| e.0);
-        Ok(Args { flags, order })
+        let by = matches
+            .get_many::<String>(filters::BY.key)
+            .into_iter()
+            .flatten()
+            .cloned()
+            .collect();
+        Ok(Args { flags, order, by })
     }
 
     fn update_from_arg_matches(&mut self, matches: &ArgMatches) -> Result<(), clap::Error> {
@@ -131,19 +90,45 @@ impl FromArgMatches for Args {
     }
 }
 
+/// Checks a filter's value while clap parses it.
+fn check_filter(key: &str, text: &str) -> baler::Result<()> {
+    filters::filter(key, text).map(|_| ())
+}
+
+fn check_ranking(_: &str, text: &str) -> baler::Result<()> {
+    Ranking::parse(text).map(|_| ())
+}
+
 impl clap::Args for Args {
     fn augment_args(cmd: clap::Command) -> clap::Command {
-        Flags::augment_args(cmd)
+        let mut cmd = Flags::augment_args(cmd);
+        // the filters and --by, from the settings registry
+        for setting in &filters::FILTERS {
+            cmd = cmd.arg(
+                arg(setting, check_filter)
+                    .action(clap::ArgAction::Append)
+                    .allow_negative_numbers(true)
+                    .help_heading("Filters (run in the order given)"),
+            );
+        }
+        cmd.arg(
+            arg(&filters::BY, check_ranking)
+                .action(clap::ArgAction::Append)
+                .help_heading("Filters (run in the order given)"),
+        )
     }
     fn augment_args_for_update(cmd: clap::Command) -> clap::Command {
-        Flags::augment_args_for_update(cmd)
+        Self::augment_args(cmd)
     }
 }
 
 fn filters(args: &Args) -> baler::Result<Vec<Filter>> {
-    let top_k_count = args.order.iter().filter(|e| e.1 == "top_k").count();
+    let top_k_count = args
+        .order
+        .iter()
+        .filter(|e| e.1 == filters::TOP_K.key)
+        .count();
     let rankings: Vec<Ranking> = args
-        .flags
         .by
         .iter()
         .map(|b| Ranking::parse(b))
@@ -160,31 +145,19 @@ fn filters(args: &Args) -> baler::Result<Vec<Filter>> {
     if !rankings.is_empty() && top_k_count == 0 {
         return Err(Error::invalid("--by", "only applies to --top-k"));
     }
-    let mut filters = Vec::new();
+    let mut list = Vec::new();
     let mut k_seen = 0;
-    for (_, id, value) in &args.order {
-        filters.push(match *id {
-            "significance" => Filter::Significance(Threshold::parse(value)?),
-            "top_k" => {
-                let by = match rankings.len() {
-                    0 => Ranking::default(),
-                    1 => rankings[0].clone(),
-                    _ => rankings[k_seen].clone(),
-                };
-                k_seen += 1;
-                Filter::TopK {
-                    k: value.parse().expect("parsed by clap"),
-                    by,
-                }
+    for (_, key, value) in &args.order {
+        let mut filter = filters::filter(key, value)?;
+        if let Filter::TopK { by, .. } = &mut filter {
+            if let Some(r) = rankings.get(if rankings.len() == 1 { 0 } else { k_seen }) {
+                *by = r.clone();
             }
-            "min" => Filter::bound("--min", value, true)?,
-            "max" => Filter::bound("--max", value, false)?,
-            "relative_entropy" => Filter::RelativeEntropy(value.parse().expect("parsed by clap")),
-            "keep_test_phrases" => Filter::KeepTestPhrases(PathBuf::from(value)),
-            _ => unreachable!("filter flags are listed in FILTER_FLAGS"),
-        });
+            k_seen += 1;
+        }
+        list.push(filter);
     }
-    Ok(filters)
+    Ok(list)
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {

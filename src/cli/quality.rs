@@ -10,10 +10,10 @@ use baler::quality::{self, QualityReport};
 pub struct QualityArgs {
     /// Target-language model: decode the test set with each (packed) table and add BLEU and
     /// chrF against --reference.
-    #[arg(long, requires = "reference")]
+    #[arg(long, value_name = "MODEL", requires = "reference")]
     pub lm: Option<PathBuf>,
     /// Decoder weights file (`baler tune`); defaults otherwise.
-    #[arg(long, requires = "lm")]
+    #[arg(long, value_name = "FILE", requires = "lm")]
     pub weights: Option<PathBuf>,
 }
 
@@ -24,6 +24,7 @@ pub fn for_tables(
     reference: Option<&Path>,
     base: &Path,
     others: &[PathBuf],
+    threads: usize,
 ) -> baler::Result<Option<QualityReport>> {
     match (&args.lm, reference) {
         (Some(_), Some(r)) => quality::measure_tables(
@@ -33,6 +34,7 @@ pub fn for_tables(
             r,
             base,
             others,
+            threads,
         )
         .map(Some),
         _ => Ok(None),

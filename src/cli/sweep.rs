@@ -17,10 +17,10 @@ pub struct Args {
     /// The unpruned table: TSV (any order) or packed .bale.
     input: PathBuf,
     /// Held-out source text: one tokenized sentence per line.
-    #[arg(long, value_name = "SRC")]
+    #[arg(long, value_name = "FILE")]
     test: PathBuf,
     /// Its reference translation: adds reachability to the figures and the plot.
-    #[arg(long, value_name = "TGT")]
+    #[arg(long, value_name = "FILE")]
     reference: Option<PathBuf>,
     /// An option and its values: NAME=V1,V2,... (repeatable: a grid).
     #[arg(long, value_name = "NAME=V1,V2,...", required = true, action = clap::ArgAction::Append)]
@@ -31,12 +31,9 @@ pub struct Args {
     /// Longest test span looked up (default: the input's longest source phrase).
     #[arg(long, value_name = "N")]
     max_length: Option<usize>,
-    /// Memory budget for sorting and packing.
-    #[arg(long, value_name = "SIZE", default_value = baler::settings::MEMORY.default, value_parser = super::size_arg)]
-    memory: u64,
-    /// No progress bar and no summary.
-    #[arg(short, long)]
-    quiet: bool,
+    /// Print the report as JSON on standard output instead of the readable table.
+    #[arg(long)]
+    json: bool,
     #[command(flatten)]
     quality: crate::cli::quality::QualityArgs,
     #[command(flatten)]
@@ -46,6 +43,8 @@ pub struct Args {
     /// --reference) otherwise].
     #[arg(long, value_delimiter = ',', value_name = "FIGURES", value_parser = plot_figure)]
     plot: Vec<Figure>,
+    #[command(flatten)]
+    resources: crate::cli::flags::ResourceFlags,
 }
 
 fn plot_figure(text: &str) -> Result<Figure, String> {
@@ -73,8 +72,8 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         compare: CompareOptions {
             max_length: args.max_length,
         },
-        memory: args.memory,
-        progress: !args.quiet,
+        resources: args.resources.resources.clone(),
+        progress: !args.resources.quiet,
         column: Some(args.column.column.clone()),
         quality: match (&args.quality.lm, &args.reference) {
             (Some(lm), Some(reference)) => Some(SweepQuality {
@@ -87,8 +86,13 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         },
         plot: args.plot.clone(),
     };
+    let quiet = args.resources.quiet;
     let report = baler::pipeline::sweep(&args.input, &options)?;
-    if !args.quiet {
+    if args.json {
+        let mut text = serde_json::to_string_pretty(&report).expect("figures serialize");
+        text.push('\n');
+        super::print(&text)?;
+    } else if !quiet {
         super::print(&summary(&report))?;
     }
     Ok(ExitCode::SUCCESS)

@@ -9,17 +9,17 @@ use baler::synth::{ShapeStats, SynthOptions};
 #[derive(clap::Args)]
 #[command(
     after_help = "The table is sorted by source then target and identical for identical flags. \
-                  OUT ending in .zst or .gz is compressed; - writes to standard output."
+                  FILE ending in .zst or .gz is compressed; - writes to standard output."
 )]
 pub struct Args {
     /// Number of phrase pairs to write (e.g. 1000000, 1e6, 10M; K/M/G are powers of 1000).
-    #[arg(long, value_parser = count_arg)]
+    #[arg(long, value_name = "N", value_parser = count_arg)]
     pairs: u64,
     /// Output table (interchange TSV).
-    #[arg(short, long, value_name = "OUT")]
+    #[arg(short, long, value_name = "FILE")]
     output: PathBuf,
     /// Seed of every random choice.
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, value_name = "N", default_value_t = 1)]
     seed: u64,
     /// Add the count columns (count, count_source, count_target, cooc, df_source, df_target)
     /// and the sentence_pairs metadata line.
@@ -35,19 +35,21 @@ pub struct Args {
     #[arg(long, default_value_t = SynthOptions::default().target_words, value_name = "N")]
     target_words: u32,
     /// Longest phrase in tokens.
-    #[arg(long, default_value_t = SynthOptions::default().max_length, value_name = "TOKENS")]
+    #[arg(long, default_value_t = SynthOptions::default().max_length, value_name = "N")]
     max_length: usize,
     /// Exponent of the Zipf law of word frequencies.
-    #[arg(long, default_value_t = SynthOptions::default().zipf_exponent, value_name = "S")]
+    #[arg(long, default_value_t = SynthOptions::default().zipf_exponent, value_name = "NUMBER")]
     zipf_exponent: f64,
     /// Sentence pairs of the imagined corpus behind the counts [default: pairs / 25, at least
     /// 1000].
     #[arg(long, value_parser = count_arg, value_name = "N")]
     sentence_pairs: Option<u64>,
     /// Print shape statistics (sources, distinct targets, options per source, lengths) to
-    /// standard error at the end.
+    /// standard error at the end (even with -q, which only silences progress and summary).
     #[arg(long)]
     stats: bool,
+    #[command(flatten)]
+    quiet: crate::cli::flags::Quiet,
 }
 
 /// Parses a count such as `1000000`, `1e6`, `2.5M` or `10k` (powers of 1000).
@@ -106,13 +108,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             }
         }
     }
-    let progress = indicatif::ProgressBar::new(options.pairs);
-    progress.set_style(
-        indicatif::ProgressStyle::with_template(
-            "{spinner} {human_pos}/{human_len} pairs {wide_bar} {per_sec} eta {eta}",
-        )
-        .expect("valid template"),
-    );
+    let progress = args.quiet.bar(Some(options.pairs), "pairs");
     let mut stats = args.stats.then(ShapeStats::new);
     let started = Instant::now();
     let mut n = 0u64;
@@ -127,11 +123,13 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     })?;
     progress.finish_and_clear();
     let seconds = started.elapsed().as_secs_f64();
-    eprintln!(
-        "baler synth: wrote {written} pairs to {} in {seconds:.2} s ({:.0} pairs/s)",
-        args.output.display(),
-        written as f64 / seconds.max(1e-9)
-    );
+    if !args.quiet.quiet {
+        eprintln!(
+            "baler synth: wrote {written} pairs to {} in {seconds:.2} s ({:.0} pairs/s)",
+            args.output.display(),
+            written as f64 / seconds.max(1e-9)
+        );
+    }
     if let Some(stats) = stats {
         eprint!("{stats}");
     }

@@ -17,34 +17,31 @@ pub struct Args {
     /// The packed phrase table.
     table: PathBuf,
     /// The target-language model (`baler lm build`).
-    #[arg(long)]
+    #[arg(long, value_name = "MODEL")]
     lm: PathBuf,
     /// Weights file (`feature = weight` lines, as `baler tune` writes); missing names keep
     /// their defaults.
-    #[arg(long)]
+    #[arg(long, value_name = "FILE")]
     weights: Option<PathBuf>,
     /// Set one weight, e.g. `--weight lm=0.6` (repeatable; applied after `--weights`).
     #[arg(long = "weight", value_name = "FEATURE=VALUE")]
     weight: Vec<String>,
     /// Hypotheses kept per stack.
-    #[arg(long, default_value_t = 100)]
+    #[arg(long, value_name = "N", default_value_t = 100)]
     beam: usize,
     /// Options kept per source span.
-    #[arg(long, default_value_t = 20)]
+    #[arg(long, value_name = "N", default_value_t = 20)]
     options_per_span: usize,
     /// Largest jump between consecutive phrases' source positions.
-    #[arg(long, default_value_t = 6)]
+    #[arg(long, value_name = "N", default_value_t = 6)]
     distortion_limit: usize,
     /// Longest source phrase looked up.
-    #[arg(long, default_value_t = 7)]
+    #[arg(long, value_name = "N", default_value_t = 7)]
     max_phrase: usize,
     /// Drop hypotheses whose score plus future cost is this far below their stack's best
     /// (natural-log units; `inf` keeps all up to the beam size).
-    #[arg(long, default_value_t = 8.0)]
+    #[arg(long, value_name = "NUMBER", default_value_t = 8.0)]
     threshold: f64,
-    /// Sentences decoded in parallel (0: every core); output stays in input order.
-    #[arg(long, default_value_t = 0)]
-    threads: usize,
     /// Print each sentence's segmentation and feature contributions to standard error.
     #[arg(long)]
     explain: bool,
@@ -52,14 +49,14 @@ pub struct Args {
     #[arg(long)]
     greedy: bool,
     /// Source text (default: standard input).
-    #[arg(long, default_value = "-")]
+    #[arg(long, value_name = "FILE", default_value = "-")]
     input: PathBuf,
     /// Where to write the hypotheses (default: standard output).
-    #[arg(short, long, default_value = "-")]
+    #[arg(short, long, value_name = "FILE", default_value = "-")]
     output: PathBuf,
-    /// Print no summary.
-    #[arg(short, long)]
-    quiet: bool,
+    /// `--threads` (sentences decoded in parallel; output stays in input order) and `-q`.
+    #[command(flatten)]
+    resources: crate::cli::flags::ThreadFlags,
 }
 
 /// Default weights, then a weights file, then `--weight` overrides.
@@ -104,8 +101,13 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         threshold: args.threshold,
     };
     let decoder = Decoder::new(&table, &lm, weights.clone(), settings);
-    let lines = crate::cli::evaluate::read_lines(&args.input)?;
-    let out_of = baler::decode::translate_all(&decoder, &lines, args.threads, args.greedy)?;
+    let lines = baler::files::read_lines(&args.input)?;
+    let out_of = baler::decode::translate_all(
+        &decoder,
+        &lines,
+        args.resources.resources.threads,
+        args.greedy,
+    )?;
     let mut out = Output::create(&args.output)?;
     let werr = |e| Error::io(&args.output, "writing", e);
     for (i, t) in out_of.iter().enumerate() {
@@ -115,7 +117,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         }
     }
     out.commit()?;
-    if !args.quiet {
+    if !args.resources.quiet {
         eprintln!(
             "baler translate: {} sentences in {:.2} s",
             lines.len(),

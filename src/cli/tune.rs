@@ -16,32 +16,29 @@ pub struct Args {
     /// The packed phrase table.
     table: PathBuf,
     /// The target-language model.
-    #[arg(long)]
+    #[arg(long, value_name = "MODEL")]
     lm: PathBuf,
     /// Development source text, one tokenized sentence a line.
-    #[arg(long)]
+    #[arg(long, value_name = "FILE")]
     source: PathBuf,
     /// Its reference translations.
-    #[arg(long)]
+    #[arg(long, value_name = "FILE")]
     reference: PathBuf,
     /// Start from these weights instead of the defaults.
-    #[arg(long)]
+    #[arg(long, value_name = "FILE")]
     weights: Option<PathBuf>,
     /// The weights file to write.
-    #[arg(short, long)]
+    #[arg(short, long, value_name = "FILE")]
     output: PathBuf,
     /// Rounds over all weights (the step halves after each).
-    #[arg(long, default_value_t = 2)]
+    #[arg(long, value_name = "N", default_value_t = 2)]
     rounds: usize,
     /// Hypotheses kept per stack while tuning.
-    #[arg(long, default_value_t = 30)]
+    #[arg(long, value_name = "N", default_value_t = 30)]
     beam: usize,
-    /// Decoding threads (0: every core).
-    #[arg(long, default_value_t = 0)]
-    threads: usize,
-    /// Print no progress.
-    #[arg(short, long)]
-    quiet: bool,
+    /// `--threads` (decoding threads) and `-q`.
+    #[command(flatten)]
+    resources: crate::cli::flags::ThreadFlags,
 }
 
 pub fn run(args: Args) -> baler::Result<ExitCode> {
@@ -49,29 +46,17 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
     let lm = LanguageModel::open(&args.lm)?;
     let start =
         crate::cli::translate::resolve_weights(table.schema(), args.weights.as_deref(), &[])?;
-    let source = crate::cli::evaluate::read_lines(&args.source)?;
-    let reference = crate::cli::evaluate::read_lines(&args.reference)?;
-    if source.len() != reference.len() {
-        return Err(Error::input(
-            args.reference.to_string_lossy(),
-            0,
-            format!(
-                "{} lines, but the source has {}",
-                reference.len(),
-                source.len()
-            ),
-        ));
-    }
+    let (source, reference) = baler::files::read_parallel(&args.source, &args.reference)?;
     let settings = TuneSettings {
         rounds: args.rounds,
-        threads: args.threads,
+        threads: args.resources.resources.threads,
         search: DecodeSettings {
             beam: args.beam,
             ..DecodeSettings::default()
         },
         ..TuneSettings::default()
     };
-    let quiet = args.quiet;
+    let quiet = args.resources.quiet;
     let tuned = coordinate_ascent(&table, &lm, start, &source, &reference, &settings, |t| {
         if !quiet {
             if t.feature.is_empty() {

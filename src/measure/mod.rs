@@ -5,7 +5,7 @@
 //! Tables are interchange TSV (loaded into memory) or packed (looked up in place); both are
 //! seen through [`MeasuredTable`]. [`compare`] measures a base table and others side by side
 //! ([`Comparison`]), which renders as a readable table ([`Comparison::to_text`]), CSV
-//! ([`Comparison::to_csv`]) or JSON (serde). [`sweep`] prunes and packs at every setting of a
+//! ([`Comparison::to_csv`]) or JSON (serde). [`crate::pipeline::sweep`] prunes and packs at every setting of a
 //! grid and measures each against the unpruned input.
 //!
 //! # Definitions
@@ -159,20 +159,11 @@ pub struct Comparison {
 /// Reads a tokenized text: one sentence per line, tokens separated by white space
 /// (`.gz`/`.zst` read transparently, `-` for standard input).
 pub fn read_text(path: &Path) -> Result<Vec<Vec<String>>> {
-    let mut input = files::open_input(path)?;
-    let mut line = String::new();
-    let mut sentences = Vec::new();
-    loop {
-        line.clear();
-        let n = input
-            .read_line(&mut line)
-            .map_err(|e| Error::io(path, "reading", e))?;
-        if n == 0 {
-            break;
-        }
-        sentences.push(line.split_whitespace().map(String::from).collect());
-    }
-    Ok(sentences)
+    Ok(files::read_lines(path)?.iter().map(|l| tokens(l)).collect())
+}
+
+fn tokens(line: &str) -> Vec<String> {
+    line.split_whitespace().map(String::from).collect()
 }
 
 /// Tokenized sentences, one per line of a text.
@@ -183,26 +174,13 @@ pub fn read_test_set(
     test: &Path,
     reference: Option<&Path>,
 ) -> Result<(Sentences, Option<Sentences>)> {
-    let source = read_text(test)?;
-    let reference = match reference {
+    let (source, reference) = match reference {
+        None => (read_text(test)?, None),
         Some(path) => {
-            let r = read_text(path)?;
-            if r.len() != source.len() {
-                let line = r.len().min(source.len()) as u64 + 1;
-                return Err(Error::input(
-                    path.display().to_string(),
-                    line,
-                    format!(
-                        "the reference has {} lines but the test text {} has {}",
-                        r.len(),
-                        test.display(),
-                        source.len()
-                    ),
-                ));
-            }
-            Some(r)
+            let (s, r) = files::read_parallel(test, path)?;
+            let tokenized = |lines: Vec<String>| lines.iter().map(|l| tokens(l)).collect();
+            (tokenized(s), Some(tokenized(r)))
         }
-        None => None,
     };
     Ok((source, reference))
 }

@@ -7,7 +7,7 @@ use serde::Serialize;
 use super::{CompareOptions, TableReport};
 use crate::error::{Error, Result};
 use crate::pack::PackOptions;
-use crate::prune::{Filter, PruneOptions, PruneStats, Ranking, Threshold};
+use crate::prune::{PruneOptions, PruneStats};
 use crate::settings::{self, PackSettings};
 
 /// One `--vary NAME=V1,V2,...`: a prune or pack option and the values it takes.
@@ -20,23 +20,13 @@ pub struct Variation {
 }
 
 impl Variation {
-    /// The prune filters that can vary; the packing settings of the registry
-    /// ([`crate::settings::PACK`]) can too ([`Variation::names`]).
-    pub const FILTERS: [&'static str; 6] = [
-        "significance",
-        "top-k",
-        "min",
-        "max",
-        "relative-entropy",
-        "keep-test-phrases",
-    ];
-
-    /// Every name that can vary: the prune filters, then the packing settings.
+    /// Every name that can vary: the prune filters ([`settings::filters::FILTERS`]), then the
+    /// packing settings ([`settings::PACK`]), spelled as their flags.
     pub fn names() -> Vec<String> {
-        Variation::FILTERS
+        settings::filters::FILTERS
             .iter()
-            .map(|s| s.to_string())
-            .chain(settings::PACK.iter().map(|p| p.flag()))
+            .chain(settings::PACK.iter())
+            .map(|s| s.flag())
             .collect()
     }
 
@@ -98,46 +88,24 @@ pub struct Setting {
 impl Setting {
     /// Applies `name=value` (a name of [`Variation::names`]).
     fn apply(&mut self, name: &str, value: &str) -> Result<()> {
-        let flag = format!("--vary {name}");
-        let number = |v: &str| -> Result<f64> {
-            v.parse::<f64>()
-                .ok()
-                .filter(|x| x.is_finite())
-                .ok_or_else(|| Error::invalid(&flag, format!("{v:?} is not a number")))
-        };
-        let whole = |v: &str| -> Result<u64> {
-            v.parse::<u64>()
-                .map_err(|_| Error::invalid(&flag, format!("{v:?} is not a whole number")))
-        };
-        match name {
-            "significance" => self
-                .prune
-                .filters
-                .push(Filter::Significance(Threshold::parse(value)?)),
-            "top-k" => self.prune.filters.push(Filter::TopK {
-                k: whole(value)? as usize,
-                by: Ranking::default(),
-            }),
-            "min" => self.prune.filters.push(Filter::bound(&flag, value, true)?),
-            "max" => self.prune.filters.push(Filter::bound(&flag, value, false)?),
-            "relative-entropy" => self
-                .prune
-                .filters
-                .push(Filter::RelativeEntropy(number(value)?)),
-            "keep-test-phrases" => self
-                .prune
-                .filters
-                .push(Filter::KeepTestPhrases(PathBuf::from(value))),
-            pack if settings::find(pack).is_some_and(|p| settings::PACK.contains(p)) => {
-                self.pack_settings.set(pack, value)?;
-                self.pack_settings.apply(&mut self.pack);
+        // errors name the variation as it was given
+        let named = |e: Error| match e {
+            Error::InvalidArgument { reason, .. } => {
+                Error::invalid(format!("--vary {name}"), reason)
             }
-            _ => {
-                return Err(Error::invalid(
-                    "--vary",
-                    format!("{name:?} is not an option that can vary"),
-                ))
-            }
+            other => other,
+        };
+        if settings::filters::find(name).is_some() {
+            let filter = settings::filters::filter(name, value).map_err(named)?;
+            self.prune.filters.push(filter);
+        } else if settings::find(name).is_some_and(|p| settings::PACK.contains(p)) {
+            self.pack_settings.set(name, value).map_err(named)?;
+            self.pack_settings.apply(&mut self.pack);
+        } else {
+            return Err(Error::invalid(
+                "--vary",
+                format!("{name:?} is not an option that can vary"),
+            ));
         }
         if !self.label.is_empty() {
             self.label.push(' ');
@@ -190,8 +158,8 @@ pub struct SweepOptions {
     pub out_dir: PathBuf,
     /// How the figures are measured.
     pub compare: CompareOptions,
-    /// Memory budget for packing (0: the packer's default).
-    pub memory: u64,
+    /// Memory, threads and temporary directory of the sorting, pruning and packing.
+    pub resources: crate::settings::Resources,
     /// Show a progress bar across settings on stderr (when it is a terminal).
     pub progress: bool,
     /// The score column that retained mass and divergence read (`None`:

@@ -154,6 +154,7 @@ pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
                 reference,
                 &base,
                 std::slice::from_ref(&recipe.table),
+                recipe.pack_resources.threads,
             )?;
             report.tables[0].0 = if recipe.extracted.is_some() {
                 extracted.display().to_string()

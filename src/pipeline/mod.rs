@@ -12,7 +12,7 @@
 //! * [`pack_file`]: a TSV or an already packed table into a packed table (a repack keeps the
 //!   input's settings unless others are given).
 //!
-//! The prune → pack channel exists once ([`into_pack`]): when the packer stops, its own error
+//! The prune → pack channel exists once (`into_pack`): when the packer stops, its own error
 //! is reported, not the pruner's failure to hand it more pairs.
 
 mod build;

@@ -24,7 +24,7 @@ pub(super) type Records<'a> = Box<dyn Iterator<Item = Result<(PhrasePair, u64)>>
 ///   streamed in one pass, in memory independent of its size (unless a relative-entropy
 ///   filter runs, which holds the pairs reaching it). Otherwise the pass stops at the first
 ///   source out of order, discards its partial output, and starts again through
-///   [`ExternalSorter`] within [`PruneOptions::memory`]; options of a source keep their input
+///   the one external sorter (`crate::sort`) within [`PruneOptions::memory`]; options of a source keep their input
 ///   order. An output that cannot be taken back (standard output, a pipe) is never restarted:
 ///   the input's order is checked first.
 /// * `output` is TSV (optionally compressed, `-` for stdout) or, by its `.bale` extension, a

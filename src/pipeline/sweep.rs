@@ -37,10 +37,10 @@ pub fn sweep(input: &Path, options: &SweepOptions) -> Result<SweepReport> {
         .map_err(|e| Error::io(&options.out_dir, "creating", e))?;
     let packed_base = options.out_dir.join("base.bale");
     let input = if options.quality.is_some() && !is_packed(input) {
-        let mut packing = Packing::default();
-        if options.memory != 0 {
-            packing.resources.memory = options.memory;
-        }
+        let packing = Packing {
+            resources: options.resources.clone(),
+            ..Packing::default()
+        };
         pack_file(input, &packed_base, &packing)?;
         packed_base.as_path()
     } else {
@@ -55,10 +55,15 @@ pub fn sweep(input: &Path, options: &SweepOptions) -> Result<SweepReport> {
         sorted_dir = TempDir::new(Some(&options.out_dir), ".baler-sweep-")?;
         sorted_copy = sorted_dir.path().join("sorted.tsv.zst");
         let copy = PruneOptions {
-            memory: options.memory,
+            memory: options.resources.memory,
+            temp_dir: options.resources.temp_dir.clone(),
             ..Default::default()
         };
-        prune_file(input, &sorted_copy, &copy, &Packing::default())?;
+        let packing = Packing {
+            resources: options.resources.clone(),
+            ..Packing::default()
+        };
+        prune_file(input, &sorted_copy, &copy, &packing)?;
         &sorted_copy
     };
     let bar = if options.progress {
@@ -81,7 +86,8 @@ pub fn sweep(input: &Path, options: &SweepOptions) -> Result<SweepReport> {
         bar.set_message(setting.label.clone());
         let path = options.out_dir.join(format!("setting-{:02}.bale", i + 1));
         let mut prune = setting.prune.clone();
-        prune.memory = options.memory;
+        prune.memory = options.resources.memory;
+        prune.temp_dir = options.resources.temp_dir.clone();
         let (stats, _) = prune_and_pack(source, &path, &prune, &setting.packing(options))?;
         let table = MeasuredTable::open(&path, column)?;
         let figures = baseline.measure(&table)?;
@@ -113,6 +119,7 @@ pub fn sweep(input: &Path, options: &SweepOptions) -> Result<SweepReport> {
             &q.reference,
             input,
             &paths,
+            options.resources.threads,
         )?;
         let tables = std::iter::once(&mut report.base)
             .chain(report.settings.iter_mut().map(|s| &mut s.figures));
@@ -155,16 +162,11 @@ fn check_plot(options: &SweepOptions) -> Result<()> {
 impl Setting {
     /// How this setting's table is packed within the sweep's resources.
     fn packing(&self, options: &SweepOptions) -> Packing {
-        let mut packing = Packing {
-            settings: crate::settings::PackSettings::default(),
-            resources: crate::settings::Resources::default(),
+        Packing {
+            settings: self.pack_settings.clone(),
+            resources: options.resources.clone(),
             progress: false,
             provenance: vec![("sweep_setting".into(), self.label.clone())],
-        };
-        if options.memory != 0 {
-            packing.resources.memory = options.memory;
         }
-        packing.settings = self.pack_settings.clone();
-        packing
     }
 }

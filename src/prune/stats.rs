@@ -65,7 +65,7 @@ pub struct Histogram {
     pub min: f64,
     /// Largest value (0 when empty).
     pub max: f64,
-    /// Mean value (0 when empty; set by [`Histogram::finish`]).
+    /// Mean value (0 when empty; set by `Histogram::finish`).
     pub mean: f64,
     /// Pairs with `cooc = df_source = df_target = 1`.
     pub one_one_one: u64,

@@ -16,14 +16,15 @@
 //! unaligned_edges = true
 //! discount = "none"             # or "good-turing", "kneser-ney"
 //! memory = "2G"
-//! # threads = 2                 # default: every core
+//! # threads = 2                 # default (and 0): every core
 //!
 //! [[filter]]                    # filters run in the order written; one kind per [[filter]]
 //! significance = "alpha+epsilon"
 //! [[filter]]
 //! top_k = 20
 //! by = "p_t_given_s"            # optional ranking, as `baler prune --by`
-//! # other kinds: min = "COLUMN=VALUE", max = "COLUMN=VALUE", relative_entropy = 0.5
+//! # other kinds: min = "COLUMN=VALUE", max = "COLUMN=VALUE", relative_entropy = 0.5,
+//! # keep_test_phrases = "test.en" (the filters of `baler prune`, from the settings registry)
 //!
 //! [prune]                       # optional
 //! renormalize = []              # score columns to renormalize after the filters
@@ -80,7 +81,7 @@ use crate::extract::score::Discount;
 use crate::extract::shard::ShardOptions;
 use crate::extract::ExtractOptions;
 use crate::files;
-use crate::prune::{Filter, PruneOptions, Ranking, Threshold};
+use crate::prune::{Filter, PruneOptions, Ranking};
 use crate::settings::{self, PackSettings, Resources};
 
 /// A held-out set to report on.
@@ -179,6 +180,8 @@ struct ExtractSpec {
     threads: Option<Spanned<usize>>,
 }
 
+/// One `[[filter]]`: exactly one key of the registry's filters
+/// ([`settings::filters::FILTERS`]), plus `by` for `top_k`.
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
 struct FilterSpec {
@@ -188,6 +191,33 @@ struct FilterSpec {
     min: Option<String>,
     max: Option<String>,
     relative_entropy: Option<toml::Value>,
+    keep_test_phrases: Option<String>,
+}
+
+impl FilterSpec {
+    /// The filters given, each as its registry key and the text a flag would have been given.
+    fn given(&self) -> Vec<(&'static str, String)> {
+        use settings::filters::{
+            KEEP_TEST_PHRASES, MAX, MIN, RELATIVE_ENTROPY, SIGNIFICANCE, TOP_K,
+        };
+        [
+            (
+                SIGNIFICANCE.key,
+                self.significance.as_ref().map(as_flag_text),
+            ),
+            (TOP_K.key, self.top_k.map(|k| k.to_string())),
+            (MIN.key, self.min.clone()),
+            (MAX.key, self.max.clone()),
+            (
+                RELATIVE_ENTROPY.key,
+                self.relative_entropy.as_ref().map(as_flag_text),
+            ),
+            (KEEP_TEST_PHRASES.key, self.keep_test_phrases.clone()),
+        ]
+        .into_iter()
+        .filter_map(|(key, text)| text.map(|t| (key, t)))
+        .collect()
+    }
 }
 
 #[derive(Deserialize, Default)]
@@ -265,6 +295,10 @@ impl Recipe {
     /// Parses recipe `text` (from `file`, named in errors); relative input paths resolve
     /// against `input_dir`, relative outputs against `output_dir` (left relative when `None`).
     ///
+    /// The steps: TOML into typed tables, then one step per table (corpus and extraction,
+    /// filters, packing, held-out set, quality), each checking its values with the same code
+    /// as the command line.
+    ///
     /// # Errors
     /// TOML syntax, unknown keys, wrong types and bad values, each as
     /// [`Error::input`] with the recipe's file and line.
@@ -274,53 +308,137 @@ impl Recipe {
         input_dir: &Path,
         output_dir: Option<&Path>,
     ) -> Result<Recipe> {
-        let name = file.display().to_string();
+        let cx = Context {
+            name: file.display().to_string(),
+            text,
+            input_dir,
+            output_dir,
+        };
         let spec: Spec = toml::from_str(text).map_err(|e| {
             let line = e.span().map_or(0, |s| line_of(text, s.start));
-            Error::input(&name, line, format!("bad recipe: {}", e.message()))
+            Error::input(&cx.name, line, format!("bad recipe: {}", e.message()))
         })?;
-        let at = |span: std::ops::Range<usize>, e: Error| -> Error {
-            let reason = match e {
-                Error::InvalidArgument { option, reason } => {
-                    format!("{}: {reason}", option.trim_start_matches("--"))
-                }
-                other => other.to_string(),
-            };
-            Error::input(&name, line_of(text, span.start), reason)
+        let extract = cx.extraction(&spec.corpus, &spec.extract)?;
+        let prune = cx.pruning(&spec.filters, &spec.prune)?;
+        let packing = cx.packing(spec.pack.as_ref())?;
+        let held_out = cx.held_out(spec.held_out.as_ref())?;
+        let quality = cx.quality(spec.quality.as_ref(), held_out.as_ref())?;
+        let (c, o) = (&spec.corpus, &spec.output);
+        Ok(Recipe {
+            file: file.to_path_buf(),
+            text: text.to_string(),
+            corpus: CorpusPaths {
+                source: cx.input(&c.source),
+                target: cx.input(&c.target),
+                alignment: Some(cx.input(&c.alignment)),
+            },
+            extract,
+            prune,
+            pack: packing.settings,
+            pack_resources: packing.resources,
+            table: cx.output(&o.table),
+            extracted: o.extracted.as_deref().map(|p| cx.output(p)),
+            stats: o.stats.as_deref().map(|p| cx.output(p)),
+            report: o.report.as_deref().map(|p| cx.output(p)),
+            held_out,
+            quality,
+        })
+    }
+}
+
+impl Recipe {
+    /// Sets `threads` or `temp_dir` (snake or kebab case) for every stage, over the recipe's
+    /// own values, as `baler build --threads` does. Memory budgets stay per stage.
+    ///
+    /// # Examples
+    /// ```
+    /// use baler::recipe::Recipe;
+    /// let text = "[corpus]\nsource = \"a\"\ntarget = \"b\"\nalignment = \"c\"\n\
+    ///             [extract]\nthreads = 2\n[output]\ntable = \"t.bale\"\n";
+    /// let mut recipe = Recipe::parse(text, "r.toml".as_ref(), ".".as_ref(), None)?;
+    /// recipe.set_resource("threads", "1")?;
+    /// assert_eq!((recipe.extract.shard.threads, recipe.pack_resources.threads), (1, 1));
+    /// assert!(recipe.set_resource("memory", "1G").is_err());
+    /// # Ok::<(), baler::Error>(())
+    /// ```
+    pub fn set_resource(&mut self, key: &str, text: &str) -> Result<()> {
+        let mut given = self.pack_resources.clone();
+        given.set(key, text)?;
+        match key.trim_start_matches("--").replace('-', "_").as_str() {
+            "threads" => {
+                self.extract.shard.threads = given.thread_count();
+                self.pack_resources.threads = given.threads;
+            }
+            "temp_dir" => {
+                self.extract.shard.temp_dir = given.temp_dir.clone();
+                self.pack_resources.temp_dir = given.temp_dir;
+            }
+            other => {
+                return Err(Error::invalid(
+                    other,
+                    "is set per stage in the recipe, not for the whole build",
+                ))
+            }
+        }
+        Ok(())
+    }
+}
+
+/// The `[pack]` table: packing settings and the resources of packing.
+struct Packing {
+    settings: PackSettings,
+    resources: Resources,
+}
+
+/// Where a recipe's errors point and its relative paths resolve.
+struct Context<'a> {
+    /// The recipe's file, as errors name it.
+    name: String,
+    text: &'a str,
+    input_dir: &'a Path,
+    output_dir: Option<&'a Path>,
+}
+
+impl Context<'_> {
+    /// `e` as an error at the line of `span`, naming the key instead of a flag.
+    fn at(&self, span: std::ops::Range<usize>, e: Error) -> Error {
+        let reason = match e {
+            Error::InvalidArgument { option, reason } => {
+                format!("{}: {reason}", option.trim_start_matches("--"))
+            }
+            other => other.to_string(),
         };
-        let input = |p: &str| input_dir.join(p);
-        let output = |p: &str| match output_dir {
+        Error::input(&self.name, line_of(self.text, span.start), reason)
+    }
+
+    fn input(&self, p: &str) -> PathBuf {
+        self.input_dir.join(p)
+    }
+
+    fn output(&self, p: &str) -> PathBuf {
+        match self.output_dir {
             Some(d) => d.join(p),
             None => PathBuf::from(p),
-        };
-        let size = |s: &Spanned<String>, key: &str| {
-            files::parse_size(s.get_ref())
-                .map_err(|e| at(s.span(), Error::invalid(key, e.to_string())))
-        };
+        }
+    }
 
-        // corpus and extraction
-        let c = &spec.corpus;
-        let mut corpus_options = CorpusOptions {
+    /// `[corpus]` and `[extract]`.
+    fn extraction(&self, c: &CorpusSpec, x: &ExtractSpec) -> Result<ExtractOptions> {
+        let mut corpus = CorpusOptions {
             links_target_first: c.links_target_first,
             ..Default::default()
         };
         if let Some(n) = &c.max_sentence_length {
-            corpus_options.max_sentence_length = *n.get_ref();
+            corpus.max_sentence_length = *n.get_ref();
         }
-        corpus_options
+        corpus
             .validate()
-            .map_err(|e| at(c.max_sentence_length.as_ref().map_or(0..0, |s| s.span()), e))?;
-        let x = &spec.extract;
+            .map_err(|e| self.at(c.max_sentence_length.as_ref().map_or(0..0, |s| s.span()), e))?;
         let mut limits = PhraseLimits::default();
         if let Some(n) = &x.max_length {
             if !(1..=255).contains(n.get_ref()) {
-                return Err(at(
-                    n.span(),
-                    Error::invalid(
-                        "max_length",
-                        format!("{} is not between 1 and 255", n.get_ref()),
-                    ),
-                ));
+                let reason = format!("{} is not between 1 and 255", n.get_ref());
+                return Err(self.at(n.span(), Error::invalid("max_length", reason)));
             }
             limits.max_length = *n.get_ref();
         }
@@ -334,184 +452,195 @@ impl Recipe {
                 "good-turing" => Discount::GoodTuring,
                 "kneser-ney" => Discount::KneserNey,
                 other => {
-                    return Err(at(
-                        d.span(),
-                        Error::invalid(
-                            "discount",
-                            format!("{other:?} is not none, good-turing or kneser-ney"),
-                        ),
-                    ))
+                    let reason = format!("{other:?} is not none, good-turing or kneser-ney");
+                    return Err(self.at(d.span(), Error::invalid("discount", reason)));
                 }
             },
         };
+        // memory and threads mean what they mean everywhere (the registry: 0 threads is
+        // every core)
+        let mut resources = Resources::default();
+        if let Some(m) = &x.memory {
+            resources
+                .set(settings::MEMORY.key, m.get_ref())
+                .map_err(|e| self.at(m.span(), e))?;
+        }
+        if let Some(t) = &x.threads {
+            resources.threads = *t.get_ref();
+        }
         let mut shard = ShardOptions {
             limits,
-            corpus: corpus_options,
+            corpus,
+            threads: resources.thread_count(),
             ..Default::default()
         };
-        if let Some(m) = &x.memory {
-            shard.memory = size(m, "memory")?;
+        if x.memory.is_some() {
+            shard.memory = resources.memory;
         }
-        shard.threads = match &x.threads {
-            Some(t) if *t.get_ref() == 0 => {
-                return Err(at(
-                    t.span(),
-                    Error::invalid("threads", "must be at least 1"),
-                ))
-            }
-            Some(t) => *t.get_ref(),
-            None => std::thread::available_parallelism().map_or(1, |n| n.get()),
-        };
+        Ok(ExtractOptions { shard, discount })
+    }
 
-        // filters
-        let mut filters = Vec::new();
-        for f in &spec.filters {
-            let span = f.span();
-            let g = f.get_ref();
-            let kinds = [
-                g.significance.is_some(),
-                g.top_k.is_some(),
-                g.min.is_some(),
-                g.max.is_some(),
-                g.relative_entropy.is_some(),
-            ];
-            if kinds.iter().filter(|&&k| k).count() != 1 {
+    /// `[[filter]]` in order, and `[prune]`: each filter through the registry.
+    fn pruning(&self, specs: &[Spanned<FilterSpec>], p: &PruneSpec) -> Result<PruneOptions> {
+        let mut filters = Vec::with_capacity(specs.len());
+        for spec in specs {
+            let span = spec.span();
+            let g = spec.get_ref();
+            let given = g.given();
+            let [(key, value)] = given.as_slice() else {
+                let keys = settings::filters::FILTERS.map(|f| f.key).join(", ");
                 return Err(Error::input(
-                    &name,
-                    line_of(text, span.start),
-                    "each [[filter]] needs exactly one of significance, top_k, min, max, \
-                     relative_entropy",
+                    &self.name,
+                    line_of(self.text, span.start),
+                    format!("each [[filter]] needs exactly one of {keys}"),
                 ));
-            }
+            };
             if g.by.is_some() && g.top_k.is_none() {
                 return Err(Error::input(
-                    &name,
-                    line_of(text, span.start),
+                    &self.name,
+                    line_of(self.text, span.start),
                     "`by` only applies to a top_k filter",
                 ));
             }
-            let filter = if let Some(s) = &g.significance {
-                Threshold::parse(&as_flag_text(s)).map(Filter::Significance)
-            } else if let Some(k) = g.top_k {
-                g.by.as_deref()
-                    .map_or(Ok(Ranking::default()), Ranking::parse)
-                    .map(|by| Filter::TopK { k, by })
-            } else if let Some(m) = &g.min {
-                Filter::bound("min", m, true)
-            } else if let Some(m) = &g.max {
-                Filter::bound("max", m, false)
+            let value = if *key == settings::filters::KEEP_TEST_PHRASES.key {
+                self.input(value).display().to_string()
             } else {
-                let text = as_flag_text(g.relative_entropy.as_ref().expect("one kind"));
-                text.trim()
-                    .parse::<f64>()
-                    .ok()
-                    .filter(|v| !v.is_nan())
-                    .map(Filter::RelativeEntropy)
-                    .ok_or_else(|| {
-                        Error::invalid("relative_entropy", format!("{text:?} is not a number"))
-                    })
+                value.clone()
             };
-            filters.push(filter.map_err(|e| at(span.clone(), e))?);
+            let mut filter =
+                settings::filters::filter(key, &value).map_err(|e| self.at(span.clone(), e))?;
+            if let (Filter::TopK { by, .. }, Some(text)) = (&mut filter, &g.by) {
+                *by = Ranking::parse(text).map_err(|e| self.at(span.clone(), e))?;
+            }
+            filters.push(filter);
         }
-        let prune = PruneOptions {
+        Ok(PruneOptions {
             filters,
-            annotate: spec.prune.annotate,
-            renormalize: spec.prune.renormalize.clone(),
+            annotate: p.annotate,
+            renormalize: p.renormalize.clone(),
             ..Default::default()
-        };
+        })
+    }
 
-        // packing: every key goes through the settings registry
-        let mut pack = PackSettings::default();
-        let mut pack_resources = Resources::default();
-        let (pack_span, pack_table) = match &spec.pack {
-            Some(t) => (t.span(), t.get_ref().clone()),
-            None => (0..0, toml::Table::new()),
+    /// `[pack]`: every key goes through the settings registry (packing settings and the
+    /// resources of packing).
+    fn packing(&self, table: Option<&Spanned<toml::Table>>) -> Result<Packing> {
+        let mut packing = Packing {
+            settings: PackSettings::default(),
+            resources: Resources::default(),
         };
-        for (key, value) in &pack_table {
-            let span = key_span(text, pack_span.clone(), key);
+        let Some(table) = table else {
+            return Ok(packing);
+        };
+        for (key, value) in table.get_ref() {
+            let span = key_span(self.text, table.span(), key);
             let given = as_flag_text(value);
-            let set = if key == "memory" {
-                pack_resources.set(key, &given)
+            let set = if settings::RESOURCES.iter().any(|s| s.key == key) {
+                packing.resources.set(key, &given)
             } else if settings::find(key).is_some_and(|s| settings::PACK.contains(s)) {
-                pack.set(key, &given)
+                packing.settings.set(key, &given)
             } else {
+                let keys: Vec<_> = settings::PACK
+                    .iter()
+                    .chain(&settings::RESOURCES)
+                    .map(|s| s.key)
+                    .collect();
                 Err(Error::invalid(
                     key,
-                    format!(
-                        "unknown key in [pack]; one of: {}, memory",
-                        settings::PACK.map(|s| s.key).join(", ")
-                    ),
+                    format!("unknown key in [pack]; one of: {}", keys.join(", ")),
                 ))
             };
-            set.map_err(|e| at(span, e))?;
+            set.map_err(|e| self.at(span, e))?;
         }
+        if let Some(dir) = &packing.resources.temp_dir {
+            packing.resources.temp_dir = Some(self.output(&dir.to_string_lossy()));
+        }
+        Ok(packing)
+    }
 
-        let o = &spec.output;
-        let held_out = spec.held_out.as_ref().map(|h| HeldOut {
-            source: input(&h.source),
-            reference: h.reference.as_deref().map(input),
-            max_length: h.max_length.as_ref().map(|n| *n.get_ref()),
-        });
-        if let Some(n) = spec.held_out.as_ref().and_then(|h| h.max_length.as_ref()) {
-            if *n.get_ref() == 0 {
-                return Err(at(
-                    n.span(),
-                    Error::invalid("max_length", "must be at least 1"),
-                ));
-            }
+    /// `[held_out]`.
+    fn held_out(&self, h: Option<&HeldOutSpec>) -> Result<Option<HeldOut>> {
+        let Some(h) = h else { return Ok(None) };
+        if let Some(n) = h.max_length.as_ref().filter(|n| *n.get_ref() == 0) {
+            return Err(self.at(n.span(), Error::invalid("max_length", "must be at least 1")));
         }
-        let quality = match &spec.quality {
-            None => None,
-            Some(q) => {
-                let has_reference = held_out.as_ref().is_some_and(|h| h.reference.is_some());
-                if !has_reference {
-                    return Err(at(
-                        q.span(),
-                        Error::invalid(
-                            "quality",
-                            "needs [held_out] with a reference to score translations against",
-                        ),
-                    ));
-                }
-                let q = q.get_ref();
-                let lm = input(q.lm.get_ref());
-                // The model is opened (and its checksum verified) now, before any work.
-                crate::lm::LanguageModel::open(&lm).map_err(|e| at(q.lm.span(), e))?;
-                let weights = match &q.weights {
-                    Some(w) => {
-                        let path = input(w.get_ref());
-                        crate::decode::Weights::read(
-                            &path,
-                            crate::decode::Weights {
-                                values: Default::default(),
-                            },
-                        )
-                        .map_err(|e| at(w.span(), e))?;
-                        Some(path)
-                    }
-                    None => None,
+        Ok(Some(HeldOut {
+            source: self.input(&h.source),
+            reference: h.reference.as_deref().map(|p| self.input(p)),
+            max_length: h.max_length.as_ref().map(|n| *n.get_ref()),
+        }))
+    }
+
+    /// `[quality]`: the model and weights are opened (and checked) now, before any work.
+    fn quality(
+        &self,
+        q: Option<&Spanned<QualitySpec>>,
+        held_out: Option<&HeldOut>,
+    ) -> Result<Option<QualityRecipe>> {
+        let Some(q) = q else { return Ok(None) };
+        if held_out.is_none_or(|h| h.reference.is_none()) {
+            return Err(self.at(
+                q.span(),
+                Error::invalid(
+                    "quality",
+                    "needs [held_out] with a reference to score translations against",
+                ),
+            ));
+        }
+        let q = q.get_ref();
+        let lm = self.input(q.lm.get_ref());
+        crate::lm::LanguageModel::open(&lm).map_err(|e| self.at(q.lm.span(), e))?;
+        let weights = match &q.weights {
+            Some(w) => {
+                let path = self.input(w.get_ref());
+                let none = crate::decode::Weights {
+                    values: Default::default(),
                 };
-                Some(QualityRecipe { lm, weights })
+                crate::decode::Weights::read(&path, none).map_err(|e| self.at(w.span(), e))?;
+                Some(path)
             }
+            None => None,
         };
-        Ok(Recipe {
-            file: file.to_path_buf(),
-            text: text.to_string(),
-            corpus: CorpusPaths {
-                source: input(&c.source),
-                target: input(&c.target),
-                alignment: Some(input(&c.alignment)),
-            },
-            extract: ExtractOptions { shard, discount },
-            prune,
-            pack,
-            pack_resources,
-            table: output(&o.table),
-            extracted: o.extracted.as_deref().map(output),
-            stats: o.stats.as_deref().map(output),
-            report: o.report.as_deref().map(output),
-            held_out,
-            quality,
-        })
+        Ok(Some(QualityRecipe { lm, weights }))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Every filter of the registry can be written as a `[[filter]]`, with the value text the
+    /// command line takes.
+    #[test]
+    fn every_registry_filter_is_a_recipe_key() {
+        let values = [
+            "\"alpha+epsilon\"",
+            "5",
+            "\"count=2\"",
+            "\"p=0.5\"",
+            "-0.25",
+            "\"t.en\"",
+        ];
+        for (setting, value) in settings::filters::FILTERS.iter().zip(values) {
+            let text = format!(
+                "[corpus]\nsource = \"a\"\ntarget = \"b\"\nalignment = \"c\"\n\
+                 [[filter]]\n{} = {value}\n[output]\ntable = \"t.bale\"\n",
+                setting.key
+            );
+            let recipe = Recipe::parse(&text, "r.toml".as_ref(), "in".as_ref(), None)
+                .unwrap_or_else(|e| panic!("{}: {e}", setting.key));
+            assert_eq!(recipe.prune.filters.len(), 1, "{}", setting.key);
+        }
+    }
+
+    #[test]
+    fn threads_zero_is_every_core_as_on_the_command_line() {
+        let text = "[corpus]\nsource = \"a\"\ntarget = \"b\"\nalignment = \"c\"\n\
+                    [extract]\nthreads = 0\n[output]\ntable = \"t.bale\"\n";
+        let recipe = Recipe::parse(text, "r.toml".as_ref(), ".".as_ref(), None).unwrap();
+        assert_eq!(
+            recipe.extract.shard.threads,
+            Resources::default().thread_count()
+        );
     }
 }

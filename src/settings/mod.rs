@@ -7,6 +7,9 @@
 //! ([`PackSettings::set`]). A recipe with `block_sources = 0` is therefore refused while the recipe
 //! is read, with the same reason as `--block-sources 0` on the command line.
 //!
+//! The prune filters are registry entries too ([`filters::FILTERS`], parsed by
+//! [`filters::filter`]): `prune`'s flags, a recipe's `[[filter]]` keys and the `--vary` names.
+//!
 //! # Adding a setting
 //!
 //! 1. Add a `Setting` constant below and list it in [`PACK`] (or [`RESOURCES`]).
@@ -27,6 +30,8 @@
 //! assert_eq!((options.bits, options.targets_per_group), (Some(6), 32));
 //! # Ok::<(), baler::Error>(())
 //! ```
+
+pub mod filters;
 
 use std::path::PathBuf;
 
