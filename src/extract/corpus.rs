@@ -48,6 +48,9 @@ pub struct CorpusOptions {
     pub max_sentence_length: usize,
     /// Links are written `target-source` instead of `source-target`.
     pub links_target_first: bool,
+    /// Which lines of the files to read (all by default): one partition of a corpus split
+    /// by lines, whose errors still name the files' own line numbers.
+    pub lines: LineRange,
 }
 
 impl Default for CorpusOptions {
@@ -55,6 +58,75 @@ impl Default for CorpusOptions {
         CorpusOptions {
             max_sentence_length: 100,
             links_target_first: false,
+            lines: LineRange::default(),
+        }
+    }
+}
+
+/// A range of lines of the corpus files, 1-based and inclusive: `FIRST-LAST`, or `FIRST-` for
+/// every line from `FIRST` to the end.
+///
+/// Lines before `FIRST` are read and passed over, not checked (another partition checks
+/// them); the end of the files is checked only by a range without `LAST`, so the partitions of
+/// a corpus must end with one. A range past the end of the files holds no sentence pairs.
+///
+/// # Examples
+/// ```
+/// use baler::extract::corpus::LineRange;
+/// let r: LineRange = "1001-2000".parse().unwrap();
+/// assert_eq!((r.first, r.last), (1001, Some(2000)));
+/// assert_eq!("7-".parse::<LineRange>().unwrap().last, None);
+/// assert!("0-5".parse::<LineRange>().is_err());
+/// assert!("9-3".parse::<LineRange>().is_err());
+/// assert_eq!(LineRange::default().to_string(), "1-");
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct LineRange {
+    /// First line read (1-based).
+    pub first: u64,
+    /// Last line read, or `None` for the end of the files.
+    pub last: Option<u64>,
+}
+
+impl Default for LineRange {
+    fn default() -> Self {
+        LineRange {
+            first: 1,
+            last: None,
+        }
+    }
+}
+
+impl LineRange {
+    /// Whether this is the whole of the files.
+    pub fn is_all(&self) -> bool {
+        *self == LineRange::default()
+    }
+}
+
+impl std::str::FromStr for LineRange {
+    type Err = String;
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        let bad =
+            || format!("{text:?} is not a line range FIRST-LAST or FIRST- (1-based, inclusive)");
+        let (first, last) = text.split_once('-').ok_or_else(bad)?;
+        let first: u64 = first.parse().map_err(|_| bad())?;
+        let last: Option<u64> = match last {
+            "" => None,
+            l => Some(l.parse().map_err(|_| bad())?),
+        };
+        if first == 0 || last.is_some_and(|l| l < first) {
+            return Err(bad());
+        }
+        Ok(LineRange { first, last })
+    }
+}
+
+impl std::fmt::Display for LineRange {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self.last {
+            Some(last) => write!(f, "{}-{last}", self.first),
+            None => write!(f, "{}-", self.first),
         }
     }
 }
@@ -195,6 +267,29 @@ impl Side {
         })
     }
 
+    /// Passes over one line without decoding it; false at the end of the file.
+    fn skip(&mut self, line: u64) -> Result<bool> {
+        let failed = |e: io::Error| Error::input(&self.name, line, format!("read failed: {e}"));
+        let mut any = false;
+        loop {
+            let buf = self.input.fill_buf().map_err(failed)?;
+            if buf.is_empty() {
+                return Ok(any);
+            }
+            any = true;
+            match buf.iter().position(|&b| b == b'\n') {
+                Some(k) => {
+                    self.input.consume(k + 1);
+                    return Ok(true);
+                }
+                None => {
+                    let n = buf.len();
+                    self.input.consume(n);
+                }
+            }
+        }
+    }
+
     fn read(&mut self, line: u64) -> Result<bool> {
         let more = files::read_line(&mut *self.input, &mut self.buf, &self.name, line)?;
         if more && self.buf.contains('\0') {
@@ -295,7 +390,18 @@ impl CorpusReader {
 
     /// Reads the next kept sentence pair into `pair`; false at the end of the corpus.
     pub fn next_pair(&mut self, pair: &mut SentencePair) -> Result<bool> {
+        if self.line + 1 < self.options.lines.first && !self.skip_to_first()? {
+            return Ok(false);
+        }
         loop {
+            if self
+                .options
+                .lines
+                .last
+                .is_some_and(|last| self.line >= last)
+            {
+                return Ok(false);
+            }
             self.line += 1;
             let line = self.line;
             let s = self.source.read(line)?;
@@ -347,6 +453,35 @@ impl CorpusReader {
             self.stats.sentence_pairs += 1;
             return Ok(true);
         }
+    }
+
+    /// Passes over the lines before the range's first; false when the files end before it.
+    fn skip_to_first(&mut self) -> Result<bool> {
+        let first = self.options.lines.first;
+        if self.line == 0 {
+            // The identity of a partition includes where it starts, so that two partitions of
+            // the same text are still two shards.
+            self.source_sum.update(&first.to_le_bytes());
+            self.target_sum.update(&first.to_le_bytes());
+        }
+        while self.line + 1 < first {
+            let line = self.line + 1;
+            let mut more = true;
+            for side in [Some(&mut self.source), Some(&mut self.target)]
+                .into_iter()
+                .chain([self.alignment.as_mut()])
+                .flatten()
+            {
+                more &= side.skip(line)?;
+            }
+            if !more {
+                // Past the end of the files: the partition that reads the end checks that the
+                // files end together.
+                return Ok(false);
+            }
+            self.line = line;
+        }
+        Ok(true)
     }
 
     fn length_mismatch(&self, more: [Option<bool>; 3]) -> Option<Error> {
