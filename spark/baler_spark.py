@@ -12,7 +12,8 @@ SparkContext.addFile):
 1. split keys: a sample of the source sentences' phrases gives R-1 split keys, so that the
    R source key ranges hold about equal numbers of phrases;
 2. map: the corpus is split into P partitions of consecutive lines; each partition runs
-   `baler extract shard --lines FIRST-LAST --split-keys KEYS`, which writes one count run per
+   `baler extract shard --lines FIRST-LAST --start-bytes S,T,A --split-keys KEYS` (the byte
+   offsets of line FIRST, found by the driver in one pass over the plain files), which writes one count run per
    source key range and the partition's target totals. The runs are shuffled by range; the
    target totals go to every range;
 3. reduce: range r merges its runs from every partition with
@@ -100,9 +101,10 @@ def _run(args, what):
     """Runs baler; on failure raises with baler's own message, marked for the driver."""
     done = subprocess.run(args, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     if done.returncode != 0:
-        message = done.stderr.strip().splitlines()
-        message = message[-1] if message else f"exit status {done.returncode}"
-        message = re.sub(r"^baler: error: ", "", message)
+        lines = done.stderr.strip().splitlines()
+        errors = [line for line in lines if re.match(r"(baler: )?error: ", line)]
+        message = (errors or lines or [f"exit status {done.returncode}"])[0]
+        message = re.sub(r"^(baler: )?error: ", "", message)
         raise RuntimeError(f"{ERROR_MARK}[{what}: {message}]{ERROR_MARK}")
 
 
@@ -136,6 +138,34 @@ def count_lines(path):
     if proc is not None and proc.wait() != 0:
         raise JobError(f"{path}: could not be decompressed with zstd")
     return lines + (last != b"\n")
+
+
+def line_starts(path, firsts):
+    """Byte offsets where the 1-based lines `firsts` (increasing) begin in a plain file: one
+    pass over it. A line past the end gets the file's size."""
+    offsets, seen, base = [], 0, 0  # newlines seen before `base`
+    wanted = list(firsts)
+    with open(path, "rb") as f:
+        while len(offsets) < len(wanted):
+            block = f.read(1 << 22)
+            if not block:
+                break
+            count = block.count(b"\n")
+            pos = 0
+            while len(offsets) < len(wanted) and wanted[len(offsets)] - 1 <= seen + count:
+                need = wanted[len(offsets)] - 1 - seen  # newlines still to pass in this block
+                if need == 0:
+                    offsets.append(base + pos)
+                    continue
+                for _ in range(need):
+                    pos = block.index(b"\n", pos) + 1
+                seen += need
+                count -= need
+                offsets.append(base + pos)
+            seen += count
+            base += len(block)
+    size = os.path.getsize(path)
+    return offsets + [size] * (len(wanted) - len(offsets))
 
 
 def line_ranges(total, partitions):
@@ -241,6 +271,16 @@ def run_job(sc, args, work, metrics):
     lines = line_ranges(total, partitions)
     ranges = args.ranges or sc.defaultParallelism
     metrics.update(lines=total, partitions=len(lines), ranges_asked=ranges)
+    # Where each partition begins in each plain file, so that no task reads the lines before
+    # its own (compressed files are read from their start and the lines passed over).
+    firsts = [int(r.split("-")[0]) for r in lines]
+    starts = [[] for _ in lines]
+    files = (source, target, alignment)
+    if not any(f.endswith((".gz", ".zst")) for f in files):
+        for path in files:
+            for k, offset in enumerate(line_starts(path, firsts)):
+                starts[k].append(str(offset))
+    metrics["seconds_line_offsets"] = round(time.time() - started, 3)
 
     # 1. split keys from a sample of the source side's phrases.
     sample = []
@@ -264,7 +304,8 @@ def run_job(sc, args, work, metrics):
     # 2. map: one shard per line range, its counts split by source key range.
     def shard(index, items):
         baler = _binary()
-        for p, line_range in items:
+        for p, (line_range, offsets) in items:
+            seek = ["--start-bytes", ",".join(offsets)] if offsets else []
             with tempfile.TemporaryDirectory(prefix="baler-spark-") as tmp:
                 keys_path = os.path.join(tmp, "keys")
                 with open(keys_path, "wb") as f:
@@ -272,7 +313,7 @@ def run_job(sc, args, work, metrics):
                 prefix = os.path.join(tmp, "part")
                 _run([baler, "extract", "shard", "--source", source, "--target", target,
                       "--alignment", alignment, "--lines", line_range,
-                      "--split-keys", keys_path, "-o", prefix] + shard_flags,
+                      "--split-keys", keys_path, "-o", prefix] + seek + shard_flags,
                      f"extract shard --lines {line_range}")
                 totals = _read(prefix + ".targets.run")
                 for r in range(ranges):
@@ -283,7 +324,7 @@ def run_job(sc, args, work, metrics):
                     yield r, (p, "totals", totals)
 
     tick = time.time()
-    partition_list = list(enumerate(lines))
+    partition_list = [(p, (line_range, starts[p])) for p, line_range in enumerate(lines)]
     counts = sc.parallelize(partition_list, len(partition_list)).mapPartitionsWithIndex(shard)
 
     # 3. reduce: each range merges its runs with every partition's target totals.
@@ -314,14 +355,15 @@ def run_job(sc, args, work, metrics):
     # 4. map: sentence-level counts of each partition against each range's index.
     def tally(index, items):
         baler = _binary()
-        for p, r, line_range in items:
+        for p, r, (line_range, offsets) in items:
+            seek = ["--start-bytes", ",".join(offsets[:2])] if offsets else []
             with tempfile.TemporaryDirectory(prefix="baler-spark-") as tmp:
                 out = os.path.join(tmp, "tally")
                 _run([baler, "extract", "tally",
                       "--index", os.path.join(work, f"merged-{r:04d}.index"),
                       "--source", source, "--target", target, "--lines", line_range,
                       f"--memory={args.memory}", "--threads=1", f"--temp-dir={tmp}", "-q",
-                      "-o", out] + common, f"extract tally --lines {line_range} (range {r})")
+                      "-o", out] + seek + common, f"extract tally --lines {line_range} (range {r})")
                 blob = _read(out)
                 exchanged["tallies"].add(len(blob))
                 yield r, (p, blob)
@@ -345,7 +387,7 @@ def run_job(sc, args, work, metrics):
         yield r
 
     tick = time.time()
-    jobs = [(p, r, line_range) for r in range(ranges) for p, line_range in enumerate(lines)]
+    jobs = [(p, r, partition) for r in range(ranges) for p, partition in partition_list]
     attached = (sc.parallelize(jobs, len(jobs)).mapPartitionsWithIndex(tally)
                 .partitionBy(ranges, lambda r: r).mapPartitionsWithIndex(attach).collect())
     if sorted(attached) != list(range(ranges)):

@@ -309,3 +309,130 @@ fn a_range_merge_refuses_missing_totals_and_discounts() {
         String::from_utf8_lossy(&o.stderr)
     );
 }
+
+/// Byte offset where 1-based line `line` begins in `path`.
+fn line_start(path: &Path, line: usize) -> u64 {
+    let text = std::fs::read(path).unwrap();
+    let mut offset = 0;
+    for _ in 1..line {
+        offset += text[offset..].iter().position(|&b| b == b'\n').unwrap() + 1;
+    }
+    offset as u64
+}
+
+#[test]
+fn start_bytes_skip_the_reading_not_the_line_numbers() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = corpus(dir.path(), 120);
+    let alignment = paths.alignment.clone().unwrap();
+    let offsets = |files: &[&Path], line: usize| -> String {
+        files
+            .iter()
+            .map(|f| line_start(f, line).to_string())
+            .collect::<Vec<_>>()
+            .join(",")
+    };
+    let all = [
+        paths.source.as_path(),
+        paths.target.as_path(),
+        alignment.as_path(),
+    ];
+    // The same partition read by seeking and by passing over the lines: the same run.
+    let shard = |out: &str, extra: &[&str]| {
+        let mut args: Vec<String> = vec!["extract".into(), "shard".into(), "-q".into()];
+        args.extend(corpus_args(&paths));
+        args.extend(["--lines".into(), "41-80".into()]);
+        args.extend(extra.iter().map(|e| e.to_string()));
+        args.extend(["-o".into(), s(&dir.path().join(out)).into()]);
+        let refs: Vec<&str> = args.iter().map(String::as_str).collect();
+        command(&refs).output().unwrap()
+    };
+    assert!(shard("passed.run", &[]).status.success());
+    let seek = offsets(&all, 41);
+    let o = shard("sought.run", &["--start-bytes", &seek]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(
+        std::fs::read(dir.path().join("passed.run")).unwrap()
+            == std::fs::read(dir.path().join("sought.run")).unwrap()
+    );
+    // Tallies of the partition likewise (source and target offsets only).
+    let one = dir.path().join("one.tsv");
+    let index = dir.path().join("one.index");
+    baler_ok(&[
+        "extract",
+        "merge",
+        "-q",
+        s(&dir.path().join("passed.run")),
+        "-o",
+        s(&one),
+        "--index",
+        s(&index),
+    ]);
+    let tally = |out: &str, extra: &[&str]| {
+        let mut args = vec![
+            "extract",
+            "tally",
+            "-q",
+            "--index",
+            s(&index),
+            "--source",
+            s(&paths.source),
+            "--target",
+            s(&paths.target),
+            "--lines",
+            "41-80",
+        ];
+        args.extend_from_slice(extra);
+        let out = dir.path().join(out);
+        args.extend(["-o", s(&out)]);
+        baler_ok(&args);
+        std::fs::read(out).unwrap()
+    };
+    let seek2 = offsets(&all[..2], 41);
+    assert!(tally("passed.tally", &[]) == tally("sought.tally", &["--start-bytes", &seek2]));
+    // An offset inside a line is refused; an alignment offset is required when extracting.
+    let inside = format!("{},{},{}", line_start(&paths.source, 41) + 1, 0, 0);
+    let o = shard("bad.run", &["--start-bytes", &inside]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("does not begin a line"));
+    let o = shard("bad.run", &["--start-bytes", &seek2]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("alignment file's offset"));
+    // Errors keep the files' own line numbers when seeking.
+    let text = std::fs::read_to_string(&alignment).unwrap();
+    let broken: String = text
+        .lines()
+        .enumerate()
+        .map(|(i, l)| match i + 1 {
+            57 => "1-1 x\n".to_string(),
+            _ => format!("{l}\n"),
+        })
+        .collect();
+    let bad = write(dir.path(), "quay.bad.align", &broken);
+    let bad_seek = offsets(&[&paths.source, &paths.target, &bad], 41);
+    let o = command(&[
+        "extract",
+        "shard",
+        "-q",
+        "--source",
+        s(&paths.source),
+        "--target",
+        s(&paths.target),
+        "--alignment",
+        s(&bad),
+        "--lines",
+        "41-80",
+        "--start-bytes",
+        &bad_seek,
+        "-o",
+        s(&dir.path().join("bad2.run")),
+    ])
+    .output()
+    .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        stderr.contains(&format!("{}:57: malformed link", s(&bad))),
+        "{stderr}"
+    );
+}

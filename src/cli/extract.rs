@@ -152,6 +152,29 @@ struct LinesArg {
     /// numbers. Only a range open at the end checks that the files end together.
     #[arg(long, value_name = "FIRST-LAST", default_value = "1-")]
     lines: LineRange,
+    /// With --lines: the byte offsets where line FIRST begins in the source, target and
+    /// alignment files (plain files), so that the lines before are not read at all. Each must
+    /// follow a newline; that they belong to line FIRST is the caller's promise.
+    #[arg(long, value_name = "SRC,TGT[,ALIGN]", value_delimiter = ',')]
+    start_bytes: Vec<u64>,
+}
+
+impl LinesArg {
+    fn range(&self) -> baler::Result<LineRange> {
+        let mut range = self.lines;
+        match self.start_bytes.as_slice() {
+            [] => {}
+            [s, t] => range.start_bytes = Some([*s, *t, u64::MAX]),
+            [s, t, a] => range.start_bytes = Some([*s, *t, *a]),
+            _ => {
+                return Err(Error::invalid(
+                    "--start-bytes",
+                    "give two or three byte offsets, SRC,TGT[,ALIGN]",
+                ))
+            }
+        }
+        Ok(range)
+    }
 }
 
 #[derive(clap::Args, Clone)]
@@ -215,12 +238,12 @@ impl CorpusArgs {
             alignment: self.alignment.clone(),
         }
     }
-    fn options(&self) -> CorpusOptions {
-        CorpusOptions {
+    fn options(&self) -> baler::Result<CorpusOptions> {
+        Ok(CorpusOptions {
             max_sentence_length: self.max_sentence_length,
             links_target_first: self.links_target_first,
-            lines: self.lines.lines,
-        }
+            lines: self.lines.range()?,
+        })
     }
 }
 
@@ -256,7 +279,7 @@ fn shard_options(
 ) -> baler::Result<ShardOptions> {
     Ok(ShardOptions {
         limits: phrases.limits()?,
-        corpus: corpus.options(),
+        corpus: corpus.options()?,
         memory: resources.memory,
         threads: resources.threads()?,
         temp_dir: resources.temp_dir.clone(),
@@ -397,7 +420,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             output,
         }) => {
             let options = TallyOptions {
-                lines: lines.lines,
+                lines: lines.range()?,
                 max_sentence_length,
                 memory: resources.memory,
                 threads: resources.threads()?,

@@ -86,6 +86,12 @@ pub struct LineRange {
     pub first: u64,
     /// Last line read, or `None` for the end of the files.
     pub last: Option<u64>,
+    /// Byte offsets where line `first` begins in the source, target and alignment files (the
+    /// third is unused without an alignment), so that the lines before are not read at all.
+    /// Plain files only. Each offset must follow a newline (or be 0; `u64::MAX` for an
+    /// alignment offset not given); that the offsets belong to line `first` is the caller's
+    /// promise.
+    pub start_bytes: Option<[u64; 3]>,
 }
 
 impl Default for LineRange {
@@ -93,6 +99,7 @@ impl Default for LineRange {
         LineRange {
             first: 1,
             last: None,
+            start_bytes: None,
         }
     }
 }
@@ -100,7 +107,7 @@ impl Default for LineRange {
 impl LineRange {
     /// Whether this is the whole of the files.
     pub fn is_all(&self) -> bool {
-        *self == LineRange::default()
+        self.first == 1 && self.last.is_none()
     }
 }
 
@@ -118,7 +125,11 @@ impl std::str::FromStr for LineRange {
         if first == 0 || last.is_some_and(|l| l < first) {
             return Err(bad());
         }
-        Ok(LineRange { first, last })
+        Ok(LineRange {
+            first,
+            last,
+            start_bytes: None,
+        })
     }
 }
 
@@ -267,6 +278,48 @@ impl Side {
         })
     }
 
+    /// Opens `path`, at byte `start` when given (a plain file, `start` following a newline).
+    fn open_at(path: &Path, count: Option<Arc<AtomicU64>>, start: Option<u64>) -> Result<Side> {
+        let Some(start) = start else {
+            return Side::open(path, count);
+        };
+        let name = path.display().to_string();
+        if path.as_os_str() == files::STDIO
+            || path.extension().is_some_and(|e| e == "gz" || e == "zst")
+        {
+            return Err(Error::invalid(
+                "--start-bytes",
+                format!("{name}: byte offsets need a plain file, not a stream or a compressed one"),
+            ));
+        }
+        let mut file = File::open(path).map_err(|e| Error::io(path, "opening", e))?;
+        use std::io::{Seek, SeekFrom};
+        if start > 0 {
+            let mut before = [0u8];
+            file.seek(SeekFrom::Start(start - 1))
+                .and_then(|_| file.read_exact(&mut before))
+                .map_err(|e| Error::io(path, "seeking in", e))?;
+            if before[0] != b'\n' {
+                return Err(Error::invalid(
+                    "--start-bytes",
+                    format!("{name}: byte {start} does not begin a line"),
+                ));
+            }
+        } else {
+            file.seek(SeekFrom::Start(0))
+                .map_err(|e| Error::io(path, "seeking in", e))?;
+        }
+        let raw: Box<dyn Read + Send> = match count {
+            Some(count) => Box::new(CountingRead { inner: file, count }),
+            None => Box::new(file),
+        };
+        Ok(Side {
+            name,
+            input: Box::new(io::BufReader::with_capacity(1 << 16, raw)),
+            buf: String::new(),
+        })
+    }
+
     /// Passes over one line without decoding it; false at the end of the file.
     fn skip(&mut self, line: u64) -> Result<bool> {
         let failed = |e: io::Error| Error::input(&self.name, line, format!("read failed: {e}"));
@@ -347,11 +400,29 @@ impl CorpusReader {
         } else {
             std::fs::metadata(&paths.source).ok().map(|m| m.len())
         };
-        Ok(CorpusReader {
-            source: Side::open(&paths.source, Some(bytes.clone()))?,
-            target: Side::open(&paths.target, None)?,
+        let lines = options.lines;
+        let starts = lines.start_bytes.map(|[s, t, a]| (s, t, a));
+        if let Some((s, t, a)) = starts {
+            if paths.alignment.is_some() && a == u64::MAX {
+                return Err(Error::invalid(
+                    "--start-bytes",
+                    "give the alignment file's offset too (SRC,TGT,ALIGN)",
+                ));
+            }
+            if lines.first == 1 && (s, t) != (0, 0)
+                || paths.alignment.is_some() && lines.first == 1 && a != 0
+            {
+                return Err(Error::invalid(
+                    "--start-bytes",
+                    "line 1 begins at byte 0 of every file",
+                ));
+            }
+        }
+        let mut reader = CorpusReader {
+            source: Side::open_at(&paths.source, Some(bytes.clone()), starts.map(|o| o.0))?,
+            target: Side::open_at(&paths.target, None, starts.map(|o| o.1))?,
             alignment: match &paths.alignment {
-                Some(p) => Some(Side::open(p, None)?),
+                Some(p) => Some(Side::open_at(p, None, starts.map(|o| o.2))?),
                 None => None,
             },
             options,
@@ -361,7 +432,17 @@ impl CorpusReader {
             total_bytes,
             source_sum: crc32fast::Hasher::new(),
             target_sum: crc32fast::Hasher::new(),
-        })
+        };
+        if lines.first > 1 {
+            // The identity of a partition includes where it starts, so that two partitions of
+            // the same text are still two shards.
+            reader.source_sum.update(&lines.first.to_le_bytes());
+            reader.target_sum.update(&lines.first.to_le_bytes());
+        }
+        if starts.is_some() {
+            reader.line = lines.first - 1;
+        }
+        Ok(reader)
     }
 
     /// What has been read so far.
@@ -458,12 +539,6 @@ impl CorpusReader {
     /// Passes over the lines before the range's first; false when the files end before it.
     fn skip_to_first(&mut self) -> Result<bool> {
         let first = self.options.lines.first;
-        if self.line == 0 {
-            // The identity of a partition includes where it starts, so that two partitions of
-            // the same text are still two shards.
-            self.source_sum.update(&first.to_le_bytes());
-            self.target_sum.update(&first.to_le_bytes());
-        }
         while self.line + 1 < first {
             let line = self.line + 1;
             let mut more = true;
