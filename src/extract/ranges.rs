@@ -306,6 +306,41 @@ impl TargetTotals {
 
 /// The map step split by source key range: extracts the corpus shard at `paths` and writes
 /// its counts as [`split_runs`] does (range runs and target totals named after `prefix`).
+///
+/// # Examples
+/// ```
+/// use baler::extract::corpus::CorpusPaths;
+/// use baler::extract::ranges::{extract_shard_ranges, range_path, totals_path, SplitKeys};
+/// use baler::extract::score::{merge_and_score, MergeOptions};
+/// use baler::extract::shard::ShardOptions;
+/// let dir = tempfile::tempdir().unwrap();
+/// let write = |name: &str, text: &str| {
+///     let p = dir.path().join(name);
+///     std::fs::write(&p, text).unwrap();
+///     p
+/// };
+/// let paths = CorpusPaths {
+///     source: write("s", "el muelle\nla grúa\n"),
+///     target: write("t", "the pier\nthe crane\n"),
+///     alignment: Some(write("a", "0-0 1-1\n0-0 1-1\n")),
+/// };
+/// let keys = SplitKeys::new(vec![b"la".to_vec()]).unwrap();
+/// let prefix = dir.path().join("part");
+/// extract_shard_ranges(&paths, &ShardOptions::default(), &keys, &prefix).unwrap();
+/// // Range 1 (sources from "la" on), with the target totals of every shard (here one).
+/// let options = MergeOptions {
+///     target_totals: vec![totals_path(&prefix)],
+///     ..Default::default()
+/// };
+/// let mut table = Vec::new();
+/// let name = std::path::Path::new("range1.tsv");
+/// merge_and_score(&[range_path(&prefix, 1)], &mut table, name, &options).unwrap();
+/// let table = String::from_utf8(table).unwrap();
+/// assert!(!table.contains("el muelle"));
+/// let row = table.lines().find(|l| l.starts_with("la\tthe\t")).unwrap();
+/// // count 1, count_source 1, count_target 2: "the" is also a target of "el", in range 0.
+/// assert!(row.ends_with("\t1\t1\t2"), "{row}");
+/// ```
 pub fn extract_shard_ranges(
     paths: &super::corpus::CorpusPaths,
     options: &super::shard::ShardOptions,
