@@ -449,6 +449,7 @@ def main(argv=None):
         return 2
     finally:
         shutil.rmtree(work, ignore_errors=True)
+        sc.stop()
     if args.metrics:
         with open(args.metrics, "w") as f:
             json.dump(metrics, f, indent=1)
