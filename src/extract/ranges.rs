@@ -27,6 +27,7 @@ use super::runs::{
     put_varint, take_varint, RunInfo, RunMerger, RunReader, RunWriter, PHRASE_KIND, TARGET_KIND,
     WORD_KIND,
 };
+use super::score::{damaged, split_zero};
 use super::shard::combined_info;
 use crate::error::{Error, Result};
 use crate::files::{self, Partial};
@@ -125,17 +126,6 @@ pub fn totals_path(prefix: &Path) -> PathBuf {
     let mut name = prefix.as_os_str().to_owned();
     name.push(".targets.run");
     PathBuf::from(name)
-}
-
-fn split_zero(bytes: &[u8]) -> (&[u8], &[u8]) {
-    match bytes.iter().position(|&b| b == 0) {
-        Some(k) => (&bytes[..k], &bytes[k + 1..]),
-        None => (bytes, &[]),
-    }
-}
-
-fn damaged(what: &str) -> Error {
-    Error::Unsupported(format!("damaged count run: {what}"))
 }
 
 /// Merges `runs` (one shard's) and writes them split by `keys`: range run `r` to

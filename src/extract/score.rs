@@ -338,14 +338,16 @@ impl WordTable {
     }
 }
 
-fn split_zero(bytes: &[u8]) -> (&[u8], &[u8]) {
+/// Splits `bytes` at its first 0x00 (the separator inside run keys and re-keyed records).
+pub(crate) fn split_zero(bytes: &[u8]) -> (&[u8], &[u8]) {
     match bytes.iter().position(|&b| b == 0) {
         Some(k) => (&bytes[..k], &bytes[k + 1..]),
         None => (bytes, &[]),
     }
 }
 
-fn damaged(what: &str) -> Error {
+/// The error of a count run whose records do not parse.
+pub(crate) fn damaged(what: &str) -> Error {
     Error::Unsupported(format!("damaged count run: {what}"))
 }
 
