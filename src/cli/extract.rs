@@ -8,8 +8,9 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
-use baler::extract::corpus::{CorpusOptions, CorpusPaths, CorpusStats};
+use baler::extract::corpus::{CorpusOptions, CorpusPaths, CorpusStats, LineRange};
 use baler::extract::phrases::PhraseLimits;
+use baler::extract::ranges::SplitKeys;
 use baler::extract::score::{Discount, MergeOptions};
 use baler::extract::sentences::TallyOptions;
 use baler::extract::shard::ShardOptions;
@@ -52,9 +53,16 @@ enum Step {
         phrases: PhraseArgs,
         #[command(flatten)]
         resources: ResourceArgs,
-        /// The count run to write.
+        /// The count run to write; with --split-keys, the prefix of the files written.
         #[arg(short = 'o', long = "output", value_name = "RUN")]
         output: PathBuf,
+        /// Split the counts by source key range for reducers that merge one range each: the
+        /// file holds one split key per line (strictly increasing in byte order; R-1 keys make
+        /// R ranges). Writes RUN.0000.run … (one count run per range, each with every
+        /// word-link count) and RUN.targets.run (the shard's target totals, for
+        /// `merge --target-totals`).
+        #[arg(long, value_name = "KEYS")]
+        split_keys: Option<PathBuf>,
     },
     /// Reduce: merge count runs of any number of shards into the scored table, without the
     /// sentence-level counts.
@@ -72,6 +80,11 @@ enum Step {
         /// Also write the phrase index that `baler extract tally` reads.
         #[arg(long, value_name = "INDEX")]
         index: Option<PathBuf>,
+        /// The runs hold one source key range (`shard --split-keys`): take count_target from
+        /// these target totals (RUN.targets.run of every shard) instead of summing it over the
+        /// runs. The table written holds that range's rows. Only with --discount none.
+        #[arg(long, value_name = "TOTALS", num_args = 1..)]
+        target_totals: Vec<PathBuf>,
     },
     /// Map: count in one corpus shard the sentence pairs containing each pair's source, target
     /// and both.
@@ -88,6 +101,8 @@ enum Step {
         /// Skip sentence pairs longer than this (default: the extraction's, from the index).
         #[arg(long, value_name = "N")]
         max_sentence_length: Option<usize>,
+        #[command(flatten)]
+        lines: LinesArg,
         #[command(flatten)]
         resources: ResourceArgs,
         /// The tally to write.
@@ -126,6 +141,40 @@ struct CorpusArgs {
     /// Skip (and count) sentence pairs with more tokens than this on either side.
     #[arg(long, value_name = "N", default_value_t = 100)]
     max_sentence_length: usize,
+    #[command(flatten)]
+    lines: LinesArg,
+}
+
+#[derive(clap::Args, Clone)]
+struct LinesArg {
+    /// Read only lines FIRST to LAST of the corpus files (1-based, inclusive; FIRST- reads to
+    /// the end): one partition of a corpus split by lines. Errors name the files' own line
+    /// numbers. Only a range open at the end checks that the files end together.
+    #[arg(long, value_name = "FIRST-LAST", default_value = "1-")]
+    lines: LineRange,
+    /// With --lines: the byte offsets where line FIRST begins in the source, target and
+    /// alignment files (plain files), so that the lines before are not read at all. Each must
+    /// follow a newline; that they belong to line FIRST is the caller's promise.
+    #[arg(long, value_name = "SRC,TGT[,ALIGN]", value_delimiter = ',')]
+    start_bytes: Vec<u64>,
+}
+
+impl LinesArg {
+    fn range(&self) -> baler::Result<LineRange> {
+        let mut range = self.lines;
+        match self.start_bytes.as_slice() {
+            [] => {}
+            [s, t] => range.start_bytes = Some([*s, *t, u64::MAX]),
+            [s, t, a] => range.start_bytes = Some([*s, *t, *a]),
+            _ => {
+                return Err(Error::invalid(
+                    "--start-bytes",
+                    "give two or three byte offsets, SRC,TGT[,ALIGN]",
+                ))
+            }
+        }
+        Ok(range)
+    }
 }
 
 #[derive(clap::Args, Clone)]
@@ -189,11 +238,12 @@ impl CorpusArgs {
             alignment: self.alignment.clone(),
         }
     }
-    fn options(&self) -> CorpusOptions {
-        CorpusOptions {
+    fn options(&self) -> baler::Result<CorpusOptions> {
+        Ok(CorpusOptions {
             max_sentence_length: self.max_sentence_length,
             links_target_first: self.links_target_first,
-        }
+            lines: self.lines.range()?,
+        })
     }
 }
 
@@ -229,7 +279,7 @@ fn shard_options(
 ) -> baler::Result<ShardOptions> {
     Ok(ShardOptions {
         limits: phrases.limits()?,
-        corpus: corpus.options(),
+        corpus: corpus.options()?,
         memory: resources.memory,
         threads: resources.threads()?,
         temp_dir: resources.temp_dir.clone(),
@@ -295,9 +345,21 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             phrases,
             resources,
             output,
+            split_keys,
         }) => {
             let options = shard_options(&corpus, &phrases, &resources)?;
-            let info = baler::extract::shard::extract_shard(&corpus.paths(), &options, &output)?;
+            let info = match &split_keys {
+                None => baler::extract::shard::extract_shard(&corpus.paths(), &options, &output)?,
+                Some(keys) => {
+                    let keys = SplitKeys::read(keys)?;
+                    baler::extract::ranges::extract_shard_ranges(
+                        &corpus.paths(),
+                        &options,
+                        &keys,
+                        &output,
+                    )?
+                }
+            };
             say(
                 resources.quiet,
                 format!(
@@ -316,14 +378,17 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             resources,
             output,
             index,
+            target_totals,
         }) => {
             let options = MergeOptions {
                 discount: scoring.discount.discount(),
                 memory: resources.memory,
                 temp_dir: resources.temp_dir.clone(),
                 index,
+                target_totals,
             };
-            let inputs: Vec<&Path> = runs.iter().map(PathBuf::as_path).collect();
+            let mut inputs: Vec<&Path> = runs.iter().map(PathBuf::as_path).collect();
+            inputs.extend(options.target_totals.iter().map(PathBuf::as_path));
             check_output(&output, &inputs)?;
             if let Some(index) = &options.index {
                 check_output(index, &inputs)?;
@@ -350,10 +415,12 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             source,
             target,
             max_sentence_length,
+            lines,
             resources,
             output,
         }) => {
             let options = TallyOptions {
+                lines: lines.range()?,
                 max_sentence_length,
                 memory: resources.memory,
                 threads: resources.threads()?,

@@ -48,6 +48,9 @@ pub struct CorpusOptions {
     pub max_sentence_length: usize,
     /// Links are written `target-source` instead of `source-target`.
     pub links_target_first: bool,
+    /// Which lines of the files to read (all by default): one partition of a corpus split
+    /// by lines, whose errors still name the files' own line numbers.
+    pub lines: LineRange,
 }
 
 impl Default for CorpusOptions {
@@ -55,6 +58,86 @@ impl Default for CorpusOptions {
         CorpusOptions {
             max_sentence_length: 100,
             links_target_first: false,
+            lines: LineRange::default(),
+        }
+    }
+}
+
+/// A range of lines of the corpus files, 1-based and inclusive: `FIRST-LAST`, or `FIRST-` for
+/// every line from `FIRST` to the end.
+///
+/// Lines before `FIRST` are read and passed over, not checked (another partition checks
+/// them); the end of the files is checked only by a range without `LAST`, so the partitions of
+/// a corpus must end with one. A range past the end of the files holds no sentence pairs.
+///
+/// # Examples
+/// ```
+/// use baler::extract::corpus::LineRange;
+/// let r: LineRange = "1001-2000".parse().unwrap();
+/// assert_eq!((r.first, r.last), (1001, Some(2000)));
+/// assert_eq!("7-".parse::<LineRange>().unwrap().last, None);
+/// assert!("0-5".parse::<LineRange>().is_err());
+/// assert!("9-3".parse::<LineRange>().is_err());
+/// assert_eq!(LineRange::default().to_string(), "1-");
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct LineRange {
+    /// First line read (1-based).
+    pub first: u64,
+    /// Last line read, or `None` for the end of the files.
+    pub last: Option<u64>,
+    /// Byte offsets where line `first` begins in the source, target and alignment files (the
+    /// third is unused without an alignment), so that the lines before are not read at all.
+    /// Plain files only. Each offset must follow a newline (or be 0; `u64::MAX` for an
+    /// alignment offset not given); that the offsets belong to line `first` is the caller's
+    /// promise.
+    pub start_bytes: Option<[u64; 3]>,
+}
+
+impl Default for LineRange {
+    fn default() -> Self {
+        LineRange {
+            first: 1,
+            last: None,
+            start_bytes: None,
+        }
+    }
+}
+
+impl LineRange {
+    /// Whether this is the whole of the files.
+    pub fn is_all(&self) -> bool {
+        self.first == 1 && self.last.is_none()
+    }
+}
+
+impl std::str::FromStr for LineRange {
+    type Err = String;
+    fn from_str(text: &str) -> std::result::Result<Self, String> {
+        let bad =
+            || format!("{text:?} is not a line range FIRST-LAST or FIRST- (1-based, inclusive)");
+        let (first, last) = text.split_once('-').ok_or_else(bad)?;
+        let first: u64 = first.parse().map_err(|_| bad())?;
+        let last: Option<u64> = match last {
+            "" => None,
+            l => Some(l.parse().map_err(|_| bad())?),
+        };
+        if first == 0 || last.is_some_and(|l| l < first) {
+            return Err(bad());
+        }
+        Ok(LineRange {
+            first,
+            last,
+            start_bytes: None,
+        })
+    }
+}
+
+impl std::fmt::Display for LineRange {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self.last {
+            Some(last) => write!(f, "{}-{last}", self.first),
+            None => write!(f, "{}-", self.first),
         }
     }
 }
@@ -195,6 +278,71 @@ impl Side {
         })
     }
 
+    /// Opens `path`, at byte `start` when given (a plain file, `start` following a newline).
+    fn open_at(path: &Path, count: Option<Arc<AtomicU64>>, start: Option<u64>) -> Result<Side> {
+        let Some(start) = start else {
+            return Side::open(path, count);
+        };
+        let name = path.display().to_string();
+        if path.as_os_str() == files::STDIO
+            || path.extension().is_some_and(|e| e == "gz" || e == "zst")
+        {
+            return Err(Error::invalid(
+                "--start-bytes",
+                format!("{name}: byte offsets need a plain file, not a stream or a compressed one"),
+            ));
+        }
+        let mut file = File::open(path).map_err(|e| Error::io(path, "opening", e))?;
+        use std::io::{Seek, SeekFrom};
+        if start > 0 {
+            let mut before = [0u8];
+            file.seek(SeekFrom::Start(start - 1))
+                .and_then(|_| file.read_exact(&mut before))
+                .map_err(|e| Error::io(path, "seeking in", e))?;
+            if before[0] != b'\n' {
+                return Err(Error::invalid(
+                    "--start-bytes",
+                    format!("{name}: byte {start} does not begin a line"),
+                ));
+            }
+        } else {
+            file.seek(SeekFrom::Start(0))
+                .map_err(|e| Error::io(path, "seeking in", e))?;
+        }
+        let raw: Box<dyn Read + Send> = match count {
+            Some(count) => Box::new(CountingRead { inner: file, count }),
+            None => Box::new(file),
+        };
+        Ok(Side {
+            name,
+            input: Box::new(io::BufReader::with_capacity(1 << 16, raw)),
+            buf: String::new(),
+        })
+    }
+
+    /// Passes over one line without decoding it; false at the end of the file.
+    fn skip(&mut self, line: u64) -> Result<bool> {
+        let failed = |e: io::Error| Error::input(&self.name, line, format!("read failed: {e}"));
+        let mut any = false;
+        loop {
+            let buf = self.input.fill_buf().map_err(failed)?;
+            if buf.is_empty() {
+                return Ok(any);
+            }
+            any = true;
+            match buf.iter().position(|&b| b == b'\n') {
+                Some(k) => {
+                    self.input.consume(k + 1);
+                    return Ok(true);
+                }
+                None => {
+                    let n = buf.len();
+                    self.input.consume(n);
+                }
+            }
+        }
+    }
+
     fn read(&mut self, line: u64) -> Result<bool> {
         let more = files::read_line(&mut *self.input, &mut self.buf, &self.name, line)?;
         if more && self.buf.contains('\0') {
@@ -252,11 +400,29 @@ impl CorpusReader {
         } else {
             std::fs::metadata(&paths.source).ok().map(|m| m.len())
         };
-        Ok(CorpusReader {
-            source: Side::open(&paths.source, Some(bytes.clone()))?,
-            target: Side::open(&paths.target, None)?,
+        let lines = options.lines;
+        let starts = lines.start_bytes.map(|[s, t, a]| (s, t, a));
+        if let Some((s, t, a)) = starts {
+            if paths.alignment.is_some() && a == u64::MAX {
+                return Err(Error::invalid(
+                    "--start-bytes",
+                    "give the alignment file's offset too (SRC,TGT,ALIGN)",
+                ));
+            }
+            if lines.first == 1 && (s, t) != (0, 0)
+                || paths.alignment.is_some() && lines.first == 1 && a != 0
+            {
+                return Err(Error::invalid(
+                    "--start-bytes",
+                    "line 1 begins at byte 0 of every file",
+                ));
+            }
+        }
+        let mut reader = CorpusReader {
+            source: Side::open_at(&paths.source, Some(bytes.clone()), starts.map(|o| o.0))?,
+            target: Side::open_at(&paths.target, None, starts.map(|o| o.1))?,
             alignment: match &paths.alignment {
-                Some(p) => Some(Side::open(p, None)?),
+                Some(p) => Some(Side::open_at(p, None, starts.map(|o| o.2))?),
                 None => None,
             },
             options,
@@ -266,7 +432,17 @@ impl CorpusReader {
             total_bytes,
             source_sum: crc32fast::Hasher::new(),
             target_sum: crc32fast::Hasher::new(),
-        })
+        };
+        if lines.first > 1 {
+            // The identity of a partition includes where it starts, so that two partitions of
+            // the same text are still two shards.
+            reader.source_sum.update(&lines.first.to_le_bytes());
+            reader.target_sum.update(&lines.first.to_le_bytes());
+        }
+        if starts.is_some() {
+            reader.line = lines.first - 1;
+        }
+        Ok(reader)
     }
 
     /// What has been read so far.
@@ -295,7 +471,18 @@ impl CorpusReader {
 
     /// Reads the next kept sentence pair into `pair`; false at the end of the corpus.
     pub fn next_pair(&mut self, pair: &mut SentencePair) -> Result<bool> {
+        if self.line + 1 < self.options.lines.first && !self.skip_to_first()? {
+            return Ok(false);
+        }
         loop {
+            if self
+                .options
+                .lines
+                .last
+                .is_some_and(|last| self.line >= last)
+            {
+                return Ok(false);
+            }
             self.line += 1;
             let line = self.line;
             let s = self.source.read(line)?;
@@ -347,6 +534,29 @@ impl CorpusReader {
             self.stats.sentence_pairs += 1;
             return Ok(true);
         }
+    }
+
+    /// Passes over the lines before the range's first; false when the files end before it.
+    fn skip_to_first(&mut self) -> Result<bool> {
+        let first = self.options.lines.first;
+        while self.line + 1 < first {
+            let line = self.line + 1;
+            let mut more = true;
+            for side in [Some(&mut self.source), Some(&mut self.target)]
+                .into_iter()
+                .chain([self.alignment.as_mut()])
+                .flatten()
+            {
+                more &= side.skip(line)?;
+            }
+            if !more {
+                // Past the end of the files: the partition that reads the end checks that the
+                // files end together.
+                return Ok(false);
+            }
+            self.line = line;
+        }
+        Ok(true)
     }
 
     fn length_mismatch(&self, more: [Option<bool>; 3]) -> Option<Error> {

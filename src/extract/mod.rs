@@ -56,6 +56,7 @@ mod counter;
 mod framed;
 pub mod index;
 pub mod phrases;
+pub mod ranges;
 mod report;
 mod resident;
 mod resort;
@@ -176,6 +177,7 @@ fn extract_spilling(
             memory: options.shard.memory,
             temp_dir: Some(work.path().to_path_buf()),
             index: Some(index_path.clone()),
+            target_totals: Vec::new(),
         };
         // A temporary file: fast compression, no sync to disk.
         let werr = |e| crate::Error::io(&merged_path, "writing", e);
@@ -197,6 +199,7 @@ fn extract_spilling(
         threads: options.shard.threads,
         temp_dir: Some(work.path().to_path_buf()),
         progress: options.shard.progress,
+        lines: options.shard.corpus.lines,
     };
     let counting = CorpusPaths {
         alignment: None,

@@ -10,7 +10,8 @@
 //!
 //! Keys start with a kind byte. [`WORD_KIND`] keys are `source word 0x00 target word`, with
 //! an empty word standing for NULL (an unaligned word on the other side); [`PHRASE_KIND`] keys
-//! are `source phrase 0x00 target phrase 0x00 internal alignment`. Runs from any number of
+//! are `source phrase 0x00 target phrase 0x00 internal alignment`; [`TARGET_KIND`] keys (only in
+//! the target totals of [`super::ranges`]) are a target phrase. Runs from any number of
 //! shards merge by summing the counts of equal keys ([`RunMerger`]).
 
 use std::cmp::Ordering;
@@ -26,6 +27,9 @@ use crate::error::{Error, Result};
 pub const WORD_KIND: u8 = 1;
 /// Kind byte of a phrase-pair count key.
 pub const PHRASE_KIND: u8 = 2;
+/// Kind byte of a target-total key (`target phrase`, counted over all its sources), in the
+/// target-totals runs of [`super::ranges`].
+pub const TARGET_KIND: u8 = 3;
 
 const MAGIC: &[u8; 8] = b"BALERRUN";
 const VERSION: u32 = 1;

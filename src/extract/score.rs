@@ -31,6 +31,7 @@ use std::path::{Path, PathBuf};
 
 use super::counter::hash_bytes;
 use super::index::IndexWriter;
+use super::ranges::TargetTotals;
 use super::resort::Resorter;
 use super::runs::{put_varint, take_varint, RunInfo, RunMerger, RunReader, PHRASE_KIND, WORD_KIND};
 use super::shard::combined_info;
@@ -92,6 +93,10 @@ pub struct MergeOptions {
     /// Where to write the phrase index the sentence-level counting step reads
     /// ([`super::sentences::tally`]); `None` writes none.
     pub index: Option<PathBuf>,
+    /// The target-totals runs of every shard ([`super::ranges`]), when the runs merged hold
+    /// one source key range only: `count_target` is then taken from these totals instead of
+    /// summed over the runs. Empty: the runs hold every source.
+    pub target_totals: Vec<PathBuf>,
 }
 
 impl Default for MergeOptions {
@@ -101,6 +106,7 @@ impl Default for MergeOptions {
             memory: 2 << 30,
             temp_dir: None,
             index: None,
+            target_totals: Vec::new(),
         }
     }
 }
@@ -332,14 +338,16 @@ impl WordTable {
     }
 }
 
-fn split_zero(bytes: &[u8]) -> (&[u8], &[u8]) {
+/// Splits `bytes` at its first 0x00 (the separator inside run keys and re-keyed records).
+pub(crate) fn split_zero(bytes: &[u8]) -> (&[u8], &[u8]) {
     match bytes.iter().position(|&b| b == 0) {
         Some(k) => (&bytes[..k], &bytes[k + 1..]),
         None => (bytes, &[]),
     }
 }
 
-fn damaged(what: &str) -> Error {
+/// The error of a count run whose records do not parse.
+pub(crate) fn damaged(what: &str) -> Error {
     Error::Unsupported(format!("damaged count run: {what}"))
 }
 
@@ -386,6 +394,7 @@ pub fn merge_and_score<W: Write + Send>(
         .map(|p| RunReader::open(p))
         .collect::<Result<Vec<_>>>()?;
     let info = combined_info(runs, &readers)?;
+    let mut target_totals = open_target_totals(options, &info)?;
     let mut merger = RunMerger::new(readers)?;
     // Two sorters are alive at once in pass 2, and a sorter's buffers may hold up to twice
     // what it counts (vectors grow by doubling): a quarter of the budget each.
@@ -497,7 +506,10 @@ pub fn merge_and_score<W: Write + Send>(
                 None => targets,
             };
             targets += 1;
-            let total: u64 = tgroup.items.iter().map(|i| i.3).sum();
+            let total: u64 = match target_totals.as_mut() {
+                Some(totals) => totals.total(target)?,
+                None => tgroup.items.iter().map(|i| i.3).sum(),
+            };
             let distinct = tgroup.items.len() as u64;
             for (source, old, _) in tgroup.iter() {
                 let mut rest = old;
@@ -597,6 +609,39 @@ pub fn merge_and_score<W: Write + Send>(
         sources,
         targets,
     })
+}
+
+/// Opens the target totals of a merge of one source key range, checking that they were summed
+/// over the same shards as the runs and that the scores need nothing else from other ranges.
+fn open_target_totals(options: &MergeOptions, info: &RunInfo) -> Result<Option<TargetTotals>> {
+    if options.target_totals.is_empty() {
+        return Ok(None);
+    }
+    if options.discount != Discount::None {
+        return Err(Error::invalid(
+            "--target-totals",
+            format!(
+                "--discount {} needs counts over every source key range (n(c), distinct sources per target); a merge of one range supports --discount none only",
+                options.discount.name()
+            ),
+        ));
+    }
+    let totals = TargetTotals::open(&options.target_totals)?;
+    let mut theirs = totals.shards().to_vec();
+    let mut ours = info.shards.clone();
+    theirs.sort_unstable();
+    ours.sort_unstable();
+    if theirs != ours {
+        return Err(Error::invalid(
+            "--target-totals",
+            format!(
+                "the target totals cover {} corpus shard(s) and the runs {}, not the same ones: give the runs of one range and the target totals of every shard",
+                theirs.len(),
+                ours.len()
+            ),
+        ));
+    }
+    Ok(Some(totals))
 }
 
 /// The header of a scored table: the extraction's settings as metadata, then the alignment,

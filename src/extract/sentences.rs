@@ -29,7 +29,9 @@ use std::sync::{mpsc, Mutex};
 
 use fst::raw::{Fst, Output};
 
-use super::corpus::{CorpusOptions, CorpusPaths, CorpusReader, CorpusStats, SentencePair};
+use super::corpus::{
+    CorpusOptions, CorpusPaths, CorpusReader, CorpusStats, LineRange, SentencePair,
+};
 use super::index::IndexReader;
 use super::report::Progress;
 use super::runs::{put_varint, read_varint};
@@ -69,6 +71,8 @@ pub struct TallyOptions {
     pub temp_dir: Option<PathBuf>,
     /// Draw a progress bar on stderr (only when it is a terminal).
     pub progress: bool,
+    /// Which lines of the corpus files to count (a partition of a corpus split by lines).
+    pub lines: LineRange,
 }
 
 impl Default for TallyOptions {
@@ -79,6 +83,7 @@ impl Default for TallyOptions {
             threads: 1,
             temp_dir: None,
             progress: false,
+            lines: LineRange::default(),
         }
     }
 }
@@ -496,6 +501,7 @@ pub fn tally(
     let corpus_options = CorpusOptions {
         max_sentence_length,
         links_target_first: false,
+        lines: options.lines,
     };
     corpus_options.validate()?;
     let corpus = CorpusPaths {
