@@ -213,6 +213,6 @@ resource_group!(
 #[derive(clap::Args, Clone, Debug)]
 pub struct ColumnFlag {
     /// Score column read as p(target | source) by retained mass and divergence.
-    #[arg(long, value_name = "NAME", default_value = baler::measure::PROBABILITY_COLUMN)]
+    #[arg(long, value_name = "COLUMN", default_value = baler::measure::PROBABILITY_COLUMN)]
     pub column: String,
 }

@@ -41,7 +41,7 @@ pub struct Args {
     /// What DIR/sweep.svg plots against size, comma-separated: bleu, chrf, coverage, mass,
     /// divergence, reachability [default: bleu,chrf with --lm; coverage (and reachability with
     /// --reference) otherwise].
-    #[arg(long, value_delimiter = ',', value_name = "FIGURES", value_parser = plot_figure)]
+    #[arg(long, value_delimiter = ',', value_name = "NAME,...", value_parser = plot_figure)]
     plot: Vec<Figure>,
     #[command(flatten)]
     resources: crate::cli::flags::ResourceFlags,
