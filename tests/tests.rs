@@ -1,6 +1,7 @@
 //! Integration tests: the command line and the library's public API.
 
 mod extract;
+mod lm;
 mod measure;
 mod pack;
 mod prune;

@@ -34,9 +34,14 @@ struct BuildArgs {
     /// n-gram order.
     #[arg(long, default_value_t = 4)]
     order: usize,
-    /// Memory budget for the n-gram counts, e.g. 512M.
-    #[arg(long, default_value = "1G", value_parser = crate::cli::size_arg)]
+    /// Memory budget, e.g. 512M or 4G: past half of it the n-gram counts spill to sorted runs
+    /// on disk and merge; the vocabulary and the model's arrays (about 16 bytes per n-gram)
+    /// must fit, which is checked before they are built.
+    #[arg(long, value_name = "SIZE", default_value = "1G", value_parser = crate::cli::size_arg)]
     memory: u64,
+    #[arg(long, value_name = baler::settings::TEMP_DIR.value_name,
+          help = baler::settings::TEMP_DIR.help)]
+    temp_dir: Option<PathBuf>,
     /// Also write the model as ARPA text to this file.
     #[arg(long)]
     arpa: Option<PathBuf>,
@@ -68,6 +73,7 @@ fn build(a: BuildArgs) -> baler::Result<ExitCode> {
     let options = BuildOptions {
         order: a.order,
         memory: a.memory,
+        temp_dir: a.temp_dir.clone(),
     };
     let model = lm::build(input, &name, &options)?;
     model.write(&a.output)?;
@@ -81,11 +87,13 @@ fn build(a: BuildArgs) -> baler::Result<ExitCode> {
             .map(|d| format!("{:.3}/{:.3}/{:.3}", d[0], d[1], d[2]))
             .collect();
         eprintln!(
-            "baler lm build: {} sentences, {} tokens; entries per order {:?}; discounts {}; {:.1} s",
+            "baler lm build: {} sentences, {} tokens; entries per order {:?}; discounts {}; \
+             counts spilled {} times; {:.1} s",
             model.sentences,
             model.tokens,
             model.entries(),
             d.join(" "),
+            model.flushes,
             started.elapsed().as_secs_f64()
         );
     }
