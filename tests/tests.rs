@@ -2,6 +2,7 @@
 
 mod extract;
 mod extract_ranges;
+mod lm;
 mod measure;
 mod pack;
 mod prune;

@@ -203,10 +203,10 @@ resource_group!(
     [settings::THREADS, settings::TEMP_DIR]
 );
 resource_group!(
-    /// `--memory` and `-q/--quiet`: commands bounded in memory that neither spill nor
-    /// run in parallel.
-    MemoryFlags,
-    [settings::MEMORY]
+    /// `--memory`, `--temp-dir` and `-q/--quiet`: commands that spill past their budget but
+    /// run on one thread (`lm build`).
+    SpillFlags,
+    [settings::MEMORY, settings::TEMP_DIR]
 );
 
 /// `--column`: the score column that retained mass and divergence read (`compare`, `sweep`).

@@ -37,9 +37,11 @@ struct BuildArgs {
     /// Also write the model as ARPA text to this file.
     #[arg(long, value_name = "FILE")]
     arpa: Option<PathBuf>,
-    /// `--memory` (for the n-gram counts) and `-q`.
+    /// `--memory` (past half of it the n-gram counts spill to sorted runs on disk and merge;
+    /// the vocabulary and the model's arrays, about 16 bytes per n-gram, must fit, which is
+    /// checked before they are built), `--temp-dir` and `-q`.
     #[command(flatten)]
-    resources: crate::cli::flags::MemoryFlags,
+    resources: crate::cli::flags::SpillFlags,
 }
 
 #[derive(clap::Args)]
@@ -71,6 +73,7 @@ fn build(a: BuildArgs) -> baler::Result<ExitCode> {
     let options = BuildOptions {
         order: a.order,
         memory: a.resources.resources.memory,
+        temp_dir: a.resources.resources.temp_dir.clone(),
     };
     let model = lm::build(input, &name, &options)?;
     model.write(&a.output)?;
@@ -84,11 +87,13 @@ fn build(a: BuildArgs) -> baler::Result<ExitCode> {
             .map(|d| format!("{:.3}/{:.3}/{:.3}", d[0], d[1], d[2]))
             .collect();
         eprintln!(
-            "baler lm build: {} sentences, {} tokens; entries per order {:?}; discounts {}; {:.1} s",
+            "baler lm build: {} sentences, {} tokens; entries per order {:?}; discounts {}; \
+             counts spilled {} times; {:.1} s",
             model.sentences,
             model.tokens,
             model.entries(),
             d.join(" "),
+            model.flushes,
             started.elapsed().as_secs_f64()
         );
     }

@@ -148,7 +148,7 @@ mod tests {
         "build",
     ];
     /// Commands that spill to disk: `--temp-dir`, and `--memory` unless each stage has its own.
-    const SPILLING: &[&str] = &["prune", "pack", "sweep", "build"];
+    const SPILLING: &[&str] = &["prune", "pack", "sweep", "build", "lm build"];
     const OWN_BUDGETS: &[&str] = &["build"];
     /// Commands whose flags are declared by the extraction work (issue 11) and not yet taken
     /// from `cli/flags.rs`: their `--threads` refuses 0 and their placeholders name roles.

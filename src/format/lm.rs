@@ -18,6 +18,7 @@
 //! id. Back-off weights of entries that never occur as a context are 0.
 
 use crate::error::{Error, Result};
+use std::io::{self, Write};
 use std::path::Path;
 
 /// The first eight bytes of a language model file.
@@ -40,53 +41,91 @@ pub struct OrderArrays {
     pub children: Vec<u32>,
 }
 
-fn pad4(out: &mut Vec<u8>) {
-    while out.len() % 4 != 0 {
-        out.push(0);
+/// A writer that keeps the CRC-32 of everything written through it, in chunks of its buffer.
+struct Checked<'a> {
+    out: &'a mut dyn Write,
+    crc: crc32fast::Hasher,
+    buf: Vec<u8>,
+    written: usize,
+}
+
+impl Checked<'_> {
+    fn put(&mut self, bytes: &[u8]) -> io::Result<()> {
+        self.buf.extend_from_slice(bytes);
+        self.written += bytes.len();
+        if self.buf.len() >= 1 << 16 {
+            self.drain()?;
+        }
+        Ok(())
+    }
+
+    fn drain(&mut self) -> io::Result<()> {
+        self.crc.update(&self.buf);
+        self.out.write_all(&self.buf)?;
+        self.buf.clear();
+        Ok(())
+    }
+
+    fn pad4(&mut self) -> io::Result<()> {
+        while self.written % 4 != 0 {
+            self.put(&[0])?;
+        }
+        Ok(())
+    }
+
+    fn words(&mut self, xs: impl IntoIterator<Item = [u8; 4]>) -> io::Result<()> {
+        for x in xs {
+            self.put(&x)?;
+        }
+        Ok(())
     }
 }
 
 /// Serialises a model: vocabulary (id order) and one [`OrderArrays`] per order.
 pub fn encode(vocab: &[String], orders: &[OrderArrays]) -> Vec<u8> {
     let mut out = Vec::new();
-    out.extend_from_slice(&LM_MAGIC);
-    out.extend_from_slice(&LM_VERSION.to_le_bytes());
-    out.extend_from_slice(&(orders.len() as u32).to_le_bytes());
-    out.extend_from_slice(&(vocab.len() as u32).to_le_bytes());
-    out.extend_from_slice(&0u32.to_le_bytes());
+    write(&mut out, vocab, orders).expect("writing to memory cannot fail");
+    out
+}
+
+/// Writes the same bytes as [`encode`] to `out` as it goes, holding no copy of the model.
+pub fn write(out: &mut dyn Write, vocab: &[String], orders: &[OrderArrays]) -> io::Result<()> {
+    let mut w = Checked {
+        out,
+        crc: crc32fast::Hasher::new(),
+        buf: Vec::with_capacity(1 << 16),
+        written: 0,
+    };
+    w.put(&LM_MAGIC)?;
+    w.put(&LM_VERSION.to_le_bytes())?;
+    w.put(&(orders.len() as u32).to_le_bytes())?;
+    w.put(&(vocab.len() as u32).to_le_bytes())?;
+    w.put(&0u32.to_le_bytes())?;
     for o in orders {
-        out.extend_from_slice(&(o.probs.len() as u64).to_le_bytes());
+        w.put(&(o.probs.len() as u64).to_le_bytes())?;
     }
     let mut end = 0u32;
-    for w in vocab {
-        end += w.len() as u32;
-        out.extend_from_slice(&end.to_le_bytes());
+    for word in vocab {
+        end += word.len() as u32;
+        w.put(&end.to_le_bytes())?;
     }
-    for w in vocab {
-        out.extend_from_slice(w.as_bytes());
+    for word in vocab {
+        w.put(word.as_bytes())?;
     }
-    pad4(&mut out);
+    w.pad4()?;
     for (n, o) in orders.iter().enumerate() {
         if n > 0 {
-            o.words
-                .iter()
-                .for_each(|x| out.extend_from_slice(&x.to_le_bytes()));
+            w.words(o.words.iter().map(|x| x.to_le_bytes()))?;
         }
-        o.probs
-            .iter()
-            .for_each(|x| out.extend_from_slice(&x.to_le_bytes()));
+        w.words(o.probs.iter().map(|x| x.to_le_bytes()))?;
         if n + 1 < orders.len() {
-            o.backoffs
-                .iter()
-                .for_each(|x| out.extend_from_slice(&x.to_le_bytes()));
-            o.children
-                .iter()
-                .for_each(|x| out.extend_from_slice(&x.to_le_bytes()));
+            w.words(o.backoffs.iter().map(|x| x.to_le_bytes()))?;
+            w.words(o.children.iter().map(|x| x.to_le_bytes()))?;
         }
     }
-    let crc = crc32fast::hash(&out);
-    out.extend_from_slice(&crc.to_le_bytes());
-    out
+    w.drain()?;
+    let crc = w.crc.finalize();
+    w.out.write_all(&crc.to_le_bytes())
 }
 
 /// A 4-byte little-endian array inside the file.

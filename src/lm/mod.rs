@@ -22,9 +22,11 @@ use std::sync::Arc;
 use rustc_hash::FxHashMap;
 
 use crate::error::{Error, Result};
-use crate::files::{self, Output};
+use crate::files::Output;
 use crate::format::lm::{self as layout, LmLayout, OrderArrays};
 use crate::mmap::{self, Storage};
+
+mod estimate;
 
 /// Id of the unknown word.
 pub const UNK: u32 = 0;
@@ -46,15 +48,18 @@ pub const MAX_ORDER: usize = 6;
 pub struct BuildOptions {
     /// n-gram order (default 4).
     pub order: usize,
-    /// Memory budget in bytes for the counts; exceeding it is an error naming the budget.
+    /// Memory budget in bytes; see [`build`] for what it bounds.
     pub memory: u64,
+    /// Parent of the temporary directory for spilled counts (the system's when `None`).
+    pub temp_dir: Option<PathBuf>,
 }
 
 impl Default for BuildOptions {
     fn default() -> Self {
         BuildOptions {
             order: 4,
-            memory: 1 << 30,
+            memory: crate::settings::DEFAULT_MEMORY,
+            temp_dir: None,
         }
     }
 }
@@ -70,17 +75,13 @@ pub struct Estimated {
     pub sentences: u64,
     /// Tokens read (without sentence boundaries).
     pub tokens: u64,
+    /// How many times the counts outgrew their share of the budget and went to the sorter.
+    pub flushes: u64,
 }
 
 fn pack(gram: &[u32]) -> u128 {
     gram.iter()
         .fold(0u128, |k, &w| (k << ID_BITS) | u128::from(w))
-}
-
-fn unpack(key: u128, n: usize, out: &mut [u32]) {
-    for (i, slot) in out.iter_mut().enumerate().take(n) {
-        *slot = ((key >> (ID_BITS as usize * (n - 1 - i))) & ((1 << ID_BITS) - 1)) as u32;
-    }
 }
 
 /// Modified Kneser-Ney discounts from the count-of-counts n1..n4 (Chen & Goodman 1998,
@@ -111,7 +112,38 @@ pub fn discounts(n: [u64; 4]) -> [f64; 3] {
     d
 }
 
-/// Trains a model on tokenized text, one sentence per line.
+/// Trains a model on tokenized text, one sentence per line, within `options.memory`.
+///
+/// What the budget bounds: the n-gram counts, which wait in a hash table of at most half the
+/// budget (the vocabulary included) and otherwise in sorted runs on disk that are merged, summing
+/// equal n-grams (through [`crate::sort::ExternalSorter`], a quarter of the budget per sort); and
+/// the estimation, which works on the model's final arrays plus the probabilities and suffix
+/// links of two neighbouring orders. The vocabulary and the final arrays (about 16 bytes per
+/// n-gram below the highest order, 8 at it) must fit in memory: once the counts are merged and
+/// the number of entries is known, and before those arrays exist, a model that would not fit is
+/// an [`Error::InvalidArgument`] naming the budget and the size needed. Outside the budget:
+/// the sorter's read buffers of each run while merging, and the writing of the file.
+///
+/// The model is the same, byte for byte, whatever the budget.
+///
+/// # Examples
+/// ```
+/// # fn main() -> baler::Result<()> {
+/// use baler::lm::{build, BuildOptions};
+/// let text: String = (0..300)
+///     .map(|i| format!("berth {} opens at {} and closes at {}\n", i % 40, i % 24, i * 7 % 24))
+///     .collect();
+/// let roomy = build(text.as_bytes(), "berths.txt", &BuildOptions::default())?;
+/// let tight = BuildOptions { memory: 64 << 10, ..BuildOptions::default() };
+/// let spilled = build(text.as_bytes(), "berths.txt", &tight)?;
+/// assert!(roomy.flushes == 0 && spilled.flushes > 10);
+/// assert_eq!(roomy.to_bytes(), spilled.to_bytes());
+/// // Far too small a budget is an error that names it.
+/// let tiny = BuildOptions { memory: 1 << 10, ..BuildOptions::default() };
+/// let err = build(text.as_bytes(), "berths.txt", &tiny).unwrap_err();
+/// assert!(err.to_string().contains("budget"));
+/// # Ok(()) }
+/// ```
 pub fn build(input: impl BufRead, name: &str, options: &BuildOptions) -> Result<Estimated> {
     let order = options.order;
     if order == 0 || order > MAX_ORDER {
@@ -120,243 +152,7 @@ pub fn build(input: impl BufRead, name: &str, options: &BuildOptions) -> Result<
             format!("must be between 1 and {MAX_ORDER}, got {order}"),
         ));
     }
-    let mut ids: FxHashMap<String, u32> = FxHashMap::default();
-    let mut vocab: Vec<String> = RESERVED.iter().map(|s| s.to_string()).collect();
-    for (i, w) in RESERVED.iter().enumerate() {
-        ids.insert(w.to_string(), i as u32);
-    }
-    // raw[n-1]: counts of every n-gram of the padded sentences.
-    let mut raw: Vec<FxHashMap<u128, u32>> = vec![FxHashMap::default(); order];
-    let (mut sentences, mut tokens) = (0u64, 0u64);
-    let mut sentence: Vec<u32> = Vec::new();
-    let mut input = input;
-    let mut line = String::new();
-    let mut used: u64 = 0;
-    while files::read_line(&mut input, &mut line, name, sentences + 1)? {
-        sentences += 1;
-        sentence.clear();
-        sentence.push(BOS);
-        for t in crate::evaluate::tokens(&line) {
-            if RESERVED.contains(&t) {
-                return Err(Error::input(
-                    name,
-                    sentences,
-                    format!("the token {t:?} is reserved for the model's own use"),
-                ));
-            }
-            let id = match ids.get(t) {
-                Some(&id) => id,
-                None => {
-                    if vocab.len() >= MAX_WORDS {
-                        return Err(Error::input(
-                            name,
-                            sentences,
-                            format!("more than {MAX_WORDS} distinct words"),
-                        ));
-                    }
-                    let id = vocab.len() as u32;
-                    ids.insert(t.to_string(), id);
-                    vocab.push(t.to_string());
-                    used += t.len() as u64 + 48;
-                    id
-                }
-            };
-            sentence.push(id);
-            tokens += 1;
-        }
-        sentence.push(EOS);
-        for n in 1..=order {
-            for g in sentence.windows(n) {
-                let slot = raw[n - 1].entry(pack(g)).or_insert_with(|| {
-                    used += 40;
-                    0
-                });
-                *slot += 1;
-            }
-        }
-        if used > options.memory {
-            return Err(Error::invalid(
-                "--memory",
-                format!(
-                    "the n-gram counts of {name} outgrow the budget of {} bytes at line \
-                     {sentences}; raise it or lower --order",
-                    options.memory
-                ),
-            ));
-        }
-    }
-    estimate(vocab, raw, sentences, tokens)
-}
-
-/// Adjusted counts (continuation counts below the highest order, raw counts for the highest
-/// order and for n-grams that start with `<s>`), then interpolated probabilities.
-fn estimate(
-    vocab: Vec<String>,
-    raw: Vec<FxHashMap<u128, u32>>,
-    sentences: u64,
-    tokens: u64,
-) -> Result<Estimated> {
-    let order = raw.len();
-    let mut adjusted: Vec<FxHashMap<u128, u32>> = vec![FxHashMap::default(); order];
-    let mut buf = [0u32; MAX_ORDER];
-    adjusted[order - 1] = raw[order - 1].clone();
-    for n in (1..order).rev() {
-        // Each distinct (n+1)-gram v·g adds one left extension to its suffix g.
-        let mut adj: FxHashMap<u128, u32> = FxHashMap::default();
-        for &key in raw[n].keys() {
-            unpack(key, n + 1, &mut buf);
-            *adj.entry(pack(&buf[1..n + 1])).or_default() += 1;
-        }
-        for (&key, &c) in &raw[n - 1] {
-            unpack(key, n, &mut buf);
-            if buf[0] == BOS {
-                adj.insert(key, c);
-            }
-        }
-        adjusted[n - 1] = adj;
-    }
-    // The unigram <s> is never predicted.
-    adjusted[0].remove(&pack(&[BOS]));
-
-    // Discounts per order from the count-of-counts of the adjusted counts.
-    let mut disc = Vec::with_capacity(order);
-    for adj in &adjusted {
-        let mut n = [0u64; 4];
-        for &c in adj.values() {
-            if (1..=4).contains(&c) {
-                n[c as usize - 1] += 1;
-            }
-        }
-        disc.push(discounts(n));
-    }
-    let d_of = |n: usize, c: u32| -> f64 {
-        match c {
-            0 => 0.0,
-            1 => disc[n - 1][0],
-            2 => disc[n - 1][1],
-            _ => disc[n - 1][2],
-        }
-    };
-
-    // Sorted entries per order and, per context, the totals that make up gamma.
-    let v = vocab.len();
-    let mut sorted: Vec<Vec<(u128, u32)>> = Vec::with_capacity(order);
-    for adj in &adjusted {
-        let mut e: Vec<(u128, u32)> = adj.iter().map(|(&k, &c)| (k, c)).collect();
-        e.sort_unstable_by_key(|&(k, _)| k);
-        sorted.push(e);
-    }
-    // probs[n-1]: interpolated probability (linear) per key.
-    let mut probs: Vec<FxHashMap<u128, f64>> = vec![FxHashMap::default(); order];
-    // gamma[n-1]: back-off mass per context key of order n (context of order n+1 entries).
-    let mut gammas: Vec<FxHashMap<u128, f64>> = vec![FxHashMap::default(); order];
-    // Unigrams, interpolated with the uniform distribution over every word but <s>.
-    {
-        let total: f64 = sorted[0].iter().map(|&(_, c)| f64::from(c)).sum();
-        let mut kinds = [0u64; 3];
-        for &(_, c) in &sorted[0] {
-            kinds[(c.min(3) - 1) as usize] += 1;
-        }
-        let mass: f64 = (0..3).map(|k| disc[0][k] * kinds[k] as f64).sum();
-        let gamma = if total > 0.0 { mass / total } else { 1.0 };
-        let uniform = 1.0 / (v - 1) as f64;
-        for id in 0..v as u32 {
-            if id == BOS {
-                continue;
-            }
-            let c = adjusted[0].get(&pack(&[id])).copied().unwrap_or(0);
-            let p = if total > 0.0 {
-                (f64::from(c) - d_of(1, c)).max(0.0) / total + gamma * uniform
-            } else {
-                uniform
-            };
-            probs[0].insert(pack(&[id]), p);
-        }
-    }
-    for n in 2..=order {
-        // Group entries by context (the first n-1 words), in sorted order.
-        let entries = &sorted[n - 1];
-        let mut i = 0;
-        while i < entries.len() {
-            let ctx = entries[i].0 >> ID_BITS;
-            let mut j = i;
-            let (mut total, mut kinds) = (0.0, [0u64; 3]);
-            while j < entries.len() && entries[j].0 >> ID_BITS == ctx {
-                total += f64::from(entries[j].1);
-                kinds[(entries[j].1.min(3) - 1) as usize] += 1;
-                j += 1;
-            }
-            let mass: f64 = (0..3).map(|k| disc[n - 1][k] * kinds[k] as f64).sum();
-            let gamma = mass / total;
-            gammas[n - 2].insert(ctx, gamma);
-            for &(key, c) in &entries[i..j] {
-                unpack(key, n, &mut buf);
-                let lower = probs[n - 2]
-                    .get(&pack(&buf[1..n]))
-                    .copied()
-                    .ok_or_else(|| {
-                        Error::Unsupported(format!(
-                            "internal: the suffix of an order-{n} n-gram is missing"
-                        ))
-                    })?;
-                let p = (f64::from(c) - d_of(n, c)) / total + gamma * lower;
-                probs[n - 1].insert(key, p);
-            }
-            i = j;
-        }
-    }
-
-    // Lay out the trie: order 1 by word id, higher orders in key order (= parent order, then
-    // word), so each parent's children are contiguous.
-    let mut orders: Vec<OrderArrays> = Vec::with_capacity(order);
-    let mut index_of: Vec<FxHashMap<u128, u32>> = vec![FxHashMap::default(); order];
-    for n in 1..=order {
-        let mut arr = OrderArrays::default();
-        let keys: Vec<u128> = if n == 1 {
-            (0..v as u32).map(|id| pack(&[id])).collect()
-        } else {
-            sorted[n - 1].iter().map(|&(k, _)| k).collect()
-        };
-        for (i, &key) in keys.iter().enumerate() {
-            unpack(key, n, &mut buf);
-            arr.words.push(buf[n - 1]);
-            let p = probs[n - 1].get(&key).copied();
-            arr.probs.push(match p {
-                Some(p) => p.log10() as f32,
-                None => -99.0, // <s>: never predicted
-            });
-            if n < order {
-                let g = gammas[n - 1].get(&key).copied();
-                arr.backoffs.push(g.map_or(0.0, |g| g.log10() as f32));
-            }
-            index_of[n - 1].insert(key, i as u32);
-        }
-        orders.push(arr);
-    }
-    for n in 1..order {
-        let parents = orders[n - 1].probs.len();
-        let mut children = vec![0u32; parents + 1];
-        for &(key, _) in &sorted[n] {
-            let parent = index_of[n - 1]
-                .get(&(key >> ID_BITS))
-                .copied()
-                .ok_or_else(|| {
-                    Error::Unsupported("internal: an n-gram's context is missing".into())
-                })?;
-            children[parent as usize + 1] += 1;
-        }
-        for i in 0..parents {
-            children[i + 1] += children[i];
-        }
-        orders[n - 1].children = children;
-    }
-    Ok(Estimated {
-        vocab,
-        orders,
-        discounts: disc,
-        sentences,
-        tokens,
-    })
+    estimate::build(input, name, options)
 }
 
 impl Estimated {
@@ -365,11 +161,16 @@ impl Estimated {
         self.orders.iter().map(|o| o.probs.len()).collect()
     }
 
-    /// Writes the model file (temporary file renamed into place).
+    /// The model file's bytes.
+    pub fn to_bytes(&self) -> Vec<u8> {
+        layout::encode(&self.vocab, &self.orders)
+    }
+
+    /// Writes the model file (temporary file renamed into place), streaming it rather than
+    /// building a copy in memory.
     pub fn write(&self, path: &Path) -> Result<()> {
-        let bytes = layout::encode(&self.vocab, &self.orders);
         let mut out = Output::create(path)?;
-        out.write_all(&bytes)
+        layout::write(&mut out, &self.vocab, &self.orders)
             .map_err(|e| Error::io(path, "writing", e))?;
         out.commit()
     }
