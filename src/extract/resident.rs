@@ -222,6 +222,53 @@ impl PhraseTree {
     }
 }
 
+/// The text and word ids of every extracted phrase of one side, by rank, made once so that
+/// rows repeating a phrase do not walk the tree again.
+struct PhraseTexts {
+    text: String,
+    /// `text_ends[r]`: end of phrase `r`'s text.
+    text_ends: Vec<usize>,
+    ids: Vec<Option<u32>>,
+    /// `id_ends[r]`: end of phrase `r`'s ids.
+    id_ends: Vec<usize>,
+}
+
+impl PhraseTexts {
+    fn new(side: &Side, nodes: &[u32]) -> PhraseTexts {
+        let mut texts = PhraseTexts {
+            text: String::new(),
+            text_ends: Vec::with_capacity(nodes.len()),
+            ids: Vec::new(),
+            id_ends: Vec::with_capacity(nodes.len()),
+        };
+        let (mut scratch, mut text, mut ids) = (Vec::new(), String::new(), Vec::new());
+        for &node in nodes {
+            side.tree
+                .text(node, &side.vocabulary, &mut scratch, &mut text);
+            texts.text.push_str(&text);
+            texts.text_ends.push(texts.text.len());
+            side.tree.ids(node, &mut ids);
+            texts.ids.extend_from_slice(&ids);
+            texts.id_ends.push(texts.ids.len());
+        }
+        texts
+    }
+
+    fn text(&self, rank: usize) -> &str {
+        let start = if rank == 0 {
+            0
+        } else {
+            self.text_ends[rank - 1]
+        };
+        &self.text[start..self.text_ends[rank]]
+    }
+
+    fn ids(&self, rank: usize) -> &[Option<u32>] {
+        let start = if rank == 0 { 0 } else { self.id_ends[rank - 1] };
+        &self.ids[start..self.id_ends[rank]]
+    }
+}
+
 /// Sentences of one side as word ids.
 #[derive(Default)]
 struct Sentences {
@@ -814,6 +861,7 @@ fn write_table<W: Write>(
     );
     let scorer = Scorer::new(discount, &table.histogram, table.pairs);
     let links: Vec<Vec<(u16, u16)>> = x.alignments.iter().map(|a| parse_alignment(a)).collect();
+    let target_texts = PhraseTexts::new(&x.target, &ranks.target_nodes);
     // Blocks: (range, first source, last source, first pair index overall).
     let mut blocks = Vec::new();
     let mut pair_base = 0usize;
@@ -838,6 +886,7 @@ fn write_table<W: Write>(
         words: &words,
         scorer: &scorer,
         links: &links,
+        target_texts: &target_texts,
         header: &header,
         header_len,
     };
@@ -907,6 +956,7 @@ struct RowContext<'a> {
     words: &'a WordTable,
     scorer: &'a Scorer,
     links: &'a [Vec<(u16, u16)>],
+    target_texts: &'a PhraseTexts,
     header: &'a crate::table::Header,
     header_len: usize,
 }
@@ -925,7 +975,7 @@ impl RowContext<'_> {
             counts: vec![0; 6],
             ..Default::default()
         };
-        let (mut f, mut e) = (Vec::new(), Vec::new());
+        let mut f = Vec::new();
         let mut scratch = Vec::new();
         for k in first..end {
             let s = range.first_source as usize + k;
@@ -942,21 +992,16 @@ impl RowContext<'_> {
             for p in range.offsets[k]..range.offsets[k + 1] {
                 let pair = range.pairs[p];
                 let t = pair.target as usize;
-                let tnode = self.ranks.target_nodes[t];
-                self.x.target.tree.text(
-                    tnode,
-                    &self.x.target.vocabulary,
-                    &mut scratch,
-                    &mut row.target,
-                );
-                self.x.target.tree.ids(tnode, &mut e);
+                row.target.clear();
+                row.target.push_str(self.target_texts.text(t));
+                let e = self.target_texts.ids(t);
                 let (ct, nt) = (self.table.target_totals[t], self.table.target_distinct[t]);
                 row.alignment
                     .clone_from(&self.links[pair.alignment as usize]);
                 let (p_t_given_s, p_s_given_t) =
                     self.scorer
                         .probabilities(pair.count, cs, ct, u64::from(ns), u64::from(nt));
-                let (lex_t, lex_s) = self.words.lexical_weights_ids(&f, &e, &row.alignment);
+                let (lex_t, lex_s) = self.words.lexical_weights_ids(&f, e, &row.alignment);
                 row.scores
                     .copy_from_slice(&[p_t_given_s, p_s_given_t, lex_t, lex_s]);
                 let pair_index = first_pair + p - range.offsets[first];

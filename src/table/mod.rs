@@ -20,7 +20,7 @@
 
 mod format;
 
-pub use format::format_score;
+pub use format::{format_count, format_score};
 
 use std::fmt::Write as _;
 use std::io::{BufRead, Write};
@@ -513,7 +513,8 @@ impl<W: Write> TsvWriter<W> {
             format_score(line, s);
         }
         for &c in &pair.counts {
-            let _ = write!(line, "\t{c}");
+            line.push('\t');
+            format_count(line, c);
         }
         line.push('\n');
         self.out.write_all(line.as_bytes())
@@ -536,7 +537,10 @@ pub fn write_alignment(out: &mut String, links: &[(u16, u16)]) {
         if k > 0 {
             out.push(' ');
         }
-        let _ = write!(out, "{i}-{j}");
+        let mut digits = itoa::Buffer::new();
+        out.push_str(digits.format(*i));
+        out.push('-');
+        out.push_str(digits.format(*j));
     }
 }
 
