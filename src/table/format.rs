@@ -32,6 +32,11 @@ pub fn format_score(out: &mut String, value: f64) {
         // positionally, as Rust does.
         let mut buffer = zmij::Buffer::new();
         out.push_str(buffer.format_finite(value));
+    } else if value.fract() == 0.0 && (1.0..1e15).contains(&magnitude) {
+        if value < 0.0 {
+            out.push('-');
+        }
+        out.push_str(itoa::Buffer::new().format(magnitude as u64));
     } else if value == 0.0 || (1e-4..1e15).contains(&magnitude) {
         let _ = write!(out, "{value}");
     } else {
