@@ -2,9 +2,9 @@
 
 use std::fmt::Write;
 
-/// 2^22: a value in the positional range times this is whole when its exact decimal expansion
-/// is short enough for a tie between two shortest forms.
-const TIE_FREE: f64 = 4_194_304.0;
+/// 2^29: a value times this is whole when its exact decimal expansion may be short enough
+/// (18 significant digits or fewer) for two shortest forms to tie.
+const TIE_FREE: f64 = 536_870_912.0;
 
 /// Appends `value` in the shortest form that reads back to the same `f64`.
 ///
@@ -23,25 +23,39 @@ const TIE_FREE: f64 = 4_194_304.0;
 /// ```
 pub fn format_score(out: &mut String, value: f64) {
     let magnitude = value.abs();
-    if (1e-4..1e15).contains(&magnitude) && (magnitude * TIE_FREE).fract() != 0.0 {
-        // zmij finds the same shortest round-trip digits as Rust's formatting, several times
-        // faster, except where two candidates are equally close (then it rounds the half up,
-        // Rust to even). That needs an exact decimal expansion of at most 18 digits, so at
-        // most 21 digits after the point in this range: a multiple of 2^-21. Those go to
-        // Rust's formatting (checked against it in the tests). In this range zmij writes
-        // positionally, as Rust does.
+    let positional = value == 0.0 || (1e-4..1e15).contains(&magnitude);
+    // zmij writes the shortest round-trip digits as Rust's formatting does, several times
+    // faster, and in the same layout where its layout (positional from 1e-5 to 1e16) agrees
+    // with this one. The digits differ only where two shortest forms are equally close (zmij
+    // rounds the half up, Rust to even), which needs an exact expansion of at most 18
+    // significant digits: a multiple of 2^-29 in this range. For those, zmij's form is still
+    // Rust's when it has at most 15 significant digits, as no other form that short lies
+    // within the value's rounding interval. Everything else goes to Rust's formatting; a test
+    // checks both agree.
+    if value != 0.0 && (positional || magnitude < 1e-5) && value.is_finite() {
         let mut buffer = zmij::Buffer::new();
-        out.push_str(buffer.format_finite(value));
-    } else if value.fract() == 0.0 && (1.0..1e15).contains(&magnitude) {
-        if value < 0.0 {
-            out.push('-');
+        let text = buffer.format_finite(value);
+        if (magnitude * TIE_FREE).fract() != 0.0 || significant_digits(text) <= 15 {
+            out.push_str(text.strip_suffix(".0").unwrap_or(text));
+            return;
         }
-        out.push_str(itoa::Buffer::new().format(magnitude as u64));
-    } else if value == 0.0 || (1e-4..1e15).contains(&magnitude) {
+    }
+    if positional {
         let _ = write!(out, "{value}");
     } else {
         let _ = write!(out, "{value:e}");
     }
+}
+
+/// The digits of a formatted number from its first non-zero digit to the exponent (trailing
+/// zeros counted: an overestimate is safe where this is used).
+fn significant_digits(text: &str) -> usize {
+    let mantissa = text.split('e').next().unwrap_or(text);
+    mantissa
+        .bytes()
+        .filter(u8::is_ascii_digit)
+        .skip_while(|&b| b == b'0')
+        .count()
 }
 
 /// Appends the decimal digits of `value`.

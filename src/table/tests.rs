@@ -118,6 +118,7 @@ fn score_format_matches_rust_formatting() {
         let a = (rng.next_u32() % 1000 + 1) as f64 / (rng.next_u32() % 5000 + 1) as f64;
         let b = (rng.next_u32() % 1000 + 1) as f64 / (rng.next_u32() % 5000 + 1) as f64;
         values.push(a * b);
+        values.push(a * b * a * b * a);
         values.push(f64::from_bits(rng.next_u64()));
         // Uniform in [0, 1) with every mantissa bit random.
         values.push((rng.next_u64() >> 11) as f64 / (1u64 << 53) as f64);
