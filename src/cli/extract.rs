@@ -15,6 +15,8 @@ use baler::extract::sentences::TallyOptions;
 use baler::extract::shard::ShardOptions;
 use baler::extract::{peak_memory, ExtractOptions};
 use baler::files::{check_output, Output};
+
+use super::flags::ResourceFlags;
 use baler::Error;
 
 #[derive(clap::Args)]
@@ -36,7 +38,7 @@ struct WholeJob {
     #[command(flatten)]
     scoring: ScoringArgs,
     #[command(flatten)]
-    resources: ResourceArgs,
+    resources: ResourceFlags,
     /// Output table: .tsv, .tsv.zst, .tsv.gz, or - for standard output.
     #[arg(short = 'o', long = "output", value_name = "OUT", required = true)]
     output: Option<PathBuf>,
@@ -51,7 +53,7 @@ enum Step {
         #[command(flatten)]
         phrases: PhraseArgs,
         #[command(flatten)]
-        resources: ResourceArgs,
+        resources: ResourceFlags,
         /// The count run to write.
         #[arg(short = 'o', long = "output", value_name = "RUN")]
         output: PathBuf,
@@ -65,7 +67,7 @@ enum Step {
         #[command(flatten)]
         scoring: ScoringArgs,
         #[command(flatten)]
-        resources: ResourceArgs,
+        resources: ResourceFlags,
         /// The merged table (.tsv, .tsv.zst, .tsv.gz, or -).
         #[arg(short = 'o', long = "output", value_name = "TABLE")]
         output: PathBuf,
@@ -89,7 +91,7 @@ enum Step {
         #[arg(long, value_name = "N")]
         max_sentence_length: Option<usize>,
         #[command(flatten)]
-        resources: ResourceArgs,
+        resources: ResourceFlags,
         /// The tally to write.
         #[arg(short = 'o', long = "output", value_name = "TALLY")]
         output: PathBuf,
@@ -155,32 +157,6 @@ enum DiscountArg {
     KneserNey,
 }
 
-#[derive(clap::Args, Clone)]
-struct ResourceArgs {
-    /// Memory budget, e.g. 512M or 4G; tables beyond it spill to sorted runs on disk.
-    #[arg(long, value_name = "SIZE", value_parser = super::size_arg, default_value = "2G")]
-    memory: u64,
-    /// Worker threads (default: every core).
-    #[arg(long, value_name = "N")]
-    threads: Option<usize>,
-    /// Directory for temporary runs (default: the system temporary directory).
-    #[arg(long, value_name = "DIR")]
-    temp_dir: Option<PathBuf>,
-    /// No progress bar or summary on stderr.
-    #[arg(long, short = 'q')]
-    quiet: bool,
-}
-
-impl ResourceArgs {
-    fn threads(&self) -> baler::Result<usize> {
-        match self.threads {
-            Some(0) => Err(Error::invalid("--threads", "must be at least 1")),
-            Some(n) => Ok(n),
-            None => Ok(std::thread::available_parallelism().map_or(1, |n| n.get())),
-        }
-    }
-}
-
 impl CorpusArgs {
     fn paths(&self) -> CorpusPaths {
         CorpusPaths {
@@ -225,14 +201,14 @@ impl DiscountArg {
 fn shard_options(
     corpus: &CorpusArgs,
     phrases: &PhraseArgs,
-    resources: &ResourceArgs,
+    resources: &ResourceFlags,
 ) -> baler::Result<ShardOptions> {
     Ok(ShardOptions {
         limits: phrases.limits()?,
         corpus: corpus.options(),
-        memory: resources.memory,
-        threads: resources.threads()?,
-        temp_dir: resources.temp_dir.clone(),
+        memory: resources.resources.memory,
+        threads: resources.resources.thread_count(),
+        temp_dir: resources.resources.temp_dir.clone(),
         progress: !resources.quiet,
     })
 }
@@ -319,8 +295,8 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         }) => {
             let options = MergeOptions {
                 discount: scoring.discount.discount(),
-                memory: resources.memory,
-                temp_dir: resources.temp_dir.clone(),
+                memory: resources.resources.memory,
+                temp_dir: resources.resources.temp_dir.clone(),
                 index,
             };
             let inputs: Vec<&Path> = runs.iter().map(PathBuf::as_path).collect();
@@ -355,9 +331,9 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         }) => {
             let options = TallyOptions {
                 max_sentence_length,
-                memory: resources.memory,
-                threads: resources.threads()?,
-                temp_dir: resources.temp_dir.clone(),
+                memory: resources.resources.memory,
+                threads: resources.resources.thread_count(),
+                temp_dir: resources.resources.temp_dir.clone(),
                 progress: !resources.quiet,
             };
             let corpus = CorpusPaths {

@@ -98,7 +98,7 @@ impl Default for MergeOptions {
     fn default() -> Self {
         MergeOptions {
             discount: Discount::None,
-            memory: 2 << 30,
+            memory: crate::settings::DEFAULT_MEMORY,
             temp_dir: None,
             index: None,
         }

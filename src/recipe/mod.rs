@@ -16,7 +16,7 @@
 //! unaligned_edges = true
 //! discount = "none"             # or "good-turing", "kneser-ney"
 //! memory = "2G"
-//! # threads = 2                 # default: every core
+//! # threads = 2                 # default (0): every core
 //!
 //! [[filter]]                    # filters run in the order written; one kind per [[filter]]
 //! significance = "alpha+epsilon"
@@ -293,10 +293,6 @@ impl Recipe {
             Some(d) => d.join(p),
             None => PathBuf::from(p),
         };
-        let size = |s: &Spanned<String>, key: &str| {
-            files::parse_size(s.get_ref())
-                .map_err(|e| at(s.span(), Error::invalid(key, e.to_string())))
-        };
 
         // corpus and extraction
         let c = &spec.corpus;
@@ -349,19 +345,20 @@ impl Recipe {
             corpus: corpus_options,
             ..Default::default()
         };
+        // The one registry's rules: its default budget, threads 0 = every core.
+        let mut extract_resources = Resources::default();
         if let Some(m) = &x.memory {
-            shard.memory = size(m, "memory")?;
+            extract_resources
+                .set("memory", m.get_ref())
+                .map_err(|e| at(m.span(), e))?;
         }
-        shard.threads = match &x.threads {
-            Some(t) if *t.get_ref() == 0 => {
-                return Err(at(
-                    t.span(),
-                    Error::invalid("threads", "must be at least 1"),
-                ))
-            }
-            Some(t) => *t.get_ref(),
-            None => std::thread::available_parallelism().map_or(1, |n| n.get()),
-        };
+        if let Some(t) = &x.threads {
+            extract_resources
+                .set("threads", &t.get_ref().to_string())
+                .map_err(|e| at(t.span(), e))?;
+        }
+        shard.memory = extract_resources.memory;
+        shard.threads = extract_resources.thread_count();
 
         // filters
         let mut filters = Vec::new();
