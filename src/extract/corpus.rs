@@ -421,27 +421,27 @@ pub fn parse_links(
     links: &mut Vec<(u16, u16)>,
 ) -> std::result::Result<(), String> {
     links.clear();
-    for link in line.split([' ', '\t']).filter(|t| !t.is_empty()) {
-        let malformed = || {
+    for link in crate::table::split_links(line) {
+        let (a, b) = link.map_err(|link| {
             let order = if target_first {
                 "target-source"
             } else {
                 "source-target"
             };
             format!("malformed link {link:?}: expected i-j (0-based {order} token indices)")
-        };
-        let (a, b) = link.split_once('-').ok_or_else(malformed)?;
-        let a: usize = a.parse().map_err(|_| malformed())?;
-        let b: usize = b.parse().map_err(|_| malformed())?;
+        })?;
         let (i, j) = if target_first { (b, a) } else { (a, b) };
+        let link = || format!("{a}-{b}");
         if i >= source_len {
             return Err(format!(
-                "link {link:?}: source index {i} is past the end of the {source_len}-token source sentence"
+                "link {:?}: source index {i} is past the end of the {source_len}-token source sentence",
+                link()
             ));
         }
         if j >= target_len {
             return Err(format!(
-                "link {link:?}: target index {j} is past the end of the {target_len}-token target sentence"
+                "link {:?}: target index {j} is past the end of the {target_len}-token target sentence",
+                link()
             ));
         }
         links.push((i as u16, j as u16));

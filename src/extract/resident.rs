@@ -938,7 +938,11 @@ fn write_table<W: Write>(
         totals(&x.links, x.target.vocabulary.words.len(), |k| k.1),
     );
     let scorer = Scorer::new(discount, &table.histogram, table.pairs);
-    let links: Vec<Vec<(u16, u16)>> = x.alignments.iter().map(|a| parse_alignment(a)).collect();
+    let links = x
+        .alignments
+        .iter()
+        .map(|a| parse_alignment(a))
+        .collect::<Result<Vec<_>>>()?;
     let target_texts = PhraseTexts::new(&x.target, &ranks.target_nodes);
     // Blocks: (range, first source, last source, first pair index overall).
     let mut blocks = Vec::new();
@@ -1016,12 +1020,14 @@ fn totals(
     totals
 }
 
-fn parse_alignment(text: &str) -> Vec<(u16, u16)> {
-    text.split(' ')
-        .filter(|l| !l.is_empty())
-        .filter_map(|l| {
-            let (i, j) = l.split_once('-')?;
-            Some((i.parse().ok()?, j.parse().ok()?))
+/// The links of an alignment this module wrote (with [`write_inside`]).
+fn parse_alignment(text: &str) -> Result<Vec<(u16, u16)>> {
+    crate::table::split_links(text)
+        .map(|link| match link {
+            Ok((i, j)) => Ok((i as u16, j as u16)),
+            Err(_) => Err(Error::Internal(
+                "an alignment written by extraction reads back",
+            )),
         })
         .collect()
 }
