@@ -745,3 +745,109 @@ fn defect_02_interrupted_extract_removes_its_temporary_files() {
     assert_eq!(entries(&temp), Vec::<String>::new());
     assert_eq!(entries(&out_dir), Vec::<String>::new());
 }
+
+/// Issue 8, "one sentence-level counter": `extract` and `prune --source/--target` counted
+/// sentence pairs and tokens differently (an empty line made N 3 for one and 4 for the
+/// other; a no-break space split a token for one only). Both must agree with extraction:
+/// the same N, and the same cooc, df_source and df_target on every row.
+#[test]
+fn sentence_counts_of_extract_and_prune_agree() {
+    let dir = tempdir();
+    let src = write(
+        dir.path(),
+        "c.src",
+        "el faro\nel muelle\n\nel faro y el muelle\nmuelle 10\u{a0}km\n",
+    );
+    let tgt = write(
+        dir.path(),
+        "c.tgt",
+        "the lighthouse\nthe pier\nthe quay\nthe lighthouse and the pier\npier 10\u{a0}km\n",
+    );
+    let align = write(
+        dir.path(),
+        "c.align",
+        "0-0 1-1\n0-0 1-1\n\n0-0 1-1 2-2 3-3 4-4\n0-0 1-1\n",
+    );
+    let corpus = [
+        "--source",
+        s(&src),
+        "--target",
+        s(&tgt),
+        "--alignment",
+        s(&align),
+    ];
+    let (full, run, merged, pruned) = (
+        dir.path().join("full.tsv"),
+        dir.path().join("c.run"),
+        dir.path().join("merged.tsv"),
+        dir.path().join("pruned.tsv"),
+    );
+    let mut args = vec!["extract", "-q", "-o", s(&full)];
+    args.extend(corpus);
+    baler_ok(&args);
+    let mut args = vec!["extract", "shard", "-q", "-o", s(&run)];
+    args.extend(corpus);
+    baler_ok(&args);
+    baler_ok(&["extract", "merge", "-q", s(&run), "-o", s(&merged)]);
+    // A threshold every pair passes: the counts are taken from the corpus and written.
+    baler_ok(&[
+        "prune",
+        s(&merged),
+        "--source",
+        s(&src),
+        "--target",
+        s(&tgt),
+        "--significance",
+        "0",
+        "-o",
+        s(&pruned),
+    ]);
+    let read = |p: &Path| std::fs::read_to_string(p).unwrap();
+    let (full, pruned) = (read(&full), read(&pruned));
+    let n = |t: &str| {
+        t.lines()
+            .find(|l| l.starts_with("# sentence_pairs="))
+            .map(str::to_owned)
+    };
+    assert_eq!(n(&full).as_deref(), Some("# sentence_pairs=4"), "{full}");
+    assert_eq!(n(&pruned), n(&full), "{pruned}");
+    let rows = |t: &str| -> Vec<String> {
+        t.lines()
+            .filter(|l| !l.starts_with('#'))
+            .map(str::to_owned)
+            .collect()
+    };
+    assert_eq!(rows(&pruned), rows(&full));
+}
+
+/// Issue 8, "one settings registry": `extract` took its own `--threads` (0 refused) and
+/// `--memory` (default 2G); its steps now take the shared flags, where 0 threads means every
+/// core, with the same output.
+#[test]
+fn extract_takes_the_shared_resource_flags() {
+    let dir = tempdir();
+    let [src, tgt, align] = harbour_corpus(dir.path());
+    let corpus = [
+        "--source",
+        s(&src),
+        "--target",
+        s(&tgt),
+        "--alignment",
+        s(&align),
+    ];
+    let mut outputs = Vec::new();
+    for threads in ["0", "1"] {
+        let out = dir.path().join(format!("t{threads}.tsv"));
+        let mut args = vec!["extract", "-q", "--threads", threads, "-o", s(&out)];
+        args.extend(corpus);
+        baler_ok(&args);
+        outputs.push(std::fs::read(&out).unwrap());
+    }
+    assert_eq!(outputs[0], outputs[1]);
+    let run = dir.path().join("h.run");
+    let mut args = vec!["extract", "shard", "-q", "--threads", "0", "-o", s(&run)];
+    args.extend(corpus);
+    baler_ok(&args);
+    let help = baler_ok(&["extract", "--help"]);
+    assert!(help.contains("[default: 1G]"), "{help}");
+}

@@ -16,6 +16,8 @@ use baler::extract::sentences::TallyOptions;
 use baler::extract::shard::ShardOptions;
 use baler::extract::{peak_memory, ExtractOptions};
 use baler::files::{check_output, Output};
+
+use super::flags::ResourceFlags;
 use baler::Error;
 
 #[derive(clap::Args)]
@@ -37,9 +39,9 @@ struct WholeJob {
     #[command(flatten)]
     scoring: ScoringArgs,
     #[command(flatten)]
-    resources: ResourceArgs,
+    resources: ResourceFlags,
     /// Output table: .tsv, .tsv.zst, .tsv.gz, or - for standard output.
-    #[arg(short = 'o', long = "output", value_name = "OUT", required = true)]
+    #[arg(short = 'o', long = "output", value_name = "FILE", required = true)]
     output: Option<PathBuf>,
 }
 
@@ -52,51 +54,51 @@ enum Step {
         #[command(flatten)]
         phrases: PhraseArgs,
         #[command(flatten)]
-        resources: ResourceArgs,
+        resources: ResourceFlags,
         /// The count run to write; with --split-keys, the prefix of the files written.
-        #[arg(short = 'o', long = "output", value_name = "RUN")]
+        #[arg(short = 'o', long = "output", value_name = "FILE")]
         output: PathBuf,
         /// Split the counts by source key range for reducers that merge one range each: the
         /// file holds one split key per line (strictly increasing in byte order; R-1 keys make
         /// R ranges). Writes RUN.0000.run … (one count run per range, each with every
         /// word-link count) and RUN.targets.run (the shard's target totals, for
         /// `merge --target-totals`).
-        #[arg(long, value_name = "KEYS")]
+        #[arg(long, value_name = "FILE")]
         split_keys: Option<PathBuf>,
     },
     /// Reduce: merge count runs of any number of shards into the scored table, without the
     /// sentence-level counts.
     Merge {
         /// Count runs written by `baler extract shard`.
-        #[arg(required = true, value_name = "RUN")]
+        #[arg(required = true, value_name = "FILE")]
         runs: Vec<PathBuf>,
         #[command(flatten)]
         scoring: ScoringArgs,
         #[command(flatten)]
-        resources: ResourceArgs,
+        resources: ResourceFlags,
         /// The merged table (.tsv, .tsv.zst, .tsv.gz, or -).
         #[arg(short = 'o', long = "output", value_name = "TABLE")]
         output: PathBuf,
         /// Also write the phrase index that `baler extract tally` reads.
-        #[arg(long, value_name = "INDEX")]
+        #[arg(long, value_name = "FILE")]
         index: Option<PathBuf>,
         /// The runs hold one source key range (`shard --split-keys`): take count_target from
         /// these target totals (RUN.targets.run of every shard) instead of summing it over the
         /// runs. The table written holds that range's rows. Only with --discount none.
-        #[arg(long, value_name = "TOTALS", num_args = 1..)]
+        #[arg(long, value_name = "FILE", num_args = 1..)]
         target_totals: Vec<PathBuf>,
     },
     /// Map: count in one corpus shard the sentence pairs containing each pair's source, target
     /// and both.
     Tally {
         /// The phrase index written by `baler extract merge --index`.
-        #[arg(long, value_name = "INDEX")]
+        #[arg(long, value_name = "FILE")]
         index: PathBuf,
         /// Source side of the shard, one tokenized sentence per line.
-        #[arg(long, value_name = "SRC")]
+        #[arg(long, value_name = "FILE")]
         source: PathBuf,
         /// Target side of the shard.
-        #[arg(long, value_name = "TGT")]
+        #[arg(long, value_name = "FILE")]
         target: PathBuf,
         /// Skip sentence pairs longer than this (default: the extraction's, from the index).
         #[arg(long, value_name = "N")]
@@ -104,9 +106,9 @@ enum Step {
         #[command(flatten)]
         lines: LinesArg,
         #[command(flatten)]
-        resources: ResourceArgs,
+        resources: ResourceFlags,
         /// The tally to write.
-        #[arg(short = 'o', long = "output", value_name = "TALLY")]
+        #[arg(short = 'o', long = "output", value_name = "FILE")]
         output: PathBuf,
     },
     /// Reduce: sum the tallies of all shards and append cooc, df_source and df_target to the
@@ -116,24 +118,26 @@ enum Step {
         #[arg(long, value_name = "TABLE")]
         table: PathBuf,
         /// Tallies written by `baler extract tally`, one per shard.
-        #[arg(required = true, value_name = "TALLY")]
+        #[arg(required = true, value_name = "FILE")]
         tallies: Vec<PathBuf>,
         /// The final table (.tsv, .tsv.zst, .tsv.gz, or -).
-        #[arg(short = 'o', long = "output", value_name = "OUT")]
+        #[arg(short = 'o', long = "output", value_name = "FILE")]
         output: PathBuf,
+        #[command(flatten)]
+        quiet: crate::cli::flags::Quiet,
     },
 }
 
 #[derive(clap::Args, Clone)]
 struct CorpusArgs {
     /// Source side: one tokenized sentence per line (.gz/.zst read transparently).
-    #[arg(long, value_name = "SRC", required = true)]
+    #[arg(long, value_name = "FILE", required = true)]
     source: Option<PathBuf>,
     /// Target side, line-parallel to the source.
-    #[arg(long, value_name = "TGT", required = true)]
+    #[arg(long, value_name = "FILE", required = true)]
     target: Option<PathBuf>,
     /// Word alignment: space-separated 0-based source-target links `i-j`, one line per pair.
-    #[arg(long, value_name = "ALIGN", required = true)]
+    #[arg(long, value_name = "FILE", required = true)]
     alignment: Option<PathBuf>,
     /// The alignment's links are target-source (`j-i`) instead.
     #[arg(long)]
@@ -155,7 +159,7 @@ struct LinesArg {
     /// With --lines: the byte offsets where line FIRST begins in the source, target and
     /// alignment files (plain files), so that the lines before are not read at all. Each must
     /// follow a newline; that they belong to line FIRST is the caller's promise.
-    #[arg(long, value_name = "SRC,TGT[,ALIGN]", value_delimiter = ',')]
+    #[arg(long, value_name = "N,N[,N]", value_delimiter = ',')]
     start_bytes: Vec<u64>,
 }
 
@@ -190,7 +194,7 @@ struct PhraseArgs {
 #[derive(clap::Args, Clone)]
 struct ScoringArgs {
     /// Discount phrase counts before taking relative frequencies.
-    #[arg(long, value_enum, default_value_t = DiscountArg::None)]
+    #[arg(long, value_enum, value_name = "KIND", default_value_t = DiscountArg::None)]
     discount: DiscountArg,
 }
 
@@ -202,32 +206,6 @@ enum DiscountArg {
     GoodTuring,
     /// Fixed absolute discount with lower-order redistribution.
     KneserNey,
-}
-
-#[derive(clap::Args, Clone)]
-struct ResourceArgs {
-    /// Memory budget, e.g. 512M or 4G; tables beyond it spill to sorted runs on disk.
-    #[arg(long, value_name = "SIZE", value_parser = super::size_arg, default_value = "2G")]
-    memory: u64,
-    /// Worker threads (default: every core).
-    #[arg(long, value_name = "N")]
-    threads: Option<usize>,
-    /// Directory for temporary runs (default: the system temporary directory).
-    #[arg(long, value_name = "DIR")]
-    temp_dir: Option<PathBuf>,
-    /// No progress bar or summary on stderr.
-    #[arg(long, short = 'q')]
-    quiet: bool,
-}
-
-impl ResourceArgs {
-    fn threads(&self) -> baler::Result<usize> {
-        match self.threads {
-            Some(0) => Err(Error::invalid("--threads", "must be at least 1")),
-            Some(n) => Ok(n),
-            None => Ok(std::thread::available_parallelism().map_or(1, |n| n.get())),
-        }
-    }
 }
 
 impl CorpusArgs {
@@ -275,14 +253,14 @@ impl DiscountArg {
 fn shard_options(
     corpus: &CorpusArgs,
     phrases: &PhraseArgs,
-    resources: &ResourceArgs,
+    resources: &ResourceFlags,
 ) -> baler::Result<ShardOptions> {
     Ok(ShardOptions {
         limits: phrases.limits()?,
         corpus: corpus.options()?,
-        memory: resources.memory,
-        threads: resources.threads()?,
-        temp_dir: resources.temp_dir.clone(),
+        memory: resources.resources.memory,
+        threads: resources.resources.thread_count(),
+        temp_dir: resources.resources.temp_dir.clone(),
         progress: !resources.quiet,
     })
 }
@@ -382,8 +360,8 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         }) => {
             let options = MergeOptions {
                 discount: scoring.discount.discount(),
-                memory: resources.memory,
-                temp_dir: resources.temp_dir.clone(),
+                memory: resources.resources.memory,
+                temp_dir: resources.resources.temp_dir.clone(),
                 index,
                 target_totals,
             };
@@ -422,9 +400,9 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             let options = TallyOptions {
                 lines: lines.range()?,
                 max_sentence_length,
-                memory: resources.memory,
-                threads: resources.threads()?,
-                temp_dir: resources.temp_dir.clone(),
+                memory: resources.resources.memory,
+                threads: resources.resources.thread_count(),
+                temp_dir: resources.resources.temp_dir.clone(),
                 progress: !resources.quiet,
             };
             let corpus = CorpusPaths {
@@ -449,6 +427,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             table,
             tallies,
             output,
+            quiet: _, // attach draws no progress and prints no summary
         }) => {
             let mut inputs: Vec<&Path> = tallies.iter().map(PathBuf::as_path).collect();
             inputs.push(&table);

@@ -107,11 +107,6 @@ pub(crate) fn print(text: &str) -> baler::Result<()> {
         .map_err(|e| baler::Error::io(baler::files::STDIO, "writing", e))
 }
 
-/// Parses a size flag such as `--memory 256M`.
-pub(crate) fn size_arg(text: &str) -> Result<u64, String> {
-    baler::files::parse_size(text).map_err(|e| e.to_string())
-}
-
 #[cfg(test)]
 mod tests {
     use super::Cli;
@@ -136,6 +131,8 @@ mod tests {
         "FEATURE=VALUE",
         "NAME=V1,V2,...",
         "NAME,...",
+        "FIRST-LAST",
+        "N,N[,N]",
     ];
     /// Commands that run in parallel: `--threads`, 0 meaning every core.
     const THREADED: &[&str] = &[
@@ -150,15 +147,6 @@ mod tests {
     /// Commands that spill to disk: `--temp-dir`, and `--memory` unless each stage has its own.
     const SPILLING: &[&str] = &["prune", "pack", "sweep", "build", "lm build"];
     const OWN_BUDGETS: &[&str] = &["build"];
-    /// Commands whose flags are declared by the extraction work (issue 11) and not yet taken
-    /// from `cli/flags.rs`: their `--threads` refuses 0 and their placeholders name roles.
-    const NOT_YET_SHARED: &[&str] = &[
-        "extract",
-        "extract shard",
-        "extract merge",
-        "extract tally",
-        "extract attach",
-    ];
 
     /// Every leaf command with its full name (`lm build`).
     fn leaves(cmd: &clap::Command, prefix: &str, out: &mut Vec<(String, clap::Command)>) {
@@ -190,9 +178,6 @@ mod tests {
         let mut problems = Vec::new();
         for (name, cmd) in &commands {
             let arg = |id: &str| cmd.get_arguments().find(|a| a.get_id() == id);
-            if NOT_YET_SHARED.contains(&name.as_str()) {
-                continue;
-            }
             match arg("quiet") {
                 Some(q) if q.get_short() == Some('q') => {}
                 _ => problems.push(format!("{name}: no -q/--quiet")),

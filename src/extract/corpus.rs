@@ -222,8 +222,9 @@ fn span<'a>(text: &'a str, starts: &[u32], start: usize, end: usize) -> &'a str 
 }
 
 /// Normalizes `line` into `out` (tokens joined by single spaces) and records token offsets.
-/// Returns the number of tokens.
-fn tokenize(line: &str, out: &mut String, starts: &mut Vec<u32>) -> usize {
+/// Returns the number of tokens. Tokens are separated by spaces and tabs; this is the one
+/// tokenization of corpora (extraction and `prune --source/--target`).
+pub(crate) fn tokenize(line: &str, out: &mut String, starts: &mut Vec<u32>) -> usize {
     out.clear();
     starts.clear();
     for token in line.split([' ', '\t']).filter(|t| !t.is_empty()) {
@@ -235,6 +236,30 @@ fn tokenize(line: &str, out: &mut String, starts: &mut Vec<u32>) -> usize {
     }
     starts.push(out.len() as u32 + 1);
     starts.len() - 1
+}
+
+/// Whether a sentence pair of `ns` source and `nt` target tokens is kept.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum Kept {
+    Yes,
+    /// A side has no token.
+    Empty,
+    /// A side has more than the maximum sentence length.
+    TooLong,
+}
+
+/// The one rule for the sentence pairs that count. N, the `sentence_pairs` of a table, is the
+/// number of sentence pairs kept: both sides have at least one token and neither has more
+/// than `max_sentence_length`. Extraction and `prune --source/--target` both count by it, so
+/// the significance test's N and thresholds do not depend on the path taken.
+pub(crate) fn kept(ns: usize, nt: usize, max_sentence_length: usize) -> Kept {
+    if ns == 0 || nt == 0 {
+        Kept::Empty
+    } else if ns > max_sentence_length || nt > max_sentence_length {
+        Kept::TooLong
+    } else {
+        Kept::Yes
+    }
 }
 
 struct CountingRead<R> {
@@ -509,13 +534,16 @@ impl CorpusReader {
             }
             let ns = tokenize(&self.source.buf, &mut pair.source, &mut pair.source_starts);
             let nt = tokenize(&self.target.buf, &mut pair.target, &mut pair.target_starts);
-            if ns == 0 || nt == 0 {
-                self.stats.skipped_empty += 1;
-                continue;
-            }
-            if ns > self.options.max_sentence_length || nt > self.options.max_sentence_length {
-                self.stats.skipped_long += 1;
-                continue;
+            match kept(ns, nt, self.options.max_sentence_length) {
+                Kept::Yes => {}
+                Kept::Empty => {
+                    self.stats.skipped_empty += 1;
+                    continue;
+                }
+                Kept::TooLong => {
+                    self.stats.skipped_long += 1;
+                    continue;
+                }
             }
             pair.line = line;
             pair.links.clear();
@@ -603,27 +631,27 @@ pub fn parse_links(
     links: &mut Vec<(u16, u16)>,
 ) -> std::result::Result<(), String> {
     links.clear();
-    for link in line.split([' ', '\t']).filter(|t| !t.is_empty()) {
-        let malformed = || {
+    for link in crate::table::split_links(line) {
+        let (a, b) = link.map_err(|link| {
             let order = if target_first {
                 "target-source"
             } else {
                 "source-target"
             };
             format!("malformed link {link:?}: expected i-j (0-based {order} token indices)")
-        };
-        let (a, b) = link.split_once('-').ok_or_else(malformed)?;
-        let a: usize = a.parse().map_err(|_| malformed())?;
-        let b: usize = b.parse().map_err(|_| malformed())?;
+        })?;
         let (i, j) = if target_first { (b, a) } else { (a, b) };
+        let link = || format!("{a}-{b}");
         if i >= source_len {
             return Err(format!(
-                "link {link:?}: source index {i} is past the end of the {source_len}-token source sentence"
+                "link {:?}: source index {i} is past the end of the {source_len}-token source sentence",
+                link()
             ));
         }
         if j >= target_len {
             return Err(format!(
-                "link {link:?}: target index {j} is past the end of the {target_len}-token target sentence"
+                "link {:?}: target index {j} is past the end of the {target_len}-token target sentence",
+                link()
             ));
         }
         links.push((i as u16, j as u16));

@@ -89,11 +89,89 @@ impl Vocabulary {
     }
 }
 
+/// The edges of a prefix tree: `(parent << 32 | word)` to child, in one open-addressed array
+/// (linear probing, at most half full) so that a lookup touches one cache line, where a
+/// general hash map reads its control bytes and its slots apart. Most of the time of
+/// sentence-level counting and of numbering phrases goes to these lookups.
+struct ChildMap {
+    /// `(key, child)`; `key == EMPTY` marks a free slot.
+    slots: Vec<(u64, u32)>,
+    len: usize,
+    shift: u32,
+}
+
+impl Default for ChildMap {
+    fn default() -> ChildMap {
+        ChildMap {
+            slots: vec![(ChildMap::EMPTY, 0); 16],
+            len: 0,
+            shift: 64 - 4,
+        }
+    }
+}
+
+impl ChildMap {
+    /// No edge has it: the root's edges are kept apart, so a parent is never `u32::MAX`.
+    const EMPTY: u64 = u64::MAX;
+
+    fn slot(&self, key: u64) -> usize {
+        (key.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> self.shift) as usize
+    }
+
+    fn get(&self, key: u64) -> Option<u32> {
+        let mask = self.slots.len() - 1;
+        let mut k = self.slot(key);
+        loop {
+            let (slot_key, child) = self.slots[k];
+            if slot_key == key {
+                return Some(child);
+            }
+            if slot_key == Self::EMPTY {
+                return None;
+            }
+            k = (k + 1) & mask;
+        }
+    }
+
+    /// The child of `key`, which becomes `child` if it has none.
+    fn get_or_insert(&mut self, key: u64, child: u32) -> u32 {
+        if 2 * (self.len + 1) > self.slots.len() {
+            self.grow();
+        }
+        let mask = self.slots.len() - 1;
+        let mut k = self.slot(key);
+        loop {
+            let (slot_key, existing) = self.slots[k];
+            if slot_key == key {
+                return existing;
+            }
+            if slot_key == Self::EMPTY {
+                self.slots[k] = (key, child);
+                self.len += 1;
+                return child;
+            }
+            k = (k + 1) & mask;
+        }
+    }
+
+    fn grow(&mut self) {
+        let doubled = vec![(Self::EMPTY, 0); self.slots.len() * 2];
+        let old = std::mem::replace(&mut self.slots, doubled);
+        self.shift -= 1;
+        self.len = 0;
+        for (key, child) in old {
+            if key != Self::EMPTY {
+                self.get_or_insert(key, child);
+            }
+        }
+    }
+}
+
 /// Phrases of one side as a prefix tree over word ids; node 0 is the empty phrase.
 struct PhraseTree {
     /// The one-word phrases, by word id (most lookups start there).
     first: Vec<u32>,
-    children: FxHashMap<u64, u32>,
+    children: ChildMap,
     parent: Vec<u32>,
     word: Vec<u32>,
     /// Whether the node's phrase was extracted (is in the table).
@@ -104,7 +182,7 @@ impl PhraseTree {
     fn new() -> PhraseTree {
         PhraseTree {
             first: Vec::new(),
-            children: FxHashMap::default(),
+            children: ChildMap::default(),
             parent: vec![NO_NODE],
             word: vec![0],
             extracted: vec![false],
@@ -128,7 +206,7 @@ impl PhraseTree {
             }
             self.first[w]
         } else {
-            *self.children.entry(Self::key(node, word)).or_insert(next)
+            self.children.get_or_insert(Self::key(node, word), next)
         };
         if child == next {
             self.parent.push(node);
@@ -146,7 +224,7 @@ impl PhraseTree {
                 .copied()
                 .filter(|&n| n != NO_NODE);
         }
-        self.children.get(&Self::key(node, word)).copied()
+        self.children.get(Self::key(node, word))
     }
 
     fn len(&self) -> usize {
@@ -154,7 +232,7 @@ impl PhraseTree {
     }
 
     /// Bytes held per node, for the memory estimate.
-    const NODE_BYTES: usize = 4 + 4 + 1 + 16;
+    const NODE_BYTES: usize = 4 + 4 + 1 + 2 * 16;
 
     /// The phrase of `node`, words joined by single spaces, into `out`.
     fn text(&self, node: u32, vocabulary: &Vocabulary, words: &mut Vec<u32>, out: &mut String) {
@@ -219,6 +297,53 @@ impl PhraseTree {
             stack.extend(order[lo..hi].iter().rev());
         }
         (rank, by_rank)
+    }
+}
+
+/// The text and word ids of every extracted phrase of one side, by rank, made once so that
+/// rows repeating a phrase do not walk the tree again.
+struct PhraseTexts {
+    text: String,
+    /// `text_ends[r]`: end of phrase `r`'s text.
+    text_ends: Vec<usize>,
+    ids: Vec<Option<u32>>,
+    /// `id_ends[r]`: end of phrase `r`'s ids.
+    id_ends: Vec<usize>,
+}
+
+impl PhraseTexts {
+    fn new(side: &Side, nodes: &[u32]) -> PhraseTexts {
+        let mut texts = PhraseTexts {
+            text: String::new(),
+            text_ends: Vec::with_capacity(nodes.len()),
+            ids: Vec::new(),
+            id_ends: Vec::with_capacity(nodes.len()),
+        };
+        let (mut scratch, mut text, mut ids) = (Vec::new(), String::new(), Vec::new());
+        for &node in nodes {
+            side.tree
+                .text(node, &side.vocabulary, &mut scratch, &mut text);
+            texts.text.push_str(&text);
+            texts.text_ends.push(texts.text.len());
+            side.tree.ids(node, &mut ids);
+            texts.ids.extend_from_slice(&ids);
+            texts.id_ends.push(texts.ids.len());
+        }
+        texts
+    }
+
+    fn text(&self, rank: usize) -> &str {
+        let start = if rank == 0 {
+            0
+        } else {
+            self.text_ends[rank - 1]
+        };
+        &self.text[start..self.text_ends[rank]]
+    }
+
+    fn ids(&self, rank: usize) -> &[Option<u32>] {
+        let start = if rank == 0 { 0 } else { self.id_ends[rank - 1] };
+        &self.ids[start..self.id_ends[rank]]
     }
 }
 
@@ -813,7 +938,12 @@ fn write_table<W: Write>(
         totals(&x.links, x.target.vocabulary.words.len(), |k| k.1),
     );
     let scorer = Scorer::new(discount, &table.histogram, table.pairs);
-    let links: Vec<Vec<(u16, u16)>> = x.alignments.iter().map(|a| parse_alignment(a)).collect();
+    let links = x
+        .alignments
+        .iter()
+        .map(|a| parse_alignment(a))
+        .collect::<Result<Vec<_>>>()?;
+    let target_texts = PhraseTexts::new(&x.target, &ranks.target_nodes);
     // Blocks: (range, first source, last source, first pair index overall).
     let mut blocks = Vec::new();
     let mut pair_base = 0usize;
@@ -838,6 +968,7 @@ fn write_table<W: Write>(
         words: &words,
         scorer: &scorer,
         links: &links,
+        target_texts: &target_texts,
         header: &header,
         header_len,
     };
@@ -889,12 +1020,14 @@ fn totals(
     totals
 }
 
-fn parse_alignment(text: &str) -> Vec<(u16, u16)> {
-    text.split(' ')
-        .filter(|l| !l.is_empty())
-        .filter_map(|l| {
-            let (i, j) = l.split_once('-')?;
-            Some((i.parse().ok()?, j.parse().ok()?))
+/// The links of an alignment this module wrote (with [`write_inside`]).
+fn parse_alignment(text: &str) -> Result<Vec<(u16, u16)>> {
+    crate::table::split_links(text)
+        .map(|link| match link {
+            Ok((i, j)) => Ok((i as u16, j as u16)),
+            Err(_) => Err(Error::Internal(
+                "an alignment written by extraction reads back",
+            )),
         })
         .collect()
 }
@@ -907,6 +1040,7 @@ struct RowContext<'a> {
     words: &'a WordTable,
     scorer: &'a Scorer,
     links: &'a [Vec<(u16, u16)>],
+    target_texts: &'a PhraseTexts,
     header: &'a crate::table::Header,
     header_len: usize,
 }
@@ -925,7 +1059,7 @@ impl RowContext<'_> {
             counts: vec![0; 6],
             ..Default::default()
         };
-        let (mut f, mut e) = (Vec::new(), Vec::new());
+        let mut f = Vec::new();
         let mut scratch = Vec::new();
         for k in first..end {
             let s = range.first_source as usize + k;
@@ -942,21 +1076,16 @@ impl RowContext<'_> {
             for p in range.offsets[k]..range.offsets[k + 1] {
                 let pair = range.pairs[p];
                 let t = pair.target as usize;
-                let tnode = self.ranks.target_nodes[t];
-                self.x.target.tree.text(
-                    tnode,
-                    &self.x.target.vocabulary,
-                    &mut scratch,
-                    &mut row.target,
-                );
-                self.x.target.tree.ids(tnode, &mut e);
+                row.target.clear();
+                row.target.push_str(self.target_texts.text(t));
+                let e = self.target_texts.ids(t);
                 let (ct, nt) = (self.table.target_totals[t], self.table.target_distinct[t]);
                 row.alignment
                     .clone_from(&self.links[pair.alignment as usize]);
                 let (p_t_given_s, p_s_given_t) =
                     self.scorer
                         .probabilities(pair.count, cs, ct, u64::from(ns), u64::from(nt));
-                let (lex_t, lex_s) = self.words.lexical_weights_ids(&f, &e, &row.alignment);
+                let (lex_t, lex_s) = self.words.lexical_weights_ids(&f, e, &row.alignment);
                 row.scores
                     .copy_from_slice(&[p_t_given_s, p_s_given_t, lex_t, lex_s]);
                 let pair_index = first_pair + p - range.offsets[first];

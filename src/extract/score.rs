@@ -103,7 +103,7 @@ impl Default for MergeOptions {
     fn default() -> Self {
         MergeOptions {
             discount: Discount::None,
-            memory: 2 << 30,
+            memory: crate::settings::DEFAULT_MEMORY,
             temp_dir: None,
             index: None,
             target_totals: Vec::new(),
@@ -733,13 +733,10 @@ fn parse_links(text: &[u8], links: &mut Vec<(u16, u16)>) -> Result<()> {
         return Ok(());
     }
     let text = std::str::from_utf8(text).map_err(|_| damaged("alignment not UTF-8"))?;
-    for link in text.split(' ') {
-        let (i, j) = link
-            .split_once('-')
-            .ok_or_else(|| damaged("malformed alignment"))?;
-        let i = i.parse().map_err(|_| damaged("malformed alignment"))?;
-        let j = j.parse().map_err(|_| damaged("malformed alignment"))?;
-        links.push((i, j));
+    for link in crate::table::split_links(text) {
+        let (i, j) = link.map_err(|_| damaged("malformed alignment"))?;
+        let small = |n: usize| u16::try_from(n).map_err(|_| damaged("malformed alignment"));
+        links.push((small(i)?, small(j)?));
     }
     Ok(())
 }

@@ -79,7 +79,7 @@ impl Default for TallyOptions {
     fn default() -> Self {
         TallyOptions {
             max_sentence_length: None,
-            memory: 2 << 30,
+            memory: crate::settings::DEFAULT_MEMORY,
             threads: 1,
             temp_dir: None,
             progress: false,

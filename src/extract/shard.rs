@@ -41,7 +41,7 @@ impl Default for ShardOptions {
         ShardOptions {
             limits: PhraseLimits::default(),
             corpus: CorpusOptions::default(),
-            memory: 2 << 30,
+            memory: crate::settings::DEFAULT_MEMORY,
             threads: 1,
             temp_dir: None,
             progress: false,

@@ -106,12 +106,19 @@ pub fn prune_file(
                     let (p, _) = r?;
                     pairs.push((p.source, p.target));
                 }
-                corpus = Some(SentenceCounts::count(
+                // The sentence pairs the extraction kept: none longer than its limit.
+                let max_sentence_length = header
+                    .metadata
+                    .get("max_sentence_length")
+                    .and_then(|v| v.parse().ok())
+                    .unwrap_or(usize::MAX);
+                corpus = Some(SentenceCounts::count_up_to(
                     pairs.iter().map(|(s, t)| (s.as_str(), t.as_str())),
                     files::open_input(src)?,
                     &src.to_string_lossy(),
                     files::open_input(target)?,
                     &target.to_string_lossy(),
+                    max_sentence_length,
                 )?);
             }
             CountSource::PhraseCounts => {

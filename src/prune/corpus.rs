@@ -7,24 +7,27 @@ use std::collections::HashMap;
 use std::io::BufRead;
 
 use crate::error::{Error, Result};
+use crate::extract::corpus::{kept, tokenize, Kept};
 use crate::files;
 
 /// `cooc`, `df_source`, `df_target` of a set of phrase pairs, and N, counted over a corpus.
 ///
-/// Sentences are split on whitespace; a phrase "occurs" in a sentence when its tokens appear
-/// there consecutively. Each sentence pair counts at most once per phrase (document
+/// Sentences are tokenized and kept as extraction does (tokens separated by spaces and tabs;
+/// a sentence pair counts when both sides have a token and, given a maximum sentence length,
+/// neither is longer), so N is the extraction's `sentence_pairs`. A phrase "occurs" in a
+/// sentence when its tokens appear there consecutively. Each sentence pair counts at most once per phrase (document
 /// frequency), and `cooc` counts the sentence pairs whose source side contains the source
 /// phrase and whose target side contains the target phrase, wherever they are.
 ///
 /// # Examples
 /// ```
 /// use baler::prune::SentenceCounts;
-/// let source = "el faro\nel faro y el puerto\nel puerto\n";
-/// let target = "the lighthouse\nthe lighthouse and the port\nthe port\n";
+/// let source = "el faro\nel faro y el puerto\n\nel puerto\n";
+/// let target = "the lighthouse\nthe lighthouse and the port\n\nthe port\n";
 /// let pairs = [("el faro", "the lighthouse"), ("el", "the port")];
 /// let counts = SentenceCounts::count(pairs, source.as_bytes(), "es.txt",
 ///                                    target.as_bytes(), "en.txt").unwrap();
-/// assert_eq!(counts.sentence_pairs(), 3);
+/// assert_eq!(counts.sentence_pairs(), 3); // the empty line is not a sentence pair
 /// assert_eq!(counts.get("el faro", "the lighthouse"), Some((2, 2, 2)));
 /// assert_eq!(counts.get("el", "the port"), Some((2, 3, 2)));
 /// ```
@@ -49,6 +52,28 @@ impl SentenceCounts {
         source_name: &str,
         target: T,
         target_name: &str,
+    ) -> Result<SentenceCounts>
+    where
+        P: IntoIterator<Item = (&'a str, &'a str)>,
+        S: BufRead,
+        T: BufRead,
+    {
+        Self::count_up_to(pairs, source, source_name, target, target_name, usize::MAX)
+    }
+
+    /// [`SentenceCounts::count`], skipping sentence pairs with more than
+    /// `max_sentence_length` tokens on a side (as the extraction that made the table did:
+    /// its `# max_sentence_length`).
+    ///
+    /// # Errors
+    /// As [`SentenceCounts::count`].
+    pub fn count_up_to<'a, P, S, T>(
+        pairs: P,
+        source: S,
+        source_name: &str,
+        target: T,
+        target_name: &str,
+        max_sentence_length: usize,
     ) -> Result<SentenceCounts>
     where
         P: IntoIterator<Item = (&'a str, &'a str)>,
@@ -90,11 +115,14 @@ impl SentenceCounts {
         let mut seen_target = vec![u64::MAX; counts.targets.len()];
         let mut seen_source = vec![u64::MAX; options.len()];
         let (mut source_line, mut target_line) = (String::new(), String::new());
-        let (mut found_sources, mut buf) = (Vec::new(), String::new());
+        let mut found_sources = Vec::new();
+        let (mut source_tokens, mut target_tokens) = (String::new(), String::new());
+        let (mut source_starts, mut target_starts) = (Vec::new(), Vec::new());
         let mut source = source;
         let mut target = target;
+        let mut line_no = 0;
         loop {
-            let line_no = counts.sentence_pairs + 1;
+            line_no += 1;
             let more_s = files::read_line(&mut source, &mut source_line, source_name, line_no)?;
             let more_t = files::read_line(&mut target, &mut target_line, target_name, line_no)?;
             match (more_s, more_t) {
@@ -113,10 +141,15 @@ impl SentenceCounts {
                 }
                 (true, true) => {}
             }
+            let ns = tokenize(&source_line, &mut source_tokens, &mut source_starts);
+            let nt = tokenize(&target_line, &mut target_tokens, &mut target_starts);
+            if kept(ns, nt, max_sentence_length) != Kept::Yes {
+                continue;
+            }
             let sentence = counts.sentence_pairs;
             counts.sentence_pairs += 1;
             found_sources.clear();
-            each_phrase(&source_line, longest_source, &mut buf, |p| {
+            each_phrase(&source_tokens, &source_starts, longest_source, |p| {
                 if let Some(&id) = counts.sources.get(p) {
                     if seen_source[id as usize] != sentence {
                         seen_source[id as usize] = sentence;
@@ -124,7 +157,7 @@ impl SentenceCounts {
                     }
                 }
             });
-            each_phrase(&target_line, longest_target, &mut buf, |p| {
+            each_phrase(&target_tokens, &target_starts, longest_target, |p| {
                 if let Some(&id) = counts.targets.get(p) {
                     if seen_target[id as usize] != sentence {
                         seen_target[id as usize] = sentence;
@@ -162,17 +195,13 @@ impl SentenceCounts {
     }
 }
 
-/// Calls `f` with every run of 1..=`longest` consecutive tokens of `line`, joined by spaces.
-fn each_phrase(line: &str, longest: usize, buf: &mut String, mut f: impl FnMut(&str)) {
-    let tokens: Vec<&str> = line.split_whitespace().collect();
-    for start in 0..tokens.len() {
-        buf.clear();
-        for (k, token) in tokens[start..].iter().take(longest).enumerate() {
-            if k > 0 {
-                buf.push(' ');
-            }
-            buf.push_str(token);
-            f(buf);
+/// Calls `f` with every run of 1..=`longest` consecutive tokens of `text` (tokens joined by
+/// single spaces, starting at `starts`, as [`tokenize`] leaves them).
+fn each_phrase(text: &str, starts: &[u32], longest: usize, mut f: impl FnMut(&str)) {
+    let tokens = starts.len() - 1;
+    for start in 0..tokens {
+        for end in start + 1..=tokens.min(start + longest) {
+            f(&text[starts[start] as usize..starts[end] as usize - 1]);
         }
     }
 }

@@ -20,7 +20,7 @@
 
 mod format;
 
-pub use format::format_score;
+pub use format::{format_count, format_score};
 
 use std::fmt::Write as _;
 use std::io::{BufRead, Write};
@@ -413,6 +413,27 @@ fn check_phrase<'a>(field: &'a str, column: &str) -> std::result::Result<&'a str
     Ok(field)
 }
 
+/// The links of a word alignment: `i-j` pairs of 0-based token indices, separated by spaces or
+/// tabs. The one parser of links, for corpora, tables and intermediate files; each caller
+/// checks the indices against its own lengths. A link that is not `i-j` comes back as `Err`.
+///
+/// # Examples
+/// ```
+/// let links: Vec<_> = baler::table::split_links("0-1 2-0\t1-1").collect();
+/// assert_eq!(links, [Ok((0, 1)), Ok((2, 0)), Ok((1, 1))]);
+/// assert_eq!(baler::table::split_links("0:1").next(), Some(Err("0:1")));
+/// ```
+pub fn split_links(
+    text: &str,
+) -> impl Iterator<Item = std::result::Result<(usize, usize), &str>> + '_ {
+    text.split([' ', '\t'])
+        .filter(|t| !t.is_empty())
+        .map(|link| {
+            let (i, j) = link.split_once('-').ok_or(link)?;
+            Ok((i.parse().map_err(|_| link)?, j.parse().map_err(|_| link)?))
+        })
+}
+
 /// Parses space-separated `i-j` links and checks them against the phrase lengths.
 ///
 /// # Examples
@@ -434,17 +455,19 @@ pub fn parse_alignment(
     }
     let source_len = source.split(' ').count();
     let target_len = target.split(' ').count();
-    for link in field.split(' ') {
-        let bad = || format!("bad link {link:?}: expected i-j with 0-based token indices");
-        let (i, j) = link.split_once('-').ok_or_else(bad)?;
-        let i: u16 = i.parse().map_err(|_| bad())?;
-        let j: u16 = j.parse().map_err(|_| bad())?;
-        if usize::from(i) >= source_len || usize::from(j) >= target_len {
+    let bad = |link: &str| format!("bad link {link:?}: expected i-j with 0-based token indices");
+    // In a table the links are separated by single spaces.
+    if field.split(' ').any(str::is_empty) || field.contains('\t') {
+        return Err(bad(""));
+    }
+    for link in split_links(field) {
+        let (i, j) = link.map_err(bad)?;
+        if i >= source_len || j >= target_len {
             return Err(format!(
-                "bad link {link:?}: outside a {source_len}-token source and {target_len}-token target"
+                "bad link \"{i}-{j}\": outside a {source_len}-token source and {target_len}-token target"
             ));
         }
-        links.push((i, j));
+        links.push((i as u16, j as u16));
     }
     Ok(())
 }
@@ -513,7 +536,8 @@ impl<W: Write> TsvWriter<W> {
             format_score(line, s);
         }
         for &c in &pair.counts {
-            let _ = write!(line, "\t{c}");
+            line.push('\t');
+            format_count(line, c);
         }
         line.push('\n');
         self.out.write_all(line.as_bytes())
@@ -536,7 +560,10 @@ pub fn write_alignment(out: &mut String, links: &[(u16, u16)]) {
         if k > 0 {
             out.push(' ');
         }
-        let _ = write!(out, "{i}-{j}");
+        let mut digits = itoa::Buffer::new();
+        out.push_str(digits.format(*i));
+        out.push('-');
+        out.push_str(digits.format(*j));
     }
 }
 

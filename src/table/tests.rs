@@ -69,3 +69,64 @@ fn score_format_reads_back_exactly() {
         assert_eq!(s.parse::<f64>().unwrap(), v, "{s}");
     }
 }
+
+/// The reference is Rust's own float formatting (`{}` and `{:e}`), which the writer used before
+/// it formatted through zmij: every value must come out byte for byte the same.
+fn score_as_rust_formats_it(v: f64) -> String {
+    if v == 0.0 || (1e-4..1e15).contains(&v.abs()) {
+        format!("{v}")
+    } else {
+        format!("{v:e}")
+    }
+}
+
+#[test]
+fn score_format_matches_rust_formatting() {
+    use rand_xoshiro::rand_core::{RngCore, SeedableRng};
+    let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(20_261_203);
+    let mut values = vec![
+        0.0,
+        -0.0,
+        1.0,
+        1e-4,
+        1e15,
+        0.5,
+        1e14,
+        123.0,
+        f64::NAN,
+        f64::INFINITY,
+    ];
+    for edge in [1e-4f64, 1e15, 1e-5, 1.0] {
+        values.push(f64::from_bits(edge.to_bits() - 1));
+        values.push(f64::from_bits(edge.to_bits() + 1));
+    }
+    // Short exact expansions, where two shortest forms can tie.
+    for k in 0..60 {
+        for _ in 0..2000 {
+            let m = rng.next_u64() >> (rng.next_u32() % 64);
+            values.push(m as f64 / 2f64.powi(k));
+        }
+    }
+    // Ratios of counts, as the table's probabilities are.
+    for n in 1..400u32 {
+        for k in 1..=n {
+            values.push(f64::from(k) / f64::from(n));
+        }
+    }
+    // Products of ratios, as lexical weights are, and arbitrary finite doubles.
+    for _ in 0..300_000 {
+        let a = (rng.next_u32() % 1000 + 1) as f64 / (rng.next_u32() % 5000 + 1) as f64;
+        let b = (rng.next_u32() % 1000 + 1) as f64 / (rng.next_u32() % 5000 + 1) as f64;
+        values.push(a * b);
+        values.push(a * b * a * b * a);
+        values.push(f64::from_bits(rng.next_u64()));
+        // Uniform in [0, 1) with every mantissa bit random.
+        values.push((rng.next_u64() >> 11) as f64 / (1u64 << 53) as f64);
+    }
+    let mut got = String::new();
+    for v in values {
+        got.clear();
+        format_score(&mut got, v);
+        assert_eq!(got, score_as_rust_formats_it(v), "bits {:#x}", v.to_bits());
+    }
+}
