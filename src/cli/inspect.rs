@@ -4,6 +4,7 @@ use std::fmt::Write as _;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
+use baler::format::SectionKind;
 use serde_json::json;
 
 /// Arguments of `baler inspect`.
@@ -165,6 +166,42 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
                 bytes,
                 100.0 * *bytes as f64 / total.max(1) as f64,
                 per_pair(*bytes)
+            )
+            .unwrap();
+        }
+        // The same with the index sections charged to what they index, so the keys and
+        // targets rows add up to what each costs in the file.
+        let section = |kind: SectionKind| {
+            table
+                .section_sizes()
+                .iter()
+                .filter(|s| s.kind == kind)
+                .map(|s| s.length)
+                .sum::<u64>()
+        };
+        let component = |name: &str| {
+            m.components
+                .iter()
+                .filter(|(n, _)| n == name)
+                .map(|(_, b)| *b)
+                .sum::<u64>()
+        };
+        let keys =
+            component("keys") + section(SectionKind::BlockIndex) + section(SectionKind::BlockKeys);
+        let targets = component("targets")
+            + section(SectionKind::TargetIndex)
+            + section(SectionKind::Vocabulary);
+        for (name, bytes) in [
+            ("keys, with their indexes", keys),
+            ("targets, with index, words", targets),
+        ] {
+            writeln!(
+                out,
+                "{:<26} {:>14} {:>7.2}% {:>12.3}",
+                name,
+                bytes,
+                100.0 * bytes as f64 / total.max(1) as f64,
+                per_pair(bytes)
             )
             .unwrap();
         }

@@ -92,6 +92,16 @@ pub const COMPONENTS: [&str; 7] = [
     "counts",
 ];
 
+/// How much of a block's options to decode (its keys and option counts are always decoded).
+#[derive(Clone, Copy, Debug)]
+pub enum Upto<'k> {
+    /// The options of the first `n` sources.
+    Sources(usize),
+    /// The options up to and including those of the source equal to this key, if the block
+    /// holds it (none otherwise).
+    Key(&'k [u8]),
+}
+
 /// The decoded form of a block, also what the writer fills before encoding.
 #[derive(Clone, Debug, Default)]
 pub struct BlockRecords {
@@ -111,6 +121,8 @@ pub struct BlockRecords {
     pub link_ends: Vec<u32>,
     /// Counts, `n_counts` per option.
     pub counts: Vec<u64>,
+    /// Sources whose options are decoded (the first ones; all of them once fully decoded).
+    pub with_options: usize,
 }
 
 /// What a block's layout depends on.
@@ -142,6 +154,7 @@ impl BlockRecords {
         self.links.clear();
         self.link_ends.clear();
         self.counts.clear();
+        self.with_options = 0;
     }
 
     /// Number of sources.
@@ -248,12 +261,18 @@ impl BlockRecords {
         }
     }
 
-    /// Decodes a block of `sources` sources whose first key is `first_key`; `Err` says what is
-    /// malformed. `max_options` bounds the option count (the metadata's pair count).
+    /// Decodes a block of `sources` sources whose first key is `first_key`: every key and
+    /// option count, and the options `upto` asks for (the stream is read no further: keys
+    /// alone cost a fraction of the block); `Err` says what is malformed.
+    /// `max_options` bounds the option count (the metadata's pair count). Only a full decode
+    /// (`upto >= sources`) checks that the stream ends where it should; the block's checksum,
+    /// checked before decoding, guards the rest.
+    #[allow(clippy::too_many_arguments)]
     pub fn decode(
         &mut self,
         first_key: &[u8],
         sources: usize,
+        upto: Upto<'_>,
         shape: &BlockShape,
         ids: &ModelIds,
         max_options: u64,
@@ -299,8 +318,24 @@ impl BlockRecords {
             self.option_ends.push(total as u32);
         }
         let per = shape.code_bytes();
-        self.codes.reserve(total as usize * per);
-        for r in 0..sources {
+        let upto = match upto {
+            Upto::Sources(n) => n.min(sources),
+            Upto::Key(key) => {
+                let r = self.lower_bound(key);
+                if r < sources && self.key(r) == key {
+                    r + 1
+                } else {
+                    0
+                }
+            }
+        };
+        let wanted = if upto == 0 {
+            0
+        } else {
+            self.option_ends[upto - 1] as usize
+        };
+        self.codes.reserve(wanted * per);
+        for r in 0..upto {
             let range = self.options(r);
             let n = range.len();
             for (j, k) in range.enumerate() {
@@ -344,7 +379,8 @@ impl BlockRecords {
                 }
             }
         }
-        if !src.finished() {
+        self.with_options = upto;
+        if upto == sources && !src.finished() {
             return Err("the block's end");
         }
         Ok(())
@@ -412,6 +448,7 @@ mod tests {
             }
             b.option_ends.push(b.targets.len() as u32);
         }
+        b.with_options = 4;
         let shape = BlockShape {
             widths: vec![1, 1, 2],
             alignment: true,
@@ -430,6 +467,7 @@ mod tests {
         back.decode(
             b.key(0),
             4,
+            Upto::Sources(4),
             &shape,
             &ids,
             100,
@@ -446,8 +484,30 @@ mod tests {
         let mut coded = Vec::new();
         sink.finish(&mut coded);
         let mut src = RansSource::new(&models, &coded).unwrap();
-        back.decode(b.key(0), 4, &shape, &ids, 100, &mut src)
+        back.decode(b.key(0), 4, Upto::Sources(4), &shape, &ids, 100, &mut src)
             .unwrap();
         assert_eq!(format!("{back:?}"), format!("{b:?}"));
+        // Keys alone, then the options of the first two sources: a prefix of the full decode.
+        for (how, upto) in [
+            (Upto::Sources(0), 0),
+            (Upto::Sources(2), 2),
+            (Upto::Key(b"el barco"), 2),
+            (Upto::Key(b"el barc"), 0),
+        ] {
+            let mut part = BlockRecords::default();
+            let mut src = RansSource::new(&models, &coded).unwrap();
+            part.decode(b.key(0), 4, how, &shape, &ids, 100, &mut src)
+                .unwrap();
+            assert_eq!(part.key_bytes, b.key_bytes);
+            assert_eq!(part.option_ends, b.option_ends);
+            assert_eq!(part.with_options, upto);
+            let n = if upto == 0 {
+                0
+            } else {
+                b.option_ends[upto - 1] as usize
+            };
+            assert_eq!(part.targets, b.targets[..n]);
+            assert_eq!(part.codes, b.codes[..n * 4]);
+        }
     }
 }

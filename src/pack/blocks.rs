@@ -6,7 +6,7 @@ use std::io::{BufReader, BufWriter, Read, Write};
 use std::path::Path;
 
 use crate::error::{Error, Result};
-use crate::format::block::{BlockRecords, BlockShape, ModelIds, COMPONENTS};
+use crate::format::block::{BlockRecords, BlockShape, ModelIds, Upto, COMPONENTS};
 use crate::format::coder::{Models, PlainSink, PlainSource, RansSink, SymbolSink};
 use crate::format::sections::push_block_entry;
 
@@ -133,6 +133,7 @@ pub(super) fn code_blocks(
             .decode(
                 first_key,
                 n as usize,
+                Upto::Sources(n as usize),
                 shape,
                 &ids,
                 u64::MAX,

@@ -1,19 +1,31 @@
-//! A small cache of decoded blocks and target groups, bounded in bytes.
+//! A small cache of decoded blocks, target groups and options, bounded in bytes.
 //!
-//! Direct-mapped: item `i` may only sit in slot `i % slots`, and a newcomer replaces the slot's
-//! occupant unless the occupant is over eight times its size (big items, such as the hundreds
-//! of options of a frequent word, cost the most to decode again). An item is admitted only while the bytes held stay within the budget, so the
-//! cache never holds more than `budget` bytes of items (plus its slot array).
+//! Four-way set-associative: item `i` may sit in any of the four slots of set `i % sets`. A
+//! newcomer takes a free slot of its set, else the slot of an occupant not used since the clock
+//! hand last passed, else the smallest occupant unless that one is over eight times the
+//! newcomer's size (big items, such as the hundreds of options of a frequent word, cost the most
+//! to decode again). When a newcomer would take the bytes held past the budget, a clock hand
+//! sweeps the slots and lets occupants go until it fits, sparing once those used since it last
+//! passed (at most two sweeps). So the cache never holds more than `budget` bytes of items (plus
+//! its slot array) and keeps taking new items once full.
 
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::{Arc, Mutex};
 
-/// Slot of one item: its number, the item and the bytes charged for it.
-type Slot<T> = Mutex<Option<(usize, Arc<T>, usize)>>;
+/// Slots per set.
+const WAYS: usize = 4;
+
+/// An occupant: its item number, the item, the bytes charged for it and whether it was used
+/// since the clock hand last passed.
+type Entry<T> = (usize, Arc<T>, usize, bool);
+
+/// One set of slots.
+type Set<T> = Mutex<[Option<Entry<T>>; WAYS]>;
 
 pub(super) struct Cache<T> {
-    slots: Box<[Slot<T>]>,
+    sets: Box<[Set<T>]>,
     held: AtomicUsize,
+    hand: AtomicUsize,
     budget: usize,
 }
 
@@ -23,38 +35,81 @@ impl<T> Cache<T> {
     pub(super) fn new(budget: usize, items: usize, max_slots: usize) -> Cache<T> {
         let slots = if budget == 0 { 0 } else { items.min(max_slots) };
         Cache {
-            slots: (0..slots).map(|_| Mutex::new(None)).collect(),
+            sets: (0..slots.div_ceil(WAYS))
+                .map(|_| Mutex::new([None, None, None, None]))
+                .collect(),
             held: AtomicUsize::new(0),
+            hand: AtomicUsize::new(0),
             budget,
         }
     }
 
     #[inline]
     pub(super) fn get(&self, item: usize) -> Option<Arc<T>> {
-        if self.slots.is_empty() {
+        if self.sets.is_empty() {
             return None;
         }
-        let slot = self.slots[item % self.slots.len()].lock().ok()?;
-        match slot.as_ref() {
-            Some((i, value, _)) if *i == item => Some(value.clone()),
-            _ => None,
-        }
+        let mut set = self.sets[item % self.sets.len()].lock().ok()?;
+        set.iter_mut().flatten().find(|e| e.0 == item).map(|e| {
+            e.3 = true;
+            e.1.clone()
+        })
     }
 
-    /// Whether an item of `bytes` could be admitted now (to skip preparing one that cannot).
+    /// Whether an item of `bytes` could be admitted (to skip preparing one that cannot).
     pub(super) fn admits(&self, bytes: usize) -> bool {
-        !self.slots.is_empty() && self.held.load(Ordering::Relaxed) + bytes <= self.budget
+        !self.sets.is_empty() && bytes <= self.budget / 4
+    }
+
+    /// Lets occupants of sets other than `keep` go, in clock order, until `bytes` more fit.
+    fn make_room(&self, bytes: usize, keep: usize) {
+        let n = self.sets.len();
+        for _ in 0..2 * n {
+            if self.held.load(Ordering::Relaxed) + bytes <= self.budget {
+                return;
+            }
+            let at = self.hand.fetch_add(1, Ordering::Relaxed) % n;
+            if at == keep {
+                continue;
+            }
+            if let Ok(mut set) = self.sets[at].try_lock() {
+                for way in set.iter_mut() {
+                    match way {
+                        Some(e) if e.3 => e.3 = false,
+                        Some(e) => {
+                            self.held.fetch_sub(e.2, Ordering::Relaxed);
+                            *way = None;
+                        }
+                        None => {}
+                    }
+                }
+            }
+        }
     }
 
     pub(super) fn insert(&self, item: usize, value: Arc<T>, bytes: usize) {
-        if self.slots.is_empty() {
+        if self.sets.is_empty() || bytes > self.budget / 4 {
             return;
         }
-        let Ok(mut slot) = self.slots[item % self.slots.len()].lock() else {
+        let at = item % self.sets.len();
+        self.make_room(bytes, at);
+        let Ok(mut set) = self.sets[at].lock() else {
             return;
         };
-        let freed = slot.as_ref().map_or(0, |(_, _, b)| *b);
-        if bytes < freed / 8 {
+        // The item itself (a fuller decoding of it), a free slot, an unused occupant, or the
+        // smallest occupant.
+        let way = set
+            .iter()
+            .position(|w| w.as_ref().is_some_and(|e| e.0 == item))
+            .or_else(|| set.iter().position(Option::is_none))
+            .or_else(|| set.iter().position(|w| w.as_ref().is_some_and(|e| !e.3)))
+            .unwrap_or_else(|| {
+                (0..WAYS)
+                    .min_by_key(|&w| set[w].as_ref().map_or(0, |e| e.2))
+                    .expect("a set has slots")
+            });
+        let freed = set[way].as_ref().map_or(0, |e| e.2);
+        if set[way].as_ref().is_some_and(|e| e.0 != item) && bytes < freed / 8 {
             // Keep the bigger occupant: it took far more decoding than the newcomer.
             return;
         }
@@ -64,6 +119,30 @@ impl<T> Cache<T> {
         }
         self.held.fetch_add(bytes, Ordering::Relaxed);
         self.held.fetch_sub(freed, Ordering::Relaxed);
-        *slot = Some((item, value, bytes));
+        set[way] = Some((item, value, bytes, false));
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn stays_within_its_budget_and_keeps_taking_items() {
+        let cache: Cache<u32> = Cache::new(1000, 1 << 20, 64);
+        for i in 0..10_000 {
+            cache.insert(i, Arc::new(i as u32), 100);
+            assert!(cache.held.load(Ordering::Relaxed) <= 1000);
+            assert_eq!(cache.get(i).as_deref(), Some(&(i as u32)));
+        }
+        // An item used since the hand passed survives a stream of newcomers longer than one
+        // that was not.
+        let cache: Cache<u32> = Cache::new(1000, 1 << 20, 64);
+        cache.insert(0, Arc::new(0), 100);
+        for i in 1..9 {
+            cache.insert(i * 16, Arc::new(1), 100);
+            cache.get(0);
+        }
+        assert!(cache.get(0).is_some());
     }
 }

@@ -21,7 +21,7 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 use crate::error::{Error, Result};
-use crate::format::block::{decode_target, BlockRecords, BlockShape, ModelIds};
+use crate::format::block::{decode_target, BlockRecords, BlockShape, ModelIds, Upto};
 use crate::format::coder::{Models, PlainSource, RansSource, SymbolSource};
 use crate::format::sections::{self as layout, Codec, Vocabulary};
 use crate::format::{self, Compression, Meta, SectionEntry, SectionKind};
@@ -94,12 +94,12 @@ impl Group {
 #[derive(Clone, Debug)]
 pub struct ReadOptions {
     /// Bytes of decoded data kept for reuse: half for the options of recently used sources, a
-    /// third for decoded blocks, a sixth for decoded target groups; 0 turns caching off.
+    /// quarter each for decoded blocks and decoded target groups; 0 turns caching off.
     pub cache_bytes: usize,
 }
 
-/// Default size of the decoded-data cache (10 MiB; see [`ReadOptions::cache_bytes`]).
-pub const DEFAULT_CACHE_BYTES: usize = 10 << 20;
+/// Default size of the decoded-data cache (8 MiB; see [`ReadOptions::cache_bytes`]).
+pub const DEFAULT_CACHE_BYTES: usize = 8 << 20;
 
 impl Default for ReadOptions {
     fn default() -> ReadOptions {
@@ -289,7 +289,7 @@ impl Table {
             counts: meta.counts.len(),
         };
         let budget = options.cache_bytes;
-        let (options_bytes, block_bytes) = (budget / 2, budget / 3);
+        let (options_bytes, block_bytes) = (budget / 2, budget / 4);
         Ok(Table {
             path,
             shared_schema: Arc::new(header.schema.clone()),
@@ -307,13 +307,13 @@ impl Table {
             target_index,
             targets,
             n_groups: n_groups as usize,
-            block_cache: Cache::new(block_bytes, n_blocks as usize, 1 << 14),
+            block_cache: Cache::new(block_bytes, n_blocks as usize, 1 << 13),
             group_cache: Cache::new(
                 budget - options_bytes - block_bytes,
                 n_groups as usize,
                 1 << 13,
             ),
-            options_cache: Cache::new(options_bytes, meta.sources as usize, 1 << 16),
+            options_cache: Cache::new(options_bytes, meta.sources as usize, 1 << 14),
             storage,
             meta,
         })
@@ -395,16 +395,15 @@ impl Table {
         let slot = key_hash(key);
         if let Some(hit) = self.options_cache.get(slot) {
             if *hit.0 == *key {
-                options.copy_from(&hit.1);
+                options.share(&hit.1);
                 return Ok(true);
             }
         }
         let Some(b) = self.find_block(key) else {
             return Ok(false);
         };
-        let block = self.block(b)?;
-        let r = block.lower_bound(key);
-        if r < block.sources() && block.key(r) == key {
+        let (block, found) = self.block_for_key(b, key)?;
+        if let Some(r) = found {
             self.fill(&block, r, options)?;
             self.offer_options(slot, key, options);
             return Ok(true);
@@ -462,10 +461,11 @@ impl Table {
                     let mut options = Options::default();
                     let slot = key_hash(&key);
                     match self.options_cache.get(slot) {
-                        Some(hit) if *hit.0 == *key => options.copy_from(&hit.1),
+                        Some(hit) if *hit.0 == *key => options.share(&hit.1),
                         _ => {
-                            self.fill(block, at.rank, &mut options)?;
-                            self.offer_options(slot, &key, &options);
+                            let full = self.block_with(*b, at.rank + 1)?;
+                            self.fill(&full, at.rank, &mut options)?;
+                            self.offer_options(slot, &key, &mut options);
                         }
                     }
                     out.push(Span {
@@ -586,21 +586,57 @@ impl Table {
         (self.meta.sources - b as u64 * per).min(per) as usize
     }
 
-    /// Block `b`, decoded (from the cache, or decoded and offered to it).
+    /// Block `b` with at least its keys decoded (from the cache, or decoded and offered to it).
     fn block(&self, b: usize) -> Result<Arc<BlockRecords>> {
+        self.block_with(b, 0)
+    }
+
+    /// Block `b` with its keys and the options of its first `upto` sources decoded. A block
+    /// is decoded only as far as asked, and again further when more is asked of it.
+    fn block_with(&self, b: usize, upto: usize) -> Result<Arc<BlockRecords>> {
         if let Some(hit) = self.block_cache.get(b) {
-            return Ok(hit);
+            if hit.with_options >= upto {
+                return Ok(hit);
+            }
         }
+        self.decode_and_offer(b, Upto::Sources(upto))
+    }
+
+    /// Block `b` decoded as far as `upto` asks, offered to the cache.
+    fn decode_and_offer(&self, b: usize, upto: Upto<'_>) -> Result<Arc<BlockRecords>> {
         let mut records = BlockRecords::default();
-        self.decode_block(b, &mut records)?;
+        self.decode_block_upto(b, upto, &mut records)?;
         let records = Arc::new(records);
         self.block_cache
             .insert(b, records.clone(), records.heap_bytes());
         Ok(records)
     }
 
-    /// Checks block `b`'s checksum and decodes it into `out`.
+    /// Block `b` with the options of the source equal to `key` decoded, and that source's
+    /// rank, if the block holds it: one pass over the block's stream when it is not cached.
+    fn block_for_key(&self, b: usize, key: &[u8]) -> Result<(Arc<BlockRecords>, Option<usize>)> {
+        let block = match self.block_cache.get(b) {
+            Some(hit) => hit,
+            None => self.decode_and_offer(b, Upto::Key(key))?,
+        };
+        let r = block.lower_bound(key);
+        if r < block.sources() && block.key(r) == key {
+            if block.with_options > r {
+                return Ok((block, Some(r)));
+            }
+            return Ok((self.block_with(b, r + 1)?, Some(r)));
+        }
+        Ok((block, None))
+    }
+
+    /// Checks block `b`'s checksum and decodes it into `out` (all of it).
     fn decode_block(&self, b: usize, out: &mut BlockRecords) -> Result<()> {
+        self.decode_block_upto(b, Upto::Sources(usize::MAX), out)
+    }
+
+    /// Checks block `b`'s checksum and decodes its keys and the options of its first `upto`
+    /// sources into `out`.
+    fn decode_block_upto(&self, b: usize, upto: Upto<'_>, out: &mut BlockRecords) -> Result<()> {
         let data = self.data();
         let e = layout::block_entry(&data[self.block_index.clone()], b);
         let stored = &data[self.blocks.start + e.range.start..self.blocks.start + e.range.end];
@@ -611,14 +647,21 @@ impl Table {
         let n = self.sources_in_block(b);
         let result = match &self.models {
             Some(m) => match RansSource::new(m, stored) {
-                Some(mut src) => {
-                    out.decode(first, n, &self.shape, &self.ids, self.meta.pairs, &mut src)
-                }
+                Some(mut src) => out.decode(
+                    first,
+                    n,
+                    upto,
+                    &self.shape,
+                    &self.ids,
+                    self.meta.pairs,
+                    &mut src,
+                ),
                 None => Err("its coder state"),
             },
             None => out.decode(
                 first,
                 n,
+                upto,
                 &self.shape,
                 &self.ids,
                 self.meta.pairs,
@@ -628,18 +671,23 @@ impl Table {
         result.map_err(|what| self.corrupt(format!("block {b} is malformed: {what}")))
     }
 
-    /// Target group `g`, decoded (from the cache, or decoded and offered to it).
-    fn group(&self, g: usize) -> Result<Arc<Group>> {
+    /// Target group `g` with at least its first `upto` targets decoded (from the cache, or
+    /// decoded and offered to it).
+    fn group(&self, g: usize, upto: usize) -> Result<Arc<Group>> {
         if let Some(hit) = self.group_cache.get(g) {
-            return Ok(hit);
+            if hit.ends.len() >= upto {
+                return Ok(hit);
+            }
         }
-        let group = Arc::new(self.decode_group(g)?);
+        let group = Arc::new(self.decode_group(g, upto)?);
         let bytes = 4 * (group.ids.len() + group.ends.len()) + 64;
         self.group_cache.insert(g, group.clone(), bytes);
         Ok(group)
     }
 
-    fn decode_group(&self, g: usize) -> Result<Group> {
+    /// Checks group `g`'s checksum and decodes its first `upto` targets (all of them, and a
+    /// check that the stream ends where it should, when `upto` covers the group).
+    fn decode_group(&self, g: usize, upto: usize) -> Result<Group> {
         if g >= self.n_groups {
             return Err(self.corrupt(format!(
                 "target group {g} is outside the {} groups",
@@ -653,8 +701,12 @@ impl Table {
             return Err(self.corrupt(format!("target group {g} fails its checksum")));
         }
         let per = u64::from(self.meta.targets_per_group);
-        let n = (self.meta.targets - g as u64 * per).min(per) as usize;
-        let mut group = Group::default();
+        let all = (self.meta.targets - g as u64 * per).min(per) as usize;
+        let n = all.min(upto);
+        let mut group = Group {
+            ids: Vec::with_capacity(n * 4),
+            ends: Vec::with_capacity(n),
+        };
         let vocabulary = self.vocabulary.len() as u64;
         let run = |src: &mut dyn FnMut(&mut Vec<u32>) -> Result<usize, &'static str>,
                    group: &mut Group|
@@ -671,7 +723,11 @@ impl Table {
                     &mut |out| decode_target(&mut s, vocabulary, out),
                     &mut group,
                 )
-                .and_then(|()| s.finished().then_some(()).ok_or("the group's end")),
+                .and_then(|()| {
+                    (n < all || s.finished())
+                        .then_some(())
+                        .ok_or("the group's end")
+                }),
                 None => Err("its coder state"),
             },
             None => {
@@ -680,7 +736,11 @@ impl Table {
                     &mut |out| decode_target(&mut s, vocabulary, out),
                     &mut group,
                 )
-                .and_then(|()| s.finished().then_some(()).ok_or("the group's end"))
+                .and_then(|()| {
+                    (n < all || s.finished())
+                        .then_some(())
+                        .ok_or("the group's end")
+                })
             }
         };
         result.map_err(|what| self.corrupt(format!("target group {g} is malformed: {what}")))?;
@@ -688,7 +748,8 @@ impl Table {
     }
 
     /// Offers a source's decoded options to the cache of recently used sources.
-    fn offer_options(&self, slot: usize, key: &[u8], options: &Options) {
+    fn offer_options(&self, slot: usize, key: &[u8], options: &mut Options) {
+        options.shrink();
         let bytes = key.len() + options.heap_bytes();
         if self.options_cache.admits(bytes) {
             let entry = Arc::new((Box::from(key), options.clone()));
@@ -698,11 +759,16 @@ impl Table {
 
     /// Fills `out` with the options of source `r` of `block`.
     fn fill(&self, block: &BlockRecords, r: usize, out: &mut Options) -> Result<()> {
-        out.clear();
-        out.set_schema(&self.shared_schema);
+        let out = out.clear_for_fill(&self.shared_schema);
+        let n = block.options(r).len();
+        out.ends.reserve_exact(n);
+        out.id_ends.reserve_exact(n);
+        out.scores.reserve_exact(n * self.codecs.len());
+        out.counts.reserve_exact(n * self.shape.counts);
         let per = self.meta.targets_per_group as usize;
         let code_bytes = self.shape.code_bytes();
         let mut cached: Option<(usize, Arc<Group>)> = None;
+        debug_assert!(r < block.with_options, "the block's options were decoded");
         for k in block.options(r) {
             let t = block.targets[k] as usize;
             if t as u64 >= self.meta.targets {
@@ -711,16 +777,16 @@ impl Table {
                     self.meta.targets
                 )));
             }
-            let g = t / per;
+            let (g, i) = (t / per, t % per);
             let group = match &cached {
-                Some((cg, grp)) if *cg == g => grp.clone(),
+                Some((cg, grp)) if *cg == g && grp.ends.len() > i => grp.clone(),
                 _ => {
-                    let grp = self.group(g)?;
+                    let grp = self.group(g, i + 1)?;
                     cached = Some((g, grp.clone()));
                     grp
                 }
             };
-            let words = group.target(t % per);
+            let words = group.target(i);
             for (i, &w) in words.iter().enumerate() {
                 if i > 0 {
                     out.text.push(' ');

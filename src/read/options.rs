@@ -7,10 +7,18 @@ use crate::table::{CountColumn, Schema};
 /// The options of one source phrase, in stored order (see the metadata's `option_order`).
 ///
 /// All options share a few buffers (target text, word ids, scores), so decoding allocates
-/// nothing per option, and reusing an `Options` with [`crate::Table::lookup_into`] allocates
-/// nothing at all once its buffers have grown.
+/// nothing per option. The buffers sit behind a shared pointer: the reader's cache of recently
+/// used sources hands out the same buffers again without copying them, so cloning an
+/// `Options` is cheap, and reusing one with [`crate::Table::lookup_into`] allocates nothing
+/// once its buffers have grown (unless they are shared with the cache).
 #[derive(Clone, Debug, Default)]
 pub struct Options {
+    pub(super) body: Arc<Body>,
+}
+
+/// The buffers of [`Options`].
+#[derive(Clone, Debug, Default)]
+pub(super) struct Body {
     schema: Option<Arc<Schema>>,
     pub(super) text: String,
     pub(super) ends: Vec<u32>,
@@ -25,31 +33,83 @@ pub struct Options {
 impl Options {
     /// The number of options.
     pub fn len(&self) -> usize {
-        self.ends.len()
+        self.body.ends.len()
     }
 
     /// Whether there are none (the phrase was not found).
     pub fn is_empty(&self) -> bool {
-        self.ends.is_empty()
+        self.body.ends.is_empty()
     }
 
     /// Option `i`, best first.
     pub fn get(&self, i: usize) -> Option<TranslationOption<'_>> {
         (i < self.len()).then_some(TranslationOption {
-            options: self,
+            options: &self.body,
             index: i,
         })
     }
 
     /// Every option in stored order.
     pub fn iter(&self) -> impl ExactSizeIterator<Item = TranslationOption<'_>> {
+        let body = &*self.body;
         (0..self.len()).map(move |index| TranslationOption {
-            options: self,
+            options: body,
             index,
         })
     }
 
+    /// Empties the options and returns their buffers for filling: the same buffers when no one
+    /// else holds them, fresh ones when the cache shares them (nothing is copied).
+    pub(super) fn clear_for_fill(&mut self, schema: &Arc<Schema>) -> &mut Body {
+        if Arc::get_mut(&mut self.body).is_none() {
+            self.body = Arc::new(Body::default());
+        }
+        let body = Arc::get_mut(&mut self.body).expect("unique after replacement");
+        body.clear();
+        if body.schema.as_ref().is_none_or(|s| !Arc::ptr_eq(s, schema)) {
+            body.schema = Some(schema.clone());
+        }
+        body
+    }
+
+    /// Empties the options (shared buffers are let go, not cleared).
     pub(super) fn clear(&mut self) {
+        match Arc::get_mut(&mut self.body) {
+            Some(body) => body.clear(),
+            None => self.body = Arc::new(Body::default()),
+        }
+    }
+
+    /// Makes `self` share `other`'s buffers (no copy).
+    pub(super) fn share(&mut self, other: &Options) {
+        self.body = other.body.clone();
+    }
+
+    /// Heap bytes held, by capacity (for cache accounting).
+    pub(super) fn heap_bytes(&self) -> usize {
+        let b = &*self.body;
+        b.text.capacity()
+            + 4 * (b.ends.capacity()
+                + b.ids.capacity()
+                + b.id_ends.capacity()
+                + b.link_ends.capacity())
+            + 8 * (b.scores.capacity() + b.counts.capacity())
+            + 4 * b.links.capacity()
+            + 192
+    }
+
+    /// Drops the spare capacity of the two buffers whose size is not known in advance (before
+    /// the buffers go into a cache).
+    pub(super) fn shrink(&mut self) {
+        if let Some(b) = Arc::get_mut(&mut self.body) {
+            b.text.shrink_to_fit();
+            b.ids.shrink_to_fit();
+        }
+    }
+}
+
+impl Body {
+    fn clear(&mut self) {
         self.text.clear();
         self.ends.clear();
         self.ids.clear();
@@ -58,35 +118,6 @@ impl Options {
         self.counts.clear();
         self.links.clear();
         self.link_ends.clear();
-    }
-
-    /// Makes `self` a copy of `other`, reusing `self`'s buffers.
-    pub(super) fn copy_from(&mut self, other: &Options) {
-        self.schema.clone_from(&other.schema);
-        self.text.clear();
-        self.text.push_str(&other.text);
-        copy(&mut self.ends, &other.ends);
-        copy(&mut self.ids, &other.ids);
-        copy(&mut self.id_ends, &other.id_ends);
-        copy(&mut self.scores, &other.scores);
-        copy(&mut self.counts, &other.counts);
-        copy(&mut self.links, &other.links);
-        copy(&mut self.link_ends, &other.link_ends);
-    }
-
-    /// Heap bytes held (for cache accounting).
-    pub(super) fn heap_bytes(&self) -> usize {
-        self.text.len()
-            + 4 * (self.ends.len() + self.ids.len() + self.id_ends.len() + self.link_ends.len())
-            + 8 * (self.scores.len() + self.counts.len())
-            + 4 * self.links.len()
-            + 128
-    }
-
-    pub(super) fn set_schema(&mut self, schema: &Arc<Schema>) {
-        if self.schema.as_ref().is_none_or(|s| !Arc::ptr_eq(s, schema)) {
-            self.schema = Some(schema.clone());
-        }
     }
 
     fn n_scores(&self) -> usize {
@@ -98,15 +129,10 @@ impl Options {
     }
 }
 
-fn copy<T: Copy>(to: &mut Vec<T>, from: &[T]) {
-    to.clear();
-    to.extend_from_slice(from);
-}
-
 /// One translation option: a target phrase with its scores, counts and alignment.
 #[derive(Clone, Copy, Debug)]
 pub struct TranslationOption<'a> {
-    options: &'a Options,
+    options: &'a Body,
     index: usize,
 }
 
