@@ -50,6 +50,17 @@ pub enum Error {
     /// An operation's preconditions are not met by otherwise valid input
     /// (e.g. a significance filter on a table without sentence-level counts).
     Unsupported(String),
+    /// A file an earlier step of baler wrote and a later step reads (a count run, a tally, a
+    /// phrase index of the extraction's map/reduce steps) fails its header, checksum or record
+    /// checks.
+    DamagedIntermediate {
+        /// The file.
+        path: PathBuf,
+        /// What it should hold, e.g. "count run".
+        what: String,
+        /// Which check failed.
+        reason: String,
+    },
     /// A temporary file this run wrote itself (a sort run, a spooled input) no longer reads
     /// back as written: the disk or another process changed it.
     DamagedTemporary {
@@ -93,6 +104,19 @@ impl Error {
     pub fn corrupt(path: impl Into<PathBuf>, reason: impl Into<String>) -> Error {
         Error::Corrupt {
             path: path.into(),
+            reason: reason.into(),
+        }
+    }
+
+    /// Shorthand for an [`Error::DamagedIntermediate`].
+    pub fn damaged_intermediate(
+        path: impl Into<PathBuf>,
+        what: impl Into<String>,
+        reason: impl Into<String>,
+    ) -> Error {
+        Error::DamagedIntermediate {
+            path: path.into(),
+            what: what.into(),
             reason: reason.into(),
         }
     }
@@ -150,6 +174,11 @@ impl fmt::Display for Error {
             }
             Error::InvalidArgument { option, reason } => write!(f, "invalid {option}: {reason}"),
             Error::Unsupported(reason) => f.write_str(reason),
+            Error::DamagedIntermediate { path, what, reason } => write!(
+                f,
+                "{}: damaged or not a baler {what}: {reason}",
+                path.display()
+            ),
             Error::DamagedTemporary { what, reason } => {
                 write!(f, "a temporary {what} of this run is damaged: {reason}")
             }

@@ -23,10 +23,8 @@ pub(crate) fn open<T: DeserializeOwned>(
     version: u32,
     what: &str,
 ) -> Result<(FramedInput, T, impl Fn(&str) -> Error)> {
-    let shown = path.display().to_string();
-    let what = what.to_string();
-    let bad =
-        move |reason: &str| Error::Unsupported(format!("{shown}: not a baler {what}: {reason}"));
+    let (shown, what) = (path.to_path_buf(), what.to_string());
+    let bad = move |reason: &str| Error::damaged_intermediate(&shown, &what, reason);
     verify(path, &bad)?;
     let file = File::open(path).map_err(|e| Error::io(path, "opening", e))?;
     let decoder =

@@ -273,10 +273,7 @@ impl IndexReader {
     }
 
     fn damaged(&self, what: &str) -> Error {
-        Error::Unsupported(format!(
-            "{}: damaged phrase index: {what}",
-            self.path.display()
-        ))
+        Error::damaged_intermediate(&self.path, "phrase index", what)
     }
 
     fn number(&mut self) -> Result<u64> {

@@ -225,12 +225,7 @@ impl RunReader {
         if self.done {
             return Ok(false);
         }
-        let damaged = |reason: String| {
-            Error::Unsupported(format!(
-                "{}: damaged count run: {reason}",
-                self.path.display()
-            ))
-        };
+        let damaged = |reason: String| Error::damaged_intermediate(&self.path, "count run", reason);
         let len = read_varint(&mut self.input)
             .map_err(|e| damaged(e.to_string()))?
             .ok_or_else(|| damaged("missing end marker (truncated?)".into()))?;

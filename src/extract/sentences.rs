@@ -592,7 +592,7 @@ impl TallyReader {
     }
 
     fn damaged(&self, what: &str) -> Error {
-        Error::Unsupported(format!("{}: damaged tally: {what}", self.path.display()))
+        Error::damaged_intermediate(&self.path, "tally", what)
     }
 
     fn number(&mut self) -> Result<u64> {
