@@ -88,9 +88,9 @@ pub fn slot_empty(s: u64) -> bool {
     s & ((1 << OFFSET_BITS) - 1) == 0
 }
 
-/// Number of slots for `keys` keys: a power of two with at least a third of them empty.
+/// Number of slots for `keys` keys: a power of two with at least a quarter of them empty.
 pub fn slot_count(keys: u64) -> u64 {
-    (keys + keys / 2 + 1).next_power_of_two().max(2)
+    (keys + keys / 3 + 1).next_power_of_two().max(2)
 }
 
 /// Inserts a slot for a key of mixed hash `mixed` (slots: a power of two, not full).

@@ -365,10 +365,7 @@ pub struct Meta {
     pub max_block_bytes: u64,
     /// The layout: "compact" (written only when not compact, as 2.0 files have no such member)
     /// or "direct".
-    #[serde(
-        default = "compact_layout",
-        skip_serializing_if = "is_compact_layout"
-    )]
+    #[serde(default = "compact_layout", skip_serializing_if = "is_compact_layout")]
     pub layout: String,
     /// Coded bytes by component (keys, targets, target-refs, each score column, ...), as the
     /// writer measured them; for `baler inspect`.

@@ -350,7 +350,11 @@ where
     let raw_path = temp.path().join("blocks.plain");
     let raw_file = File::create(&raw_path).map_err(|e| Error::io(&raw_path, "creating", e))?;
     let mut direct = match options.layout {
-        Layout::Direct => Some(direct::DirectWriter::new(temp.path(), &shape, order_column)?),
+        Layout::Direct => Some(direct::DirectWriter::new(
+            temp.path(),
+            &shape,
+            order_column,
+        )?),
         Layout::Compact => None,
     };
     let mut writer = SourceWriter {

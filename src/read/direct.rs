@@ -171,10 +171,7 @@ impl Shared {
         let bit = self.first_chunk[part as usize] + c;
         let sums = &self.storage.bytes()[self.sums.clone()];
         if crc32fast::hash(chunk) != LE::read_u32(&sums[4 * bit..]) {
-            return Err(self.corrupt(format!(
-                "{} chunk {c} fails its checksum",
-                part.name()
-            )));
+            return Err(self.corrupt(format!("{} chunk {c} fails its checksum", part.name())));
         }
         if part == Part::Text && !layout::text_chunk_is_utf8(bytes, c) {
             return Err(self.corrupt(format!("text chunk {c} is not UTF-8")));
@@ -288,10 +285,7 @@ impl Shared {
         };
         let decoded = if self.with_extras {
             Some(view.decode_checked().map_err(|what| {
-                self.corrupt(format!(
-                    "the record at {} has malformed {what}",
-                    r.start
-                ))
+                self.corrupt(format!("the record at {} has malformed {what}", r.start))
             })?)
         } else {
             None
@@ -439,9 +433,9 @@ impl Shared {
             let key = self.key_of(&r);
             let found = self.find(layout::hash_key(key), key)?;
             let Some((f, continues)) = found.filter(|(f, _)| f.key == r.key) else {
-                return Err(self.corrupt(format!(
-                    "the hash does not lead to the record at {offset}"
-                )));
+                return Err(
+                    self.corrupt(format!("the hash does not lead to the record at {offset}"))
+                );
             };
             let _ = f;
             let expected = prefixes.contains(key);
@@ -480,10 +474,7 @@ impl Cursor {
         }
         let key = s.key_of(&r);
         if self.done > 0 && key <= self.previous.as_slice() {
-            return Err(s.corrupt(format!(
-                "the source at {} is out of order",
-                self.offset
-            )));
+            return Err(s.corrupt(format!("the source at {} is out of order", self.offset)));
         }
         self.previous.clear();
         self.previous.extend_from_slice(key);
@@ -544,14 +535,31 @@ impl View {
         }
     }
 
-    /// The target text of option `i` (checked as UTF-8 with its chunk, on character
-    /// boundaries when the options were read).
+    /// Byte range of option `i`'s target in [`View::text`].
     #[inline]
-    pub(super) fn target(&self, i: usize) -> &str {
+    pub(super) fn range(&self, i: usize) -> Range<usize> {
         let data = self.shared.storage.bytes();
         let start = if i == 0 { 0 } else { self.end(data, i - 1) };
-        let end = self.end(data, i);
-        std::str::from_utf8(&data[self.text + start..self.text + end]).unwrap_or("")
+        start..self.end(data, i)
+    }
+
+    /// The text of every option, copied out of the file (checked as UTF-8 with its chunks,
+    /// its ends on character boundaries when the options were read).
+    pub(super) fn text(&self) -> Box<str> {
+        let data = self.shared.storage.bytes();
+        let len = if self.n == 0 {
+            0
+        } else {
+            self.end(data, self.n - 1)
+        };
+        Box::from(std::str::from_utf8(&data[self.text..self.text + len]).unwrap_or(""))
+    }
+
+    /// The target text of option `i`.
+    pub(super) fn target(&self, i: usize) -> &str {
+        let data = self.shared.storage.bytes();
+        let r = self.range(i);
+        std::str::from_utf8(&data[self.text + r.start..self.text + r.end]).unwrap_or("")
     }
 
     /// Score column `c` of option `i`.
@@ -584,8 +592,10 @@ impl View {
             b.ends.push(b.text.len() as u32);
             // A word missing from the vocabulary (possible only in a file that passes its
             // checksums without being written by baler; `verify` reports it) has no id.
-            b.ids
-                .extend(t.split(' ').map(|w| words.get(w).copied().unwrap_or(u32::MAX)));
+            b.ids.extend(
+                t.split(' ')
+                    .map(|w| words.get(w).copied().unwrap_or(u32::MAX)),
+            );
             b.id_ends.push(b.ids.len() as u32);
             for c in 0..s.codecs.len() {
                 b.scores.push(self.score(i, c).unwrap_or(f64::NAN));

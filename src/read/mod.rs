@@ -422,6 +422,24 @@ impl Table {
     }
 
     /// The layout the table was packed in.
+    ///
+    /// # Examples
+    /// ```
+    /// # fn main() -> baler::Result<()> {
+    /// # let dir = tempfile::tempdir().unwrap();
+    /// # let path = dir.path().join("t.bale");
+    /// use baler::format::Layout;
+    /// let tsv = "source\ttarget\tp_t_given_s\nel barco\tthe boat\t0.7\nel barco\tthe ship\t0.3\n";
+    /// let options = baler::pack::PackOptions { layout: Layout::Direct, ..Default::default() };
+    /// baler::pack::pack_tsv(tsv.as_bytes(), "t.tsv", &path, &options)?;
+    /// let table = baler::Table::open(&path)?;
+    /// assert_eq!(table.layout(), Layout::Direct);
+    /// let found = table.lookup("el barco")?;
+    /// assert_eq!(found.get(1).unwrap().target(), "the ship");
+    /// let spans = table.spans(&["el", "barco", "rojo"], 7)?;
+    /// assert_eq!((spans.len(), spans[0].start, spans[0].end), (1, 0, 2));
+    /// # Ok(()) }
+    /// ```
     pub fn layout(&self) -> Layout {
         if self.direct.is_some() {
             Layout::Direct

@@ -17,16 +17,29 @@ use super::direct::View;
 /// Options of a table in the `direct` layout are read in place from the file: the target text
 /// is borrowed from it, a score is decoded when asked for, and the rest (word ids, all scores
 /// as a slice, counts, alignments) is decoded once, the first time it is asked for.
-#[derive(Clone, Debug, Default)]
+#[derive(Clone, Debug)]
 pub struct Options {
     pub(super) body: Arc<Body>,
     pub(super) view: Option<DirectOptions>,
+}
+
+impl Default for Options {
+    /// No options (allocates nothing: the empty buffers are shared).
+    fn default() -> Options {
+        Options {
+            body: empty_body(),
+            view: None,
+        }
+    }
 }
 
 /// A `direct` table's options, read in place, with their decoded form once asked for.
 #[derive(Clone, Debug)]
 pub(super) struct DirectOptions {
     pub(super) view: View,
+    /// The options' text, validated as a whole once (one pass over a run of bytes is far
+    /// cheaper than checking each short target on every call).
+    pub(super) text: OnceLock<Box<str>>,
     pub(super) decoded: OnceLock<Box<Body>>,
 }
 
@@ -89,6 +102,7 @@ impl Options {
             body: empty_body(),
             view: Some(DirectOptions {
                 view,
+                text: OnceLock::new(),
                 decoded: cell,
             }),
         }
@@ -114,7 +128,7 @@ impl Options {
         self.view = None;
         match Arc::get_mut(&mut self.body) {
             Some(body) => body.clear(),
-            None => self.body = Arc::new(Body::default()),
+            None => self.body = empty_body(),
         }
     }
 
@@ -214,7 +228,12 @@ impl<'a> TranslationOption<'a> {
     pub fn target(&self) -> &'a str {
         match self.of {
             Of::Body(b) => &b.text[range(&b.ends, self.index)],
-            Of::Direct(d) => d.view.target(self.index),
+            Of::Direct(d) => {
+                let text = d.text.get_or_init(|| d.view.text());
+                // The ends were checked to lie on character boundaries when the options were
+                // read, so `get` cannot fail.
+                text.get(d.view.range(self.index)).unwrap_or("")
+            }
         }
     }
 
