@@ -97,7 +97,7 @@ pub const LAYOUT: Setting = Setting {
     key: "layout",
     value_name: "KIND",
     help: "Layout of the packed file: compact (smallest) or direct (read in place, fastest \
-           lookups and spans, about 3x larger; block_sources, group_targets and compression \
+           lookups and spans, about 5x larger; block_sources, group_targets and compression \
            apply to compact only) [default: compact, or the input table's]",
     default: None,
 };
