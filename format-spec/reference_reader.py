@@ -1,10 +1,11 @@
 #!/usr/bin/env python3
-"""An independent reader of packed `.bale` tables (format 2.0), written from
-format-spec/bale-format.md.
+"""An independent reader of packed `.bale` tables (format 2.0 and 2.1, both layouts), written
+from format-spec/bale-format.md.
 
 Python 3 standard library only. It parses a packed file section by section, verifies every
-checksum (zlib.crc32 for the sections, the table, every source block and every target group),
-decodes every record (the rANS decoder included) and writes the table as interchange TSV, which
+checksum (zlib.crc32 for the sections, the table, every source block and every target group,
+every chunk of a direct table), decodes every record (the rANS decoder included; for a direct
+table also every hash slot and prefix flag) and writes the table as interchange TSV, which
 must equal `baler dump` byte for byte. Section numbers in comments refer to bale-format.md.
 
 Usage:
@@ -38,8 +39,18 @@ KINDS = {
     7: "block-index",
     8: "block-keys",
     9: "blocks",
+    10: "hash",
+    11: "records",
+    12: "text",
+    13: "chunks",
 }
-REQUIRED = {1, 2, 3, 5, 6, 7, 8, 9}
+REQUIRED = {
+    "compact": {1, 2, 3, 5, 6, 7, 8, 9},
+    "direct": {1, 2, 3, 10, 11, 12, 13},
+}
+CHUNKED = (6, 9, 10, 11, 12)  # checked block by block, group by group or chunk by chunk
+CHUNK = 4096
+M64 = (1 << 64) - 1
 COUNT_COLUMNS = ["count", "count_source", "count_target", "cooc", "df_source", "df_target"]
 FORMAT_NAME = "baler packed phrase table"
 
@@ -232,11 +243,17 @@ class Table:
         self.data = data
         self.read_header()
         self.read_metadata()
+        for kind in REQUIRED[self.layout]:
+            if kind not in self.sections:
+                fail(f"the {KINDS[kind]} section is missing")
         self.read_codebooks()
         self.read_models()
         self.read_vocabulary()
-        self.read_indexes()
-        self.read_targets()
+        if self.layout == "direct":
+            self.read_direct()
+        else:
+            self.read_indexes()
+            self.read_targets()
 
     # section 3 and 4
     def read_header(self):
@@ -272,7 +289,7 @@ class Table:
             if offset % 8 != 0:
                 fail(f"the {name} section does not start on an 8-byte boundary")
             body = d[offset : offset + length]
-            if zlib.crc32(body) != crc and kind not in (6, 9):
+            if zlib.crc32(body) != crc and kind not in CHUNKED:
                 fail(f"the {name} section fails its checksum")
             spans.append((offset, offset + length, name))
             if kind in KINDS:
@@ -281,9 +298,8 @@ class Table:
                 self.sections[kind] = body
             else:
                 self.unknown.append(kind)
-        for kind in REQUIRED:
-            if kind not in self.sections:
-                fail(f"the {KINDS[kind]} section is missing")
+        if 1 not in self.sections:
+            fail("the metadata section is missing")
         spans.sort()
         for (_, end, a), (start, _, b) in zip(spans, spans[1:]):
             if start < end:
@@ -331,6 +347,12 @@ class Table:
             fail(f"the metadata names the format {meta['format']!r}")
         if meta["block_compression"] not in ("rans", "none"):
             fail(f"unknown block coding {meta['block_compression']!r}")
+        # Section 5.1: `layout` is absent in 2.0 files (compact); "direct" needs version 2.1.
+        self.layout = meta.get("layout", "compact")
+        if self.layout not in REQUIRED:
+            fail(f"unknown layout {self.layout!r}")
+        if self.layout == "direct" and (self.minor < 1 or meta["block_compression"] != "none"):
+            fail("a direct table must be version 2.1 or later with block coding none")
         if meta["sources_per_block"] < 1 or meta["targets_per_group"] < 1:
             fail("zero sources per block or targets per group")
         pairs, sources, targets = meta["pairs"], meta["sources"], meta["targets"]
@@ -394,6 +416,8 @@ class Table:
         n = SCORE + len(self.meta["scores"]) * SCORE_CONTEXTS
         coding = self.meta["block_compression"]
         b = self.sections.get(4)
+        if self.layout == "direct" and b is not None:
+            fail("a models section is present in a direct table")
         if coding == "none":
             if b is not None:
                 fail("a models section is present but blocks are not coded")
@@ -444,6 +468,7 @@ class Table:
                 self.words.append(text[a:c].decode("utf-8"))
             except UnicodeDecodeError:
                 fail("a vocabulary word is not UTF-8")
+        self.word_set = set(self.words)
 
     # sections 5.5 and 5.6
     def read_indexes(self):
@@ -559,7 +584,151 @@ class Table:
             fail("a score code is outside its codebook")
         return values[code]
 
-    # section 8
+    # section 12
+    def read_direct(self):
+        s = self.sections
+        hashed, records, text, sums = s[10], s[11], s[12], s[13]
+        slots = len(hashed) // 8
+        if len(hashed) % 8 or slots < 2 or slots & (slots - 1):
+            fail(f"the hash section holds {len(hashed)} bytes, not a power of two of slots")
+        parts = (("hash", hashed), ("records", records), ("text", text))
+        total = sum(-(-len(body) // CHUNK) for _, body in parts)
+        if len(sums) != 4 * total:
+            fail(f"the chunks section holds {len(sums)} bytes; {total} chunks need {4 * total}")
+        at = 0
+        for name, body in parts:
+            for c in range(-(-len(body) // CHUNK)):
+                if zlib.crc32(body[c * CHUNK:(c + 1) * CHUNK]) != u32(sums, 4 * at):
+                    fail(f"{name} chunk {c} fails its checksum")
+                at += 1
+        try:
+            text.decode("utf-8")
+        except UnicodeDecodeError:
+            fail("the text section is not UTF-8")
+        self.slots = struct.unpack_from(f"<{slots}Q", hashed)
+
+    def direct_record(self, at):
+        """(start, key, n, ordinal, options, end) of the record at `at`; options: (target,
+        target word count, codes, links, counts)."""
+        records, text = self.sections[11], self.sections[12]
+        v = Varints(records, at, what="records")
+        key_len = v.next()
+        key = records[v.pos:v.pos + key_len]
+        if len(key) != key_len:
+            fail(f"the key of the record at {at} runs past the records")
+        v.pos += key_len
+        head = v.next()
+        n, wide = head >> 1, head & 1
+        if n == 0:
+            if wide:
+                fail(f"the record at {at} has a bad option count")
+            return at, key, 0, None, [], v.pos
+        ordinal, text_start = v.next(), v.next()
+        widths = [4 if values is None else width for width, values in self.codecs]
+        pos = v.pos
+        codes = []
+        for _ in range(n):
+            row = []
+            for w in widths:
+                if pos + w > len(records):
+                    fail(f"the record at {at} runs past the records")
+                row.append(int.from_bytes(records[pos:pos + w], "little"))
+                pos += w
+            codes.append(row)
+        ew = 4 if wide else 2
+        if pos + ew * n > len(records):
+            fail(f"the record at {at} runs past the records")
+        ends = [int.from_bytes(records[pos + ew * i:pos + ew * (i + 1)], "little") for i in range(n)]
+        pos += ew * n
+        links_of, counts_of = [[] for _ in range(n)], [[] for _ in range(n)]
+        if self.meta["alignment"] or self.meta["counts"]:
+            v = Varints(records, pos, what="records")
+            length = v.next()
+            v = Varints(records, v.pos, v.pos + length, what=f"extras of the record at {at}")
+            if v.end > len(records):
+                fail(f"the record at {at} runs past the records")
+            for i in range(n):
+                if self.meta["alignment"]:
+                    links_of[i] = [(v.next(), v.next()) for _ in range(v.next())]
+                counts_of[i] = [v.next() for _ in self.meta["counts"]]
+            if v.pos != v.end:
+                fail(f"the extras of the record at {at} have trailing bytes")
+            pos = v.end
+        options, previous = [], 0
+        for i in range(n):
+            if ends[i] < previous or text_start + ends[i] > len(text):
+                fail(f"the text ends of the record at {at} are out of order or place")
+            try:
+                target = text[text_start + previous:text_start + ends[i]].decode("utf-8")
+            except UnicodeDecodeError:
+                fail(f"a target of the record at {at} is not on character boundaries")
+            previous = ends[i]
+            options.append((target, target.count(" ") + 1, codes[i], links_of[i], counts_of[i]))
+        return at, key, n, ordinal, options, pos
+
+    @staticmethod
+    def key_hash(key):
+        h = 0xCBF29CE484222325
+        for b in key:
+            h = ((h ^ b) * 0x100000001B3) & M64
+        h = ((h ^ (h >> 31)) * 0x9E3779B97F4A7C15) & M64
+        return h ^ (h >> 32)
+
+    def direct_sources(self):
+        """Yields (where, source, options) of a direct table and checks its hash (section 12)."""
+        records, pos = self.sections[11], 0
+        keys, prefixes = [], set()
+        for i in range(self.meta["sources"]):
+            start, key, n, ordinal, options, pos = self.direct_record(pos)
+            if n == 0 or ordinal != i:
+                fail(f"the record at {start} is not source {i}")
+            keys.append((start, key))
+            for j, b in enumerate(key):
+                if b == 0x20:
+                    prefixes.add(key[:j])
+            try:
+                source = key.decode("utf-8")
+            except UnicodeDecodeError:
+                fail(f"the source phrase at {start} is not UTF-8")
+            yield f"the record at {start}", source, options
+        while pos < len(records):
+            start, key, n, _, _, pos = self.direct_record(pos)
+            if n != 0:
+                fail(f"the record at {start} has options but follows the last source")
+            if key not in prefixes:
+                fail(f"the prefix record at {start} is no source's first words")
+            keys.append((start, key))
+        mask = len(self.slots) - 1
+        if sum(1 for s in self.slots if s & ((1 << 40) - 1)) != len(keys):
+            fail("the hash does not hold exactly one slot per record")
+        for start, key in keys:
+            h = self.key_hash(key)
+            i = h & mask
+            for _ in range(len(self.slots)):
+                s = self.slots[i]
+                if s & ((1 << 40) - 1) == 0:
+                    fail(f"the hash does not lead to the record at {start}")
+                if (s & ((1 << 40) - 1)) - 1 == start:
+                    if s >> 41 != h >> 41:
+                        fail(f"the slot of the record at {start} has a wrong tag")
+                    if bool(s >> 40 & 1) != (key in prefixes):
+                        fail(f"the slot of the record at {start} has a wrong prefix flag")
+                    break
+                i = (i + 1) & mask
+
+    def compact_sources(self):
+        """Yields (where, source, options) of a compact table."""
+        for i in range(self.blocks):
+            for source, options in self.decode_block(i):
+                resolved = []
+                for ref, codes, links, counts in options:
+                    if ref >= len(self.targets):
+                        fail(f"block {i} refers to target {ref} of {len(self.targets)}")
+                    target, target_len = self.targets[ref]
+                    resolved.append((target, target_len, codes, links, counts))
+                yield f"block {i}", source, resolved
+
+    # section 9
     def dump(self, given, out):
         meta = self.meta
         for key, value in meta["table_metadata"]:
@@ -571,36 +740,38 @@ class Table:
         out.write(("\t".join(columns) + "\n").encode("utf-8"))
         by = meta["option_order"].get("by")
         order_column = meta["scores"].index(by) if by is not None else None
-        pairs, sources, last = 0, [], None
-        for i in range(self.blocks):
-            for source, options in self.decode_block(i):
-                if last is not None and source.encode("utf-8") <= last:
-                    fail(f"block {i}'s first key is out of order")
-                last = source.encode("utf-8")
-                sources.append(source)
-                source_len = source.count(" ") + 1
-                previous = None
-                for ref, codes, links, counts in options:
-                    if ref >= len(self.targets):
-                        fail(f"block {i} refers to target {ref} of {len(self.targets)}")
-                    target, target_len = self.targets[ref]
-                    scores = [self.value(c, code) for c, code in enumerate(codes)]
-                    if any(s >= source_len or t >= target_len for s, t in links):
-                        fail(f"the pair ({source!r}, {target!r}) has a link outside its phrases")
-                    if order_column is not None:
-                        if previous is not None and scores[order_column] > previous:
-                            fail(f"the options of {source!r} are not in {by} order")
-                        previous = scores[order_column]
-                    fields = [source, target]
-                    if meta["alignment"]:
-                        fields.append(" ".join(f"{s}-{t}" for s, t in links))
-                    fields += [format_score(v) for v in scores]
-                    fields += [str(c) for c in counts]
-                    out.write(("\t".join(fields) + "\n").encode("utf-8"))
-                    pairs += 1
+        pairs, sources, last, targets = 0, [], None, set()
+        walk = self.direct_sources() if self.layout == "direct" else self.compact_sources()
+        for where, source, options in walk:
+            if last is not None and source.encode("utf-8") <= last:
+                fail(f"{where}'s first key is out of order")
+            last = source.encode("utf-8")
+            sources.append(source)
+            source_len = source.count(" ") + 1
+            previous = None
+            for target, target_len, codes, links, counts in options:
+                targets.add(target)
+                if self.layout == "direct" and any(w not in self.word_set for w in target.split(" ")):
+                    fail(f"the target {target!r} has a word outside the vocabulary")
+                scores = [self.value(c, code) for c, code in enumerate(codes)]
+                if any(s >= source_len or t >= target_len for s, t in links):
+                    fail(f"the pair ({source!r}, {target!r}) has a link outside its phrases")
+                if order_column is not None:
+                    if previous is not None and scores[order_column] > previous:
+                        fail(f"the options of {source!r} are not in {by} order")
+                    previous = scores[order_column]
+                fields = [source, target]
+                if meta["alignment"]:
+                    fields.append(" ".join(f"{s}-{t}" for s, t in links))
+                fields += [format_score(v) for v in scores]
+                fields += [str(c) for c in counts]
+                out.write(("\t".join(fields) + "\n").encode("utf-8"))
+                pairs += 1
         if pairs != meta["pairs"] or len(sources) != meta["sources"]:
             fail(f"{pairs} pairs of {len(sources)} sources decoded, the metadata says "
                  f"{meta['pairs']} of {meta['sources']}")
+        if self.layout == "direct" and len(targets) != meta["targets"]:
+            fail(f"{len(targets)} distinct targets, the metadata says {meta['targets']}")
         if given is not None and given != sources:
             fail("the decoded source phrases differ from the given ones")
 
@@ -653,6 +824,8 @@ def main(argv):
         elif args.sources_from_tsv is not None:
             sources = sources_from_tsv(args.sources_from_tsv)
         if args.extract_block:
+            if table.layout != "compact":
+                fail("--extract-block: a direct table has no blocks")
             n = int(args.extract_block[0])
             if not 0 <= n < table.blocks:
                 fail(f"block {n} is outside the {table.blocks} blocks")

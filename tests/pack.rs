@@ -2,6 +2,7 @@
 
 use std::collections::BTreeMap;
 
+use baler::format::Layout;
 use baler::pack::{pack_tsv, PackOptions};
 use baler::table::{Header, PhrasePair, TsvWriter};
 use baler::Table;
@@ -173,6 +174,11 @@ proptest! {
     }
 
     #[test]
+    fn round_trip_direct(table in random_table(), bits in prop::option::of(1u8..=16)) {
+        check_round_trip(&table, &PackOptions { bits, layout: Layout::Direct, ..Default::default() });
+    }
+
+    #[test]
     fn round_trip_f32_uncompressed(table in random_table(), block in 1u32..5) {
         check_round_trip(&table, &PackOptions {
             bits: None,
@@ -182,10 +188,12 @@ proptest! {
         });
     }
 
-    /// Spans agree with looking up every sub-phrase one by one.
+    /// Spans agree with looking up every sub-phrase one by one, in either layout; both layouts
+    /// give the same spans.
     #[test]
-    fn spans_match_single_lookups(table in random_table(), sentence in prop::collection::vec(prop::sample::select(WORDS), 0..12)) {
-        let (_dir, packed) = pack(&table, &PackOptions::default());
+    fn spans_match_single_lookups(table in random_table(), sentence in prop::collection::vec(prop::sample::select(WORDS), 0..12), direct in any::<bool>()) {
+        let layout = if direct { Layout::Direct } else { Layout::Compact };
+        let (_dir, packed) = pack(&table, &PackOptions { layout, ..Default::default() });
         let spans = packed.spans(&sentence, 3).unwrap();
         let mut expected = Vec::new();
         for start in 0..sentence.len() {
@@ -198,7 +206,12 @@ proptest! {
             }
         }
         let got: Vec<_> = spans.iter().map(|s| (s.start, s.end, s.options.iter().map(|o| o.target().to_string()).collect::<Vec<_>>())).collect();
-        prop_assert_eq!(got, expected);
+        prop_assert_eq!(&got, &expected);
+        let other = if direct { Layout::Compact } else { Layout::Direct };
+        let (_dir2, packed2) = pack(&table, &PackOptions { layout: other, ..Default::default() });
+        let spans2 = packed2.spans(&sentence, 3).unwrap();
+        let got2: Vec<_> = spans2.iter().map(|s| (s.start, s.end, s.options.iter().map(|o| o.target().to_string()).collect::<Vec<_>>())).collect();
+        prop_assert_eq!(got2, expected);
     }
 }
 
@@ -212,10 +225,15 @@ struct Sample {
     data_end: usize,
 }
 
-fn sample() -> &'static Sample {
-    static SAMPLE: std::sync::OnceLock<Sample> = std::sync::OnceLock::new();
-    SAMPLE.get_or_init(|| {
-        let bytes = pack_sample();
+fn sample(layout: Layout) -> &'static Sample {
+    static COMPACT: std::sync::OnceLock<Sample> = std::sync::OnceLock::new();
+    static DIRECT: std::sync::OnceLock<Sample> = std::sync::OnceLock::new();
+    let cell = match layout {
+        Layout::Compact => &COMPACT,
+        Layout::Direct => &DIRECT,
+    };
+    cell.get_or_init(|| {
+        let bytes = pack_sample(layout);
         let table = Table::from_bytes(bytes.clone()).unwrap();
         let sections = table.section_sizes();
         let entries =
@@ -235,8 +253,9 @@ fn sample() -> &'static Sample {
     })
 }
 
-/// A table with every kind of column, packed into several small blocks.
-fn pack_sample() -> Vec<u8> {
+/// A table with every kind of column, packed into several small blocks (compact) or into
+/// several chunks (direct: the table is made large enough).
+fn pack_sample(layout: Layout) -> Vec<u8> {
     let mut runner = proptest::test_runner::TestRunner::deterministic();
     let mut table = random_table().new_tree(&mut runner).unwrap().current();
     while table.pairs.len() < 60
@@ -244,6 +263,19 @@ fn pack_sample() -> Vec<u8> {
         || !table.header.schema.alignment
     {
         table = random_table().new_tree(&mut runner).unwrap().current();
+    }
+    if layout == Layout::Direct {
+        // Four times the pairs (copies with a distinct first word), so that the records span
+        // several checksummed chunks.
+        let copies: Vec<PhrasePair> = (0..3)
+            .flat_map(|k| {
+                table.pairs.iter().map(move |p| PhrasePair {
+                    source: format!("n{k} {}", p.source),
+                    ..p.clone()
+                })
+            })
+            .collect();
+        table.pairs.extend(copies);
     }
     table.header.schema.counts = baler::table::CountColumn::ALL.to_vec();
     for p in &mut table.pairs {
@@ -253,6 +285,7 @@ fn pack_sample() -> Vec<u8> {
     let path = dir.path().join("sample.bale");
     let options = PackOptions {
         sources_per_block: 3,
+        layout,
         ..Default::default()
     };
     pack_tsv(table.tsv().as_bytes(), "t.tsv", &path, &options).unwrap();
@@ -286,8 +319,11 @@ fn exercise(bytes: Vec<u8>) -> Result<(), String> {
 }
 
 /// Whether byte `position` of the sample is covered by a checksum.
-fn checksummed(position: usize) -> bool {
-    sample().checksummed.iter().any(|r| r.contains(&position))
+fn checksummed(layout: Layout, position: usize) -> bool {
+    sample(layout)
+        .checksummed
+        .iter()
+        .any(|r| r.contains(&position))
 }
 
 /// Mutated-file cases: `BALER_FUZZ_CASES` (CI runs a longer smoke), else 400.
@@ -301,30 +337,93 @@ fn fuzz_cases() -> u32 {
 proptest! {
     #![proptest_config(ProptestConfig { cases: fuzz_cases(), ..ProptestConfig::default() })]
 
-    /// Mutated files: reported, never a panic; any change to checksummed bytes is detected.
+    /// Mutated files, in either layout: reported, never a panic; any change to checksummed
+    /// bytes is detected.
     #[test]
-    fn damaged_files_are_reported(position in any::<prop::sample::Index>(), flip in 1u8..=255) {
-        let mut bytes = sample().bytes.clone();
+    fn damaged_files_are_reported(position in any::<prop::sample::Index>(), flip in 1u8..=255, direct in any::<bool>()) {
+        let layout = if direct { Layout::Direct } else { Layout::Compact };
+        let mut bytes = sample(layout).bytes.clone();
         let i = position.index(bytes.len());
         bytes[i] ^= flip;
         let outcome = exercise(bytes);
-        if checksummed(i) {
+        if checksummed(layout, i) {
             prop_assert!(outcome.is_err(), "a change at byte {} went unnoticed", i);
         }
     }
 
     /// Truncated files are reported at open.
     #[test]
-    fn truncated_files_are_reported(cut in any::<prop::sample::Index>()) {
+    fn truncated_files_are_reported(cut in any::<prop::sample::Index>(), direct in any::<bool>()) {
+        let layout = if direct { Layout::Direct } else { Layout::Compact };
         // Cutting only the zero padding after the last section leaves a valid file.
-        let n = cut.index(sample().data_end);
-        prop_assert!(Table::from_bytes(sample().bytes[..n].to_vec()).is_err());
+        let n = cut.index(sample(layout).data_end);
+        prop_assert!(Table::from_bytes(sample(layout).bytes[..n].to_vec()).is_err());
     }
 }
 
 #[test]
 fn undamaged_sample_passes_every_check() {
-    exercise(sample().bytes.clone()).unwrap();
+    exercise(sample(Layout::Compact).bytes.clone()).unwrap();
+    exercise(sample(Layout::Direct).bytes.clone()).unwrap();
+}
+
+/// In a direct table, one flipped bit in any byte of the hash, records or text is reported by
+/// the first lookup, span walk or iteration that reads it, as corrupt data naming the section
+/// and chunk, before any answer is given (no `verify` needed): every byte of those sections is
+/// flipped in turn and every source looked up, and each read either errs or agrees with the
+/// undamaged table.
+#[test]
+fn direct_reads_never_answer_from_damaged_bytes() {
+    let good_bytes = sample(Layout::Direct).bytes.clone();
+    let good = Table::from_bytes(good_bytes.clone()).unwrap();
+    let sources: Vec<String> = good.source_phrases().collect::<baler::Result<_>>().unwrap();
+    // A source's options, then every span of its words (which walks its prefix keys).
+    let answer = |t: &Table, s: &str| -> baler::Result<Vec<(String, Vec<f64>)>> {
+        let mut got: Vec<(String, Vec<f64>)> = t
+            .lookup(s)?
+            .iter()
+            .map(|o| (o.target().to_string(), o.scores().to_vec()))
+            .collect();
+        let words: Vec<&str> = s.split(' ').collect();
+        for span in t.spans(&words, 7)? {
+            got.push((format!("{}..{}", span.start, span.end), Vec::new()));
+            for o in span.options.iter() {
+                got.push((o.target().to_string(), vec![o.score(0).unwrap_or(-1.0)]));
+            }
+        }
+        Ok(got)
+    };
+    let want: Vec<_> = sources.iter().map(|s| answer(&good, s).unwrap()).collect();
+    let mut reported = 0;
+    for s in good.section_sizes() {
+        if !matches!(s.kind.name(), "hash" | "records" | "text") {
+            continue;
+        }
+        for i in (s.offset..s.offset + s.length).step_by(7) {
+            let mut bytes = good_bytes.clone();
+            bytes[i as usize] ^= 0x04;
+            let bad = Table::from_bytes(bytes).unwrap();
+            let mut failed = false;
+            for (source, want) in sources.iter().zip(&want) {
+                match answer(&bad, source) {
+                    Ok(got) => assert_eq!(&got, want, "byte {i} of {}", s.kind.name()),
+                    Err(e) => {
+                        let text = e.to_string();
+                        assert!(
+                            text.contains("chunk") && text.contains("<memory>"),
+                            "{text}"
+                        );
+                        failed = true;
+                    }
+                }
+            }
+            // Every byte belongs to a slot, a record (a source's or a prefix key's) or a
+            // source's text, so a chunk of it is read by these lookups and span walks.
+            reported += usize::from(failed);
+            assert!(failed, "byte {i} of {} was never reported", s.kind.name());
+        }
+    }
+    assert!(reported > 100);
 }
 
 #[test]

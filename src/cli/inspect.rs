@@ -4,7 +4,7 @@ use std::fmt::Write as _;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use baler::format::SectionKind;
+use baler::format::{Layout, SectionKind};
 use serde_json::json;
 
 /// Arguments of `baler inspect`.
@@ -39,7 +39,8 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             .collect();
         let mut report = json!({
             "table": args.table.display().to_string(),
-            "version": format!("{}.{}", baler::format::VERSION_MAJOR, baler::format::VERSION_MINOR),
+            "version": format!("{}.{}", baler::format::VERSION_MAJOR, table.layout().minor_version()),
+            "layout": table.layout().name(),
             "file_bytes": table.file_bytes(),
             "meta": table.meta(),
             "sections": sections,
@@ -70,7 +71,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         "format     {} {}.{}",
         m.format,
         baler::format::VERSION_MAJOR,
-        baler::format::VERSION_MINOR
+        table.layout().minor_version()
     )
     .unwrap();
     writeln!(out, "pairs      {}", m.pairs).unwrap();
@@ -123,11 +124,17 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         m.option_order.ties
     )
     .unwrap();
-    writeln!(
-        out,
-        "blocks     {} sources each, {} targets per group, coding {}",
-        m.sources_per_block, m.targets_per_group, m.block_compression
-    )
+    match table.layout() {
+        Layout::Compact => writeln!(
+            out,
+            "layout     compact: blocks of {} sources, {} targets per group, coding {}",
+            m.sources_per_block, m.targets_per_group, m.block_compression
+        ),
+        Layout::Direct => writeln!(
+            out,
+            "layout     direct: hashed records read in place, target text as UTF-8"
+        ),
+    }
     .unwrap();
     writeln!(out).unwrap();
     writeln!(
@@ -149,8 +156,9 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         .unwrap();
     }
     if !m.components.is_empty() {
-        // Coded bytes of each component inside the blocks and target groups, as measured by
-        // the writer; the index sections above are the rest.
+        // Coded bytes of each component inside the blocks and target groups (compact), or
+        // inside the records, text and hash (direct), as measured by the writer; the index
+        // sections above are the rest.
         writeln!(out).unwrap();
         writeln!(
             out,
@@ -191,10 +199,26 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         let targets = component("targets")
             + section(SectionKind::TargetIndex)
             + section(SectionKind::Vocabulary);
-        for (name, bytes) in [
-            ("keys, with their indexes", keys),
-            ("targets, with index, words", targets),
-        ] {
+        let summary = match table.layout() {
+            Layout::Compact => vec![
+                ("keys, with their indexes", keys),
+                ("targets, with index, words", targets),
+            ],
+            // The keys' share of the hash is theirs too; the text is the targets' whole cost.
+            Layout::Direct => vec![
+                (
+                    "keys, with hash, prefixes",
+                    component("keys") + component("prefix-keys") + component("hash"),
+                ),
+                (
+                    "targets, with ends, words",
+                    component("targets")
+                        + component("target-ends")
+                        + section(SectionKind::Vocabulary),
+                ),
+            ],
+        };
+        for (name, bytes) in summary {
             writeln!(
                 out,
                 "{:<26} {:>14} {:>7.2}% {:>12.3}",

@@ -7,6 +7,7 @@
 
 pub mod block;
 pub mod coder;
+pub mod direct;
 pub mod lm;
 pub mod sections;
 mod varint;
@@ -21,8 +22,49 @@ pub const MAGIC: [u8; 8] = *b"BALER\r\n\x1a";
 /// Major format version: readers refuse files with another major version.
 pub const VERSION_MAJOR: u16 = 2;
 
-/// Minor format version: additions that older readers of the same major version may ignore.
+/// Minor format version of files in the `compact` layout (what 2.0 readers read).
 pub const VERSION_MINOR: u16 = 0;
+
+/// Minor format version of files in the `direct` layout (2.1: new sections that 2.0 readers
+/// refuse, as they lack the compact layout's required sections).
+pub const VERSION_MINOR_DIRECT: u16 = 1;
+
+/// How a table's sources and options are laid out (the metadata's `layout`).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Layout {
+    /// Entropy-coded blocks of front-coded sources and target groups: the smallest files.
+    Compact,
+    /// A hash of source phrases over records read in place, target text as UTF-8: the fastest
+    /// reads, several times larger (see [`direct`]).
+    Direct,
+}
+
+impl Layout {
+    /// The name stored in the metadata and taken by `--layout`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Layout::Compact => "compact",
+            Layout::Direct => "direct",
+        }
+    }
+
+    /// Parses a name.
+    pub fn from_name(name: &str) -> Option<Layout> {
+        match name {
+            "compact" => Some(Layout::Compact),
+            "direct" => Some(Layout::Direct),
+            _ => None,
+        }
+    }
+
+    /// The minor version a file of this layout is written with.
+    pub fn minor_version(self) -> u16 {
+        match self {
+            Layout::Compact => VERSION_MINOR,
+            Layout::Direct => VERSION_MINOR_DIRECT,
+        }
+    }
+}
 
 /// Size of the fixed file header.
 pub const FILE_HEADER_LEN: usize = 24;
@@ -98,11 +140,19 @@ pub enum SectionKind {
     BlockKeys = 8,
     /// Source blocks: front-coded sources with their options, coded.
     Blocks = 9,
+    /// `direct` layout: hash slots over source phrases and prefix keys.
+    DirectHash = 10,
+    /// `direct` layout: source records with their options.
+    DirectRecords = 11,
+    /// `direct` layout: the options' target text, UTF-8.
+    DirectText = 12,
+    /// `direct` layout: a CRC-32 per chunk of the three sections above.
+    DirectChunks = 13,
 }
 
 impl SectionKind {
     /// Every kind, in the order the writer lays them out.
-    pub const ALL: [SectionKind; 9] = [
+    pub const ALL: [SectionKind; 13] = [
         SectionKind::Metadata,
         SectionKind::Codebooks,
         SectionKind::Models,
@@ -112,6 +162,10 @@ impl SectionKind {
         SectionKind::TargetIndex,
         SectionKind::Targets,
         SectionKind::Blocks,
+        SectionKind::DirectChunks,
+        SectionKind::DirectHash,
+        SectionKind::DirectRecords,
+        SectionKind::DirectText,
     ];
 
     /// Looks a kind up by id.
@@ -131,18 +185,42 @@ impl SectionKind {
             SectionKind::BlockIndex => "block-index",
             SectionKind::BlockKeys => "block-keys",
             SectionKind::Blocks => "blocks",
+            SectionKind::DirectHash => "hash",
+            SectionKind::DirectRecords => "records",
+            SectionKind::DirectText => "text",
+            SectionKind::DirectChunks => "chunks",
         }
     }
 
-    /// Whether [`crate::Table::open`] checks this section's checksum (every section but the two
-    /// large ones, whose blocks and groups carry their own checksums, checked on first decode).
+    /// Whether [`crate::Table::open`] checks this section's checksum (every section but the
+    /// large ones, whose blocks, groups or chunks carry their own checksums, checked on first
+    /// read).
     pub fn checked_at_open(self) -> bool {
-        !matches!(self, SectionKind::Targets | SectionKind::Blocks)
+        !matches!(
+            self,
+            SectionKind::Targets
+                | SectionKind::Blocks
+                | SectionKind::DirectHash
+                | SectionKind::DirectRecords
+                | SectionKind::DirectText
+        )
     }
 
-    /// Whether every valid file has this section.
-    pub fn required(self) -> bool {
-        !matches!(self, SectionKind::Models)
+    /// Whether every valid file of `layout` has this section.
+    pub fn required(self, layout: Layout) -> bool {
+        match self {
+            SectionKind::Metadata | SectionKind::Codebooks | SectionKind::Vocabulary => true,
+            SectionKind::Models => false,
+            SectionKind::TargetIndex
+            | SectionKind::Targets
+            | SectionKind::BlockIndex
+            | SectionKind::BlockKeys
+            | SectionKind::Blocks => layout == Layout::Compact,
+            SectionKind::DirectHash
+            | SectionKind::DirectRecords
+            | SectionKind::DirectText
+            | SectionKind::DirectChunks => layout == Layout::Direct,
+        }
     }
 }
 
@@ -283,8 +361,12 @@ pub struct Meta {
     pub targets_per_group: u32,
     /// Coding of blocks and target groups: "rans" or "none".
     pub block_compression: String,
-    /// Upper bound on the stored size of any block or target group.
+    /// Upper bound on the stored size of any block or target group (or record, `direct`).
     pub max_block_bytes: u64,
+    /// The layout: "compact" (written only when not compact, as 2.0 files have no such member)
+    /// or "direct".
+    #[serde(default = "compact_layout", skip_serializing_if = "is_compact_layout")]
+    pub layout: String,
     /// Coded bytes by component (keys, targets, target-refs, each score column, ...), as the
     /// writer measured them; for `baler inspect`.
     #[serde(default)]
@@ -324,6 +406,14 @@ pub struct QuantizationReport {
     pub rms_error: f64,
     /// Largest absolute error over every stored value.
     pub max_error: f64,
+}
+
+fn compact_layout() -> String {
+    Layout::Compact.name().to_string()
+}
+
+fn is_compact_layout(name: &String) -> bool {
+    name == Layout::Compact.name()
 }
 
 /// The text of [`Meta::format`].

@@ -14,6 +14,8 @@ use crate::format::sections::push_block_entry;
 #[derive(Default)]
 pub(super) struct PackedOption {
     pub target_ref: u64,
+    /// The target phrase's bytes (kept for the `direct` layout only).
+    pub target: Vec<u8>,
     /// Original scores (for ordering).
     pub scores: Vec<f64>,
     /// Codebook codes, or the `f32` bits of unquantized scores.

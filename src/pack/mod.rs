@@ -15,6 +15,7 @@
 //! The output goes through [`Output`], so a failed pack leaves no file behind.
 
 mod blocks;
+mod direct;
 
 use rustc_hash::FxHashMap as HashMap;
 use std::fs::File;
@@ -26,7 +27,7 @@ use crate::files::Output;
 use crate::format::block::{encode_target, BlockRecords, BlockShape, ModelIds, COMPONENTS};
 use crate::format::coder::{Counter, Models, PlainSink, PlainSource, RansSink};
 use crate::format::sections::{encode_codebooks, encode_vocabulary, push_group_entry};
-use crate::format::{self, write_varint, Compression, Meta, SectionEntry, SectionKind};
+use crate::format::{self, write_varint, Compression, Layout, Meta, SectionEntry, SectionKind};
 use crate::quantize::{Codebook, Reservoir, DEFAULT_SAMPLE_SIZE};
 use crate::sort::ExternalSorter;
 use crate::table::{Header, PhrasePair, TsvReader};
@@ -48,6 +49,10 @@ pub struct PackOptions {
     /// Coding of blocks and target groups: [`Compression::Rans`] (compact, the default) or
     /// [`Compression::None`] (plain varints, faster cold decoding).
     pub compression: Compression,
+    /// Layout of the file: [`Layout::Compact`] (the default) or [`Layout::Direct`] (read in
+    /// place, fastest, larger; `sources_per_block`, `targets_per_group` and `compression` do
+    /// not apply to it).
+    pub layout: Layout,
     /// Worker threads (0: all cores); packing is single-threaded in format 2.0.
     pub threads: usize,
     /// Show progress bars on stderr (when it is a terminal).
@@ -66,6 +71,7 @@ impl Default for PackOptions {
             sources_per_block: DEFAULT_SOURCES_PER_BLOCK,
             targets_per_group: DEFAULT_TARGETS_PER_GROUP,
             compression: Compression::Rans,
+            layout: Layout::Compact,
             threads: 0,
             progress: false,
             temp_dir: None,
@@ -343,6 +349,14 @@ where
     .map_err(|e| Error::io(std::env::temp_dir(), "creating a temporary directory in", e))?;
     let raw_path = temp.path().join("blocks.plain");
     let raw_file = File::create(&raw_path).map_err(|e| Error::io(&raw_path, "creating", e))?;
+    let mut direct = match options.layout {
+        Layout::Direct => Some(direct::DirectWriter::new(
+            temp.path(),
+            &shape,
+            order_column,
+        )?),
+        Layout::Compact => None,
+    };
     let mut writer = SourceWriter {
         raw_out: BufWriter::with_capacity(1 << 20, raw_file),
         raw_path: &raw_path,
@@ -374,9 +388,17 @@ where
             .position(|&b| b == 0)
             .expect("key holds a NUL separator");
         let (source, target) = (&k[..split], &k[split + 1..]);
-        let mut option = writer.spare.pop().unwrap_or_default();
+        let spare = match &mut direct {
+            Some(d) => &mut d.spare,
+            None => &mut writer.spare,
+        };
+        let mut option = spare.pop().unwrap_or_default();
         let (position, target_number) = decode_value(v, &codebooks, &mut errors, &mut option);
         option.target_ref = target_refs.get(target_number, target)?;
+        if direct.is_some() {
+            option.target.clear();
+            option.target.extend_from_slice(target);
+        }
         if source == group_source.as_slice() && !group.is_empty() {
             if target == previous_target.as_slice() {
                 let (first, second) = (
@@ -394,7 +416,10 @@ where
                 ));
             }
         } else {
-            writer.add_source(&group_source, &mut group)?;
+            match &mut direct {
+                Some(d) => d.add_source(&group_source, &mut group)?,
+                None => writer.add_source(&group_source, &mut group)?,
+            }
             group_source.clear();
             group_source.extend_from_slice(source);
         }
@@ -407,10 +432,128 @@ where
             bar.set_position(done);
         }
     }
-    writer.add_source(&group_source, &mut group)?;
+    match &mut direct {
+        Some(d) => d.add_source(&group_source, &mut group)?,
+        None => writer.add_source(&group_source, &mut group)?,
+    }
     bar.finish_and_clear();
     drop(merged);
     drop(target_refs);
+
+    // Provenance and quantization reports, for either layout.
+    provenance.insert(
+        0,
+        (
+            "tool".to_string(),
+            format!("baler {}", env!("CARGO_PKG_VERSION")),
+        ),
+    );
+    provenance.push((
+        "bits".into(),
+        options.bits.map_or("f32".into(), |b| b.to_string()),
+    ));
+    if options.layout == Layout::Compact {
+        provenance.push((
+            "sources_per_block".into(),
+            options.sources_per_block.to_string(),
+        ));
+        provenance.push((
+            "targets_per_group".into(),
+            options.targets_per_group.to_string(),
+        ));
+        provenance.push(("compression".into(), options.compression.name().into()));
+    } else {
+        provenance.push(("layout".into(), options.layout.name().into()));
+    }
+    let quantization: Vec<_> = schema
+        .scores
+        .iter()
+        .zip(&codebooks)
+        .zip(&errors)
+        .map(|((column, book), err)| err.report(column, book, options.bits.unwrap_or(32)))
+        .collect();
+    let codebook_section = encode_codebooks(&codebooks, &widths);
+    let mut meta = Meta {
+        format: format::FORMAT_NAME.to_string(),
+        pairs,
+        sources: 0,
+        targets: n_targets,
+        vocabulary: n_words,
+        scores: schema.scores.clone(),
+        counts: schema.counts.iter().map(|c| c.name().to_string()).collect(),
+        alignment: schema.alignment,
+        option_order: format::OptionOrder {
+            by: order_column.map(|c| schema.scores[c].clone()),
+            ties: "target phrase bytes ascending".into(),
+        },
+        sources_per_block: options.sources_per_block,
+        targets_per_group: options.targets_per_group,
+        block_compression: options.compression.name().to_string(),
+        max_block_bytes: 0,
+        layout: options.layout.name().to_string(),
+        components: Vec::new(),
+        table_metadata: header.metadata.entries().to_vec(),
+        provenance,
+        quantization,
+    };
+    if let Some(d) = direct {
+        drop(writer);
+        let written = d.finish()?;
+        meta.sources = written.sources;
+        // Not used by this layout; 1 keeps 2.0's rules for them.
+        meta.sources_per_block = 1;
+        meta.targets_per_group = 1;
+        meta.block_compression = Compression::None.name().to_string();
+        meta.max_block_bytes = written.max_record as u64;
+        let z = &written.sizes;
+        meta.components = vec![
+            ("keys".to_string(), z.keys),
+            ("prefix-keys".to_string(), z.prefix_records),
+            ("hash".to_string(), z.hash),
+            ("targets".to_string(), z.text),
+            ("target-ends".to_string(), z.ends),
+        ];
+        if z.extras > 0 {
+            meta.components
+                .push(("alignments+counts".to_string(), z.extras));
+        }
+        for (name, bytes) in schema.scores.iter().zip(&z.codes) {
+            meta.components.push((format!("score:{name}"), *bytes));
+        }
+        meta.components.push(("chunk-sums".to_string(), z.chunks));
+        let meta_section = serde_json::to_vec(&meta).expect("metadata serializes");
+        let (records_path, records_len, records_crc) = written.records;
+        let (text_path, text_len, text_crc) = written.text;
+        let parts: Vec<(SectionKind, Part)> = vec![
+            (SectionKind::Metadata, Part::Memory(meta_section)),
+            (SectionKind::Codebooks, Part::Memory(codebook_section)),
+            (SectionKind::Vocabulary, Part::Memory(vocabulary_section)),
+            (SectionKind::DirectChunks, Part::Memory(written.chunks)),
+            (SectionKind::DirectHash, Part::Memory(written.hash)),
+            (
+                SectionKind::DirectRecords,
+                Part::File {
+                    path: records_path,
+                    len: records_len,
+                    crc: records_crc,
+                },
+            ),
+            (
+                SectionKind::DirectText,
+                Part::File {
+                    path: text_path,
+                    len: text_len,
+                    crc: text_crc,
+                },
+            ),
+        ];
+        let (sections, file_bytes) = write_file(out, &parts, options.layout)?;
+        return Ok(PackReport {
+            meta,
+            sections,
+            file_bytes,
+        });
+    }
     let WrittenSources {
         sources,
         block_sources,
@@ -446,33 +589,6 @@ where
     drop(std::fs::remove_file(&raw_path));
 
     // Metadata.
-    provenance.insert(
-        0,
-        (
-            "tool".to_string(),
-            format!("baler {}", env!("CARGO_PKG_VERSION")),
-        ),
-    );
-    provenance.push((
-        "bits".into(),
-        options.bits.map_or("f32".into(), |b| b.to_string()),
-    ));
-    provenance.push((
-        "sources_per_block".into(),
-        options.sources_per_block.to_string(),
-    ));
-    provenance.push((
-        "targets_per_group".into(),
-        options.targets_per_group.to_string(),
-    ));
-    provenance.push(("compression".into(), options.compression.name().into()));
-    let quantization = schema
-        .scores
-        .iter()
-        .zip(&codebooks)
-        .zip(&errors)
-        .map(|((column, book), err)| err.report(column, book, options.bits.unwrap_or(32)))
-        .collect();
     let mut components: Vec<(String, u64)> = Vec::new();
     for (i, bits) in costs.bits.iter().enumerate() {
         let name = match COMPONENTS.get(i) {
@@ -482,30 +598,10 @@ where
         };
         components.push((name, (bits / 8.0).ceil() as u64));
     }
-    let meta = Meta {
-        format: format::FORMAT_NAME.to_string(),
-        pairs,
-        sources,
-        targets: n_targets,
-        vocabulary: n_words,
-        scores: schema.scores.clone(),
-        counts: schema.counts.iter().map(|c| c.name().to_string()).collect(),
-        alignment: schema.alignment,
-        option_order: format::OptionOrder {
-            by: order_column.map(|c| schema.scores[c].clone()),
-            ties: "target phrase bytes ascending".into(),
-        },
-        sources_per_block: options.sources_per_block,
-        targets_per_group: options.targets_per_group,
-        block_compression: options.compression.name().to_string(),
-        max_block_bytes: coded.max_block.max(max_group) as u64,
-        components,
-        table_metadata: header.metadata.entries().to_vec(),
-        provenance,
-        quantization,
-    };
+    meta.sources = sources;
+    meta.max_block_bytes = coded.max_block.max(max_group) as u64;
+    meta.components = components;
     let meta_section = serde_json::to_vec(&meta).expect("metadata serializes");
-    let codebook_section = encode_codebooks(&codebooks, &widths);
 
     let mut parts: Vec<(SectionKind, Part)> = vec![
         (SectionKind::Metadata, Part::Memory(meta_section)),
@@ -527,7 +623,7 @@ where
             crc: coded.crc,
         },
     ));
-    let (sections, file_bytes) = write_file(out, &parts)?;
+    let (sections, file_bytes) = write_file(out, &parts, options.layout)?;
     Ok(PackReport {
         meta,
         sections,
@@ -578,7 +674,11 @@ impl Part {
     }
 }
 
-fn write_file(out: &Path, parts: &[(SectionKind, Part)]) -> Result<(Vec<(SectionKind, u64)>, u64)> {
+fn write_file(
+    out: &Path,
+    parts: &[(SectionKind, Part)],
+    layout: Layout,
+) -> Result<(Vec<(SectionKind, u64)>, u64)> {
     let mut entries = Vec::with_capacity(parts.len());
     let mut offset = (format::FILE_HEADER_LEN + parts.len() * format::SECTION_ENTRY_LEN) as u64;
     offset += format::padding(offset);
@@ -599,7 +699,7 @@ fn write_file(out: &Path, parts: &[(SectionKind, Part)]) -> Result<(Vec<(Section
     }
     let mut header = format::FileHeader {
         major: format::VERSION_MAJOR,
-        minor: format::VERSION_MINOR,
+        minor: layout.minor_version(),
         section_count: parts.len() as u32,
         table_crc32: 0,
     };

@@ -11,6 +11,7 @@
 //! ([`ReadOptions::cache_bytes`], default [`DEFAULT_CACHE_BYTES`]).
 
 mod cache;
+mod direct;
 mod options;
 mod verify;
 
@@ -24,7 +25,7 @@ use crate::error::{Error, Result};
 use crate::format::block::{decode_target, BlockRecords, BlockShape, ModelIds, Upto};
 use crate::format::coder::{Models, PlainSource, RansSource, SymbolSource};
 use crate::format::sections::{self as layout, Codec, Vocabulary};
-use crate::format::{self, Compression, Meta, SectionEntry, SectionKind};
+use crate::format::{self, Compression, Layout, Meta, SectionEntry, SectionKind};
 use crate::mmap::{self, Storage};
 use crate::table::{CountColumn, Header, Metadata, PhrasePair, Schema};
 
@@ -61,7 +62,9 @@ pub struct Table {
     entries: Vec<SectionEntry>,
     codecs: Vec<Codec>,
     models: Option<Models>,
-    vocabulary: Vocabulary,
+    vocabulary: Arc<Vocabulary>,
+    /// The `direct` layout's reader (`None`: compact).
+    direct: Option<Arc<direct::Shared>>,
     shape: BlockShape,
     ids: ModelIds,
     block_index: Range<usize>,
@@ -234,19 +237,29 @@ impl Table {
                 .find(|(k, _)| *k == kind)
                 .map(|(_, r)| r.clone())
         };
+        let Some(meta_range) = get(SectionKind::Metadata) else {
+            return Err(corrupt("the metadata section is missing".into()));
+        };
+        let meta: Meta = serde_json::from_slice(&data[meta_range])
+            .map_err(|e| corrupt(format!("the metadata section is not valid: {e}")))?;
+        let layout = Layout::from_name(&meta.layout)
+            .ok_or_else(|| corrupt(format!("unknown layout {:?}", meta.layout)))?;
         for kind in SectionKind::ALL {
-            if kind.required() && get(kind).is_none() {
+            if kind.required(layout) && get(kind).is_none() {
                 return Err(corrupt(format!("the {} section is missing", kind.name())));
             }
         }
-        let section = |kind: SectionKind| get(kind).expect("required sections are present");
-        let meta: Meta = serde_json::from_slice(&data[section(SectionKind::Metadata)])
-            .map_err(|e| corrupt(format!("the metadata section is not valid: {e}")))?;
+        let section = |kind: SectionKind| get(kind).unwrap_or(0..0);
         let (header, compression) = check_meta(&meta).map_err(corrupt)?;
         let codecs = layout::decode_codebooks(&data[section(SectionKind::Codebooks)], &meta)
             .map_err(corrupt)?;
         let ids = ModelIds::new(meta.scores.len());
         let models = match (compression, get(SectionKind::Models)) {
+            (_, Some(_)) if layout == Layout::Direct => {
+                return Err(corrupt(
+                    "a models section is present in a direct table".into(),
+                ))
+            }
             (Compression::Rans, Some(r)) => {
                 Some(Models::decode(&data[r], ids.count()).map_err(corrupt)?)
             }
@@ -260,44 +273,76 @@ impl Table {
             }
             (Compression::None, None) => None,
         };
-        let vocabulary =
+        let vocabulary = Arc::new(
             Vocabulary::decode(&data[section(SectionKind::Vocabulary)], meta.vocabulary)
-                .map_err(corrupt)?;
-        let n_blocks = meta.sources.div_ceil(u64::from(meta.sources_per_block));
-        let n_groups = meta.targets.div_ceil(u64::from(meta.targets_per_group));
+                .map_err(corrupt)?,
+        );
+        let shared_schema = Arc::new(header.schema.clone());
+        let direct = match layout {
+            Layout::Compact => None,
+            Layout::Direct => Some(Arc::new(
+                direct::Shared::open(
+                    path.clone(),
+                    storage.clone(),
+                    &meta,
+                    shared_schema.clone(),
+                    codecs.clone(),
+                    vocabulary.clone(),
+                    section(SectionKind::DirectHash),
+                    section(SectionKind::DirectRecords),
+                    section(SectionKind::DirectText),
+                    section(SectionKind::DirectChunks),
+                )
+                .map_err(corrupt)?,
+            )),
+        };
+        let (n_blocks, n_groups) = match layout {
+            Layout::Compact => (
+                meta.sources.div_ceil(u64::from(meta.sources_per_block)),
+                meta.targets.div_ceil(u64::from(meta.targets_per_group)),
+            ),
+            Layout::Direct => (0, 0),
+        };
         let (block_index, block_keys, blocks) = (
             section(SectionKind::BlockIndex),
             section(SectionKind::BlockKeys),
             section(SectionKind::Blocks),
         );
-        layout::check_block_index(
-            &data[block_index.clone()],
-            n_blocks,
-            block_keys.len(),
-            blocks.len(),
-        )
-        .map_err(corrupt)?;
         let (target_index, targets) = (
             section(SectionKind::TargetIndex),
             section(SectionKind::Targets),
         );
-        layout::check_target_index(&data[target_index.clone()], n_groups, targets.len())
+        if layout == Layout::Compact {
+            layout::check_block_index(
+                &data[block_index.clone()],
+                n_blocks,
+                block_keys.len(),
+                blocks.len(),
+            )
             .map_err(corrupt)?;
+            layout::check_target_index(&data[target_index.clone()], n_groups, targets.len())
+                .map_err(corrupt)?;
+        }
         let shape = BlockShape {
             widths: codecs.iter().map(Codec::width).collect(),
             alignment: meta.alignment,
             counts: meta.counts.len(),
         };
-        let budget = options.cache_bytes;
+        let budget = if direct.is_some() {
+            0
+        } else {
+            options.cache_bytes
+        };
         let (options_bytes, block_bytes) = (budget / 2, budget / 4);
         Ok(Table {
             path,
-            shared_schema: Arc::new(header.schema.clone()),
+            shared_schema,
             header,
             entries,
             codecs,
             models,
             vocabulary,
+            direct,
             shape,
             ids,
             block_index,
@@ -376,6 +421,33 @@ impl Table {
         self.vocabulary.word(id)
     }
 
+    /// The layout the table was packed in.
+    ///
+    /// # Examples
+    /// ```
+    /// # fn main() -> baler::Result<()> {
+    /// # let dir = tempfile::tempdir().unwrap();
+    /// # let path = dir.path().join("t.bale");
+    /// use baler::format::Layout;
+    /// let tsv = "source\ttarget\tp_t_given_s\nel barco\tthe boat\t0.7\nel barco\tthe ship\t0.3\n";
+    /// let options = baler::pack::PackOptions { layout: Layout::Direct, ..Default::default() };
+    /// baler::pack::pack_tsv(tsv.as_bytes(), "t.tsv", &path, &options)?;
+    /// let table = baler::Table::open(&path)?;
+    /// assert_eq!(table.layout(), Layout::Direct);
+    /// let found = table.lookup("el barco")?;
+    /// assert_eq!(found.get(1).unwrap().target(), "the ship");
+    /// let spans = table.spans(&["el", "barco", "rojo"], 7)?;
+    /// assert_eq!((spans.len(), spans[0].start, spans[0].end), (1, 0, 2));
+    /// # Ok(()) }
+    /// ```
+    pub fn layout(&self) -> Layout {
+        if self.direct.is_some() {
+            Layout::Direct
+        } else {
+            Layout::Compact
+        }
+    }
+
     /// Number of distinct target words; ids run from 0 to this, most frequent first.
     pub fn vocabulary_size(&self) -> usize {
         self.vocabulary.len()
@@ -390,6 +462,9 @@ impl Table {
 
     /// Like [`Table::lookup`], reusing `options`' buffers; returns whether the phrase was found.
     pub fn lookup_into(&self, source: &str, options: &mut Options) -> Result<bool> {
+        if let Some(d) = &self.direct {
+            return d.lookup_into(source, options);
+        }
         options.clear();
         let key = source.as_bytes();
         let slot = key_hash(key);
@@ -413,6 +488,9 @@ impl Table {
 
     /// The source ordinal (position in byte order) of a phrase, if present.
     pub fn source_ordinal(&self, source: &str) -> Result<Option<u64>> {
+        if let Some(d) = &self.direct {
+            return d.source_ordinal(source);
+        }
         let key = source.as_bytes();
         let Some(b) = self.find_block(key) else {
             return Ok(None);
@@ -442,6 +520,9 @@ impl Table {
     /// # Ok(()) }
     /// ```
     pub fn spans(&self, tokens: &[&str], max_len: usize) -> Result<Vec<Span>> {
+        if let Some(d) = &self.direct {
+            return d.spans(tokens, max_len);
+        }
         let mut out = Vec::new();
         let mut key: Vec<u8> = Vec::new();
         let mut hint: Option<(usize, Arc<BlockRecords>)> = None;
@@ -825,6 +906,7 @@ impl Table {
 
     /// Every source phrase in byte order.
     pub fn source_phrases(&self) -> impl Iterator<Item = Result<String>> + '_ {
+        let mut cursor = self.direct.as_ref().map(|d| d.cursor());
         let mut b = 0;
         let mut r = 0;
         let mut block = BlockRecords::default();
@@ -832,6 +914,11 @@ impl Table {
         std::iter::from_fn(move || {
             if failed {
                 return None;
+            }
+            if let Some(c) = &mut cursor {
+                let item = c.next_source().transpose()?.map(|(s, _)| s);
+                failed = item.is_err();
+                return Some(item);
             }
             while r >= block.sources() {
                 if b >= self.n_blocks {
@@ -858,6 +945,7 @@ impl Table {
     pub fn pairs_iter(&self) -> PairIter<'_> {
         PairIter {
             table: self,
+            cursor: self.direct.as_ref().map(|d| d.cursor()),
             next_block: 0,
             block: BlockRecords::default(),
             rank: 0,
@@ -972,6 +1060,7 @@ fn check_meta(meta: &Meta) -> std::result::Result<(Header, Compression), String>
 /// Iterates over every pair of a table; see [`Table::pairs_iter`].
 pub struct PairIter<'a> {
     table: &'a Table,
+    cursor: Option<direct::Cursor>,
     next_block: usize,
     block: BlockRecords,
     rank: usize,
@@ -984,6 +1073,15 @@ pub struct PairIter<'a> {
 impl PairIter<'_> {
     /// Moves to the next source (decoding the next block when needed); false at the end.
     fn advance_source(&mut self) -> Result<bool> {
+        if let Some(c) = &mut self.cursor {
+            let Some((source, options)) = c.next_source()? else {
+                return Ok(false);
+            };
+            self.source = source;
+            self.options = options;
+            self.option = 0;
+            return Ok(true);
+        }
         let table = self.table;
         while self.rank >= self.block.sources() {
             if self.next_block >= table.n_blocks {

@@ -1,8 +1,10 @@
 //! Decoded options of a source phrase.
 
-use std::sync::Arc;
+use std::sync::{Arc, OnceLock};
 
 use crate::table::{CountColumn, Schema};
+
+use super::direct::View;
 
 /// The options of one source phrase, in stored order (see the metadata's `option_order`).
 ///
@@ -11,9 +13,34 @@ use crate::table::{CountColumn, Schema};
 /// used sources hands out the same buffers again without copying them, so cloning an
 /// `Options` is cheap, and reusing one with [`crate::Table::lookup_into`] allocates nothing
 /// once its buffers have grown (unless they are shared with the cache).
-#[derive(Clone, Debug, Default)]
+///
+/// Options of a table in the `direct` layout are read in place from the file: the target text
+/// is borrowed from it, a score is decoded when asked for, and the rest (word ids, all scores
+/// as a slice, counts, alignments) is decoded once, the first time it is asked for.
+#[derive(Clone, Debug)]
 pub struct Options {
     pub(super) body: Arc<Body>,
+    pub(super) view: Option<DirectOptions>,
+}
+
+impl Default for Options {
+    /// No options (allocates nothing: the empty buffers are shared).
+    fn default() -> Options {
+        Options {
+            body: empty_body(),
+            view: None,
+        }
+    }
+}
+
+/// A `direct` table's options, read in place, with their decoded form once asked for.
+#[derive(Clone, Debug)]
+pub(super) struct DirectOptions {
+    pub(super) view: View,
+    /// The options' text, validated as a whole once (one pass over a run of bytes is far
+    /// cheaper than checking each short target on every call).
+    pub(super) text: OnceLock<Box<str>>,
+    pub(super) decoded: OnceLock<Box<Body>>,
 }
 
 /// The buffers of [`Options`].
@@ -33,34 +60,58 @@ pub(super) struct Body {
 impl Options {
     /// The number of options.
     pub fn len(&self) -> usize {
-        self.body.ends.len()
+        match &self.view {
+            Some(d) => d.view.len(),
+            None => self.body.ends.len(),
+        }
     }
 
     /// Whether there are none (the phrase was not found).
     pub fn is_empty(&self) -> bool {
-        self.body.ends.is_empty()
+        self.len() == 0
     }
 
     /// Option `i`, best first.
     pub fn get(&self, i: usize) -> Option<TranslationOption<'_>> {
         (i < self.len()).then_some(TranslationOption {
-            options: &self.body,
+            of: self.of(),
             index: i,
         })
     }
 
     /// Every option in stored order.
     pub fn iter(&self) -> impl ExactSizeIterator<Item = TranslationOption<'_>> {
-        let body = &*self.body;
-        (0..self.len()).map(move |index| TranslationOption {
-            options: body,
-            index,
-        })
+        let of = self.of();
+        (0..self.len()).map(move |index| TranslationOption { of, index })
+    }
+
+    fn of(&self) -> Of<'_> {
+        match &self.view {
+            Some(d) => Of::Direct(d),
+            None => Of::Body(&self.body),
+        }
+    }
+
+    /// Options read in place from a `direct` table.
+    pub(super) fn direct(view: View, decoded: Option<Body>) -> Options {
+        let cell = OnceLock::new();
+        if let Some(body) = decoded {
+            let _ = cell.set(Box::new(body));
+        }
+        Options {
+            body: empty_body(),
+            view: Some(DirectOptions {
+                view,
+                text: OnceLock::new(),
+                decoded: cell,
+            }),
+        }
     }
 
     /// Empties the options and returns their buffers for filling: the same buffers when no one
     /// else holds them, fresh ones when the cache shares them (nothing is copied).
     pub(super) fn clear_for_fill(&mut self, schema: &Arc<Schema>) -> &mut Body {
+        self.view = None;
         if Arc::get_mut(&mut self.body).is_none() {
             self.body = Arc::new(Body::default());
         }
@@ -74,15 +125,17 @@ impl Options {
 
     /// Empties the options (shared buffers are let go, not cleared).
     pub(super) fn clear(&mut self) {
+        self.view = None;
         match Arc::get_mut(&mut self.body) {
             Some(body) => body.clear(),
-            None => self.body = Arc::new(Body::default()),
+            None => self.body = empty_body(),
         }
     }
 
     /// Makes `self` share `other`'s buffers (no copy).
     pub(super) fn share(&mut self, other: &Options) {
         self.body = other.body.clone();
+        self.view = other.view.clone();
     }
 
     /// Heap bytes held, by capacity (for cache accounting).
@@ -108,7 +161,21 @@ impl Options {
     }
 }
 
+/// One shared empty body, so that options read in place allocate nothing.
+fn empty_body() -> Arc<Body> {
+    static EMPTY: OnceLock<Arc<Body>> = OnceLock::new();
+    EMPTY.get_or_init(Arc::default).clone()
+}
+
 impl Body {
+    /// A body for `schema`, to be filled.
+    pub(super) fn for_schema(schema: &Arc<Schema>) -> Body {
+        Body {
+            schema: Some(schema.clone()),
+            ..Body::default()
+        }
+    }
+
     fn clear(&mut self) {
         self.text.clear();
         self.ends.clear();
@@ -132,8 +199,15 @@ impl Body {
 /// One translation option: a target phrase with its scores, counts and alignment.
 #[derive(Clone, Copy, Debug)]
 pub struct TranslationOption<'a> {
-    options: &'a Body,
+    of: Of<'a>,
     index: usize,
+}
+
+/// Where an option's data is: decoded buffers, or a `direct` table's record.
+#[derive(Clone, Copy, Debug)]
+enum Of<'a> {
+    Body(&'a Body),
+    Direct(&'a DirectOptions),
 }
 
 fn range(ends: &[u32], i: usize) -> std::ops::Range<usize> {
@@ -142,51 +216,77 @@ fn range(ends: &[u32], i: usize) -> std::ops::Range<usize> {
 }
 
 impl<'a> TranslationOption<'a> {
+    /// The decoded buffers (for a `direct` table, decoded the first time one asks).
+    fn body(&self) -> &'a Body {
+        match self.of {
+            Of::Body(b) => b,
+            Of::Direct(d) => d.decoded.get_or_init(|| Box::new(d.view.decode())),
+        }
+    }
+
     /// The target phrase (borrowed: no allocation).
     pub fn target(&self) -> &'a str {
-        &self.options.text[range(&self.options.ends, self.index)]
+        match self.of {
+            Of::Body(b) => &b.text[range(&b.ends, self.index)],
+            Of::Direct(d) => {
+                let text = d.text.get_or_init(|| d.view.text());
+                // The ends were checked to lie on character boundaries when the options were
+                // read, so `get` cannot fail.
+                text.get(d.view.range(self.index)).unwrap_or("")
+            }
+        }
     }
 
     /// The target phrase as word ids; [`crate::Table::word`] gives each word's text.
     pub fn target_ids(&self) -> &'a [u32] {
-        &self.options.ids[range(&self.options.id_ends, self.index)]
+        let b = self.body();
+        &b.ids[range(&b.id_ends, self.index)]
     }
 
     /// Scores in schema order (quantized values where the table quantizes).
     pub fn scores(&self) -> &'a [f64] {
-        let n = self.options.n_scores();
-        &self.options.scores[self.index * n..(self.index + 1) * n]
+        let b = self.body();
+        let n = b.n_scores();
+        &b.scores[self.index * n..(self.index + 1) * n]
     }
 
     /// Score `i` in schema order.
     pub fn score(&self, i: usize) -> Option<f64> {
-        self.scores().get(i).copied()
+        match self.of {
+            Of::Body(_) => self.scores().get(i).copied(),
+            Of::Direct(d) => d.view.score(self.index, i),
+        }
     }
 
     /// The score in column `name`.
     pub fn score_by_name(&self, name: &str) -> Option<f64> {
-        let i = self.options.schema.as_ref()?.score_index(name)?;
+        let i = match self.of {
+            Of::Body(b) => b.schema.as_ref()?.score_index(name)?,
+            Of::Direct(d) => d.view.schema().score_index(name)?,
+        };
         self.score(i)
     }
 
     /// Exact counts in schema order (empty when the table stores none).
     pub fn counts(&self) -> &'a [u64] {
-        let n = self.options.n_counts();
-        &self.options.counts[self.index * n..(self.index + 1) * n]
+        let b = self.body();
+        let n = b.n_counts();
+        &b.counts[self.index * n..(self.index + 1) * n]
     }
 
     /// One count column, if stored.
     pub fn count(&self, column: CountColumn) -> Option<u64> {
-        let i = self.options.schema.as_ref()?.count_index(column)?;
+        let i = self.body().schema.as_ref()?.count_index(column)?;
         self.counts().get(i).copied()
     }
 
     /// Word links `(source index, target index)`; empty when not stored.
     pub fn alignment(&self) -> &'a [(u16, u16)] {
-        if self.options.link_ends.is_empty() {
+        let b = self.body();
+        if b.link_ends.is_empty() {
             return &[];
         }
-        &self.options.links[range(&self.options.link_ends, self.index)]
+        &b.links[range(&b.link_ends, self.index)]
     }
 }
 

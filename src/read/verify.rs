@@ -19,6 +19,16 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
         }
         report.sections += 1;
     }
+    if let Some(d) = &table.direct {
+        d.verify(&mut report)?;
+        if report.pairs != table.meta.pairs || report.targets != table.meta.targets {
+            return Err(table.corrupt(format!(
+                "the records hold {} pairs of {} targets, the metadata says {} and {}",
+                report.pairs, report.targets, table.meta.pairs, table.meta.targets
+            )));
+        }
+        return Ok(report);
+    }
     // Target groups: each decodes completely (word ids checked against the vocabulary).
     for g in 0..table.n_groups {
         let group = table.decode_group(g, usize::MAX)?;

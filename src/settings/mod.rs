@@ -37,7 +37,7 @@ use std::path::PathBuf;
 
 use crate::error::{Error, Result};
 use crate::files::parse_size;
-use crate::format::{Compression, Meta};
+use crate::format::{Compression, Layout, Meta};
 use crate::pack::{self, PackOptions};
 
 /// One option: its name and the text a user sees.
@@ -92,6 +92,15 @@ pub const COMPRESSION: Setting = Setting {
            [default: rans, or the input table's]",
     default: None,
 };
+/// `--layout`.
+pub const LAYOUT: Setting = Setting {
+    key: "layout",
+    value_name: "KIND",
+    help: "Layout of the packed file: compact (smallest) or direct (read in place, fastest \
+           lookups and spans, about 5x larger; block_sources, group_targets and compression \
+           apply to compact only) [default: compact, or the input table's]",
+    default: None,
+};
 /// `--memory`.
 pub const MEMORY: Setting = Setting {
     key: "memory",
@@ -115,7 +124,7 @@ pub const TEMP_DIR: Setting = Setting {
 };
 
 /// The settings of a packed table, in the order `--help` lists them.
-pub const PACK: [Setting; 4] = [BITS, BLOCK_SOURCES, GROUP_TARGETS, COMPRESSION];
+pub const PACK: [Setting; 5] = [BITS, BLOCK_SOURCES, GROUP_TARGETS, COMPRESSION, LAYOUT];
 /// The resources every heavy command takes.
 pub const RESOURCES: [Setting; 3] = [MEMORY, THREADS, TEMP_DIR];
 
@@ -136,6 +145,8 @@ pub struct PackSettings {
     pub targets_per_group: Option<u32>,
     /// Coding of blocks.
     pub compression: Option<Compression>,
+    /// Layout of the file.
+    pub layout: Option<Layout>,
 }
 
 impl PackSettings {
@@ -185,13 +196,19 @@ impl PackSettings {
                         .ok_or_else(|| bad(format!("{text:?} is not rans or none")))?,
                 )
             }
+            "layout" => {
+                self.layout = Some(
+                    Layout::from_name(text)
+                        .ok_or_else(|| bad(format!("{text:?} is not compact or direct")))?,
+                )
+            }
             _ => unreachable!("every PACK setting has an arm"),
         }
         Ok(())
     }
 
     /// The settings a packed table was written with, from its provenance (`bits`,
-    /// `sources_per_block`, `targets_per_group`, `compression`).
+    /// `sources_per_block`, `targets_per_group`, `compression`) and its layout.
     pub fn of_table(meta: &Meta) -> PackSettings {
         let mut s = PackSettings::default();
         for (key, value) in &meta.provenance {
@@ -203,6 +220,7 @@ impl PackSettings {
             };
             let _ = s.set(key, value); // a value this version cannot use keeps the default
         }
+        s.layout = Layout::from_name(&meta.layout);
         s
     }
 
@@ -213,6 +231,7 @@ impl PackSettings {
             sources_per_block: self.sources_per_block.or(fallback.sources_per_block),
             targets_per_group: self.targets_per_group.or(fallback.targets_per_group),
             compression: self.compression.or(fallback.compression),
+            layout: self.layout.or(fallback.layout),
         }
     }
 
@@ -229,6 +248,9 @@ impl PackSettings {
         }
         if let Some(c) = self.compression {
             options.compression = c;
+        }
+        if let Some(l) = self.layout {
+            options.layout = l;
         }
     }
 }
@@ -309,5 +331,6 @@ pub fn pack_defaults() -> PackSettings {
         sources_per_block: Some(pack::DEFAULT_SOURCES_PER_BLOCK),
         targets_per_group: Some(pack::DEFAULT_TARGETS_PER_GROUP),
         compression: Some(Compression::Rans),
+        layout: Some(Layout::Compact),
     }
 }
