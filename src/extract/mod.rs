@@ -59,7 +59,6 @@ pub mod phrases;
 pub mod ranges;
 mod report;
 mod resident;
-mod resort;
 pub mod runs;
 pub mod score;
 pub mod sentences;

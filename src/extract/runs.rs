@@ -14,14 +14,13 @@
 //! the target totals of [`super::ranges`]) are a target phrase. Runs from any number of
 //! shards merge by summing the counts of equal keys ([`RunMerger`]).
 
-use std::cmp::Ordering;
-use std::collections::BinaryHeap;
 use std::fs::File;
 use std::io::{self, BufReader, BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
 
 use super::corpus::CorpusStats;
 use crate::error::{Error, Result};
+use crate::sort::{Merge, SortedRun};
 
 /// Kind byte of a word-link count key.
 pub const WORD_KIND: u8 = 1;
@@ -262,30 +261,17 @@ impl RunReader {
     }
 }
 
-struct Head {
-    run: usize,
-    key: Vec<u8>,
-}
-
-impl PartialEq for Head {
-    fn eq(&self, other: &Self) -> bool {
-        self.cmp(other) == Ordering::Equal
+impl SortedRun for RunReader {
+    fn advance(&mut self) -> Result<bool> {
+        RunReader::advance(self)
     }
-}
-impl Eq for Head {}
-impl Ord for Head {
-    fn cmp(&self, other: &Self) -> Ordering {
-        // Smallest key on top of the max-heap.
-        other.key.cmp(&self.key).then(other.run.cmp(&self.run))
-    }
-}
-impl PartialOrd for Head {
-    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
-        Some(self.cmp(other))
+    fn key(&self) -> &[u8] {
+        RunReader::key(self)
     }
 }
 
-/// Merges runs into one stream in key order, summing the counts of equal keys.
+/// Merges runs into one stream in key order, summing the counts of equal keys (the k-way
+/// merge is [`crate::sort`]'s).
 ///
 /// # Examples
 /// ```
@@ -310,60 +296,60 @@ impl PartialOrd for Head {
 /// assert_eq!(out, [("anchor".to_string(), 5), ("buoy".into(), 2), ("quay".into(), 4)]);
 /// ```
 pub struct RunMerger {
-    runs: Vec<RunReader>,
-    heap: BinaryHeap<Head>,
+    merge: Merge<RunReader>,
     current: Vec<u8>,
-    spare: Vec<Vec<u8>>,
+}
+
+/// A record of a [`RunMerger`]: a key, its count summed over the runs, and the first run it
+/// was read from (named by [`Merged::damaged`]).
+pub(crate) struct Merged<'a> {
+    pub(crate) key: &'a [u8],
+    pub(crate) count: u64,
+    run: &'a Path,
+}
+
+impl Merged<'_> {
+    /// The error of a record that does not parse, naming the run it came from.
+    pub(crate) fn damaged(&self, reason: impl Into<String>) -> Error {
+        Error::damaged_intermediate(self.run, "count run", reason)
+    }
 }
 
 impl RunMerger {
     /// Starts merging `runs`.
-    pub fn new(mut runs: Vec<RunReader>) -> Result<RunMerger> {
-        let mut heap = BinaryHeap::with_capacity(runs.len());
-        for (i, run) in runs.iter_mut().enumerate() {
-            if run.advance()? {
-                heap.push(Head {
-                    run: i,
-                    key: run.key().to_vec(),
-                });
-            }
-        }
+    pub fn new(runs: Vec<RunReader>) -> Result<RunMerger> {
         Ok(RunMerger {
-            runs,
-            heap,
+            merge: Merge::new(runs)?,
             current: Vec::new(),
-            spare: Vec::new(),
         })
     }
 
     /// The next distinct key and its summed count, or `None` at the end.
     pub fn next_record(&mut self) -> Result<Option<(&[u8], u64)>> {
-        let Some(top) = self.heap.pop() else {
-            return Ok(None);
-        };
-        let old = std::mem::replace(&mut self.current, top.key);
-        self.spare.push(old);
-        let mut total = self.runs[top.run].count();
-        self.refill(top.run)?;
-        while let Some(next) = self.heap.peek() {
-            if next.key != self.current {
-                break;
-            }
-            let next = self.heap.pop().expect("peeked");
-            total = total.saturating_add(self.runs[next.run].count());
-            self.spare.push(next.key);
-            self.refill(next.run)?;
-        }
-        Ok(Some((&self.current, total)))
+        Ok(self.next_merged()?.map(|m| (m.key, m.count)))
     }
 
-    fn refill(&mut self, i: usize) -> Result<()> {
-        if self.runs[i].advance()? {
-            let mut key = self.spare.pop().unwrap_or_default();
-            key.clear();
-            key.extend_from_slice(self.runs[i].key());
-            self.heap.push(Head { run: i, key });
+    /// The next distinct key, its summed count and where it came from, or `None` at the end.
+    pub(crate) fn next_merged(&mut self) -> Result<Option<Merged<'_>>> {
+        let Some(from) = self.merge.peek()? else {
+            return Ok(None);
+        };
+        let run = self.merge.next()?.expect("peeked");
+        self.current.clear();
+        self.current.extend_from_slice(run.key());
+        let mut count = run.count();
+        while let Some(i) = self.merge.peek()? {
+            let run = self.merge.run(i);
+            if run.key() != self.current.as_slice() {
+                break;
+            }
+            count = count.saturating_add(run.count());
+            self.merge.next()?;
         }
-        Ok(())
+        Ok(Some(Merged {
+            key: &self.current,
+            count,
+            run: &self.merge.run(from).path,
+        }))
     }
 }
