@@ -51,6 +51,7 @@
 //! # Ok(()) }
 //! ```
 
+pub(crate) mod cooccurrence;
 pub mod corpus;
 mod counter;
 mod framed;
