@@ -22,14 +22,12 @@
 
 use std::path::{Path, PathBuf};
 
-use super::runs::{
-    put_varint, take_varint, RunInfo, RunMerger, RunReader, RunWriter, PHRASE_KIND, TARGET_KIND,
-    WORD_KIND,
-};
+use super::runs::{RunInfo, RunMerger, RunReader, RunWriter, PHRASE_KIND, TARGET_KIND, WORD_KIND};
 use super::score::{damaged, split_zero};
 use super::shard::combined_info;
 use crate::error::{Error, Result};
 use crate::files::{self, Partial};
+use crate::format::{take_varint, write_varint as put_varint};
 use crate::sort::ExternalSorter;
 
 /// The split keys of the source key ranges.

@@ -15,11 +15,12 @@
 //! shards merge by summing the counts of equal keys ([`RunMerger`]).
 
 use std::fs::File;
-use std::io::{self, BufReader, BufWriter, Read, Write};
+use std::io::{BufReader, BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
 
 use super::corpus::CorpusStats;
 use crate::error::{Error, Result};
+use crate::format::{read_varint_from, write_varint};
 use crate::sort::{Merge, SortedRun};
 
 /// Kind byte of a word-link count key.
@@ -64,63 +65,34 @@ impl RunInfo {
             other.max_sentence_length,
             other.unaligned_edges,
         ) {
-            return Err(Error::Unsupported(format!(
-                "{} was extracted with different settings (max length {}, max sentence length {}, unaligned edges {}) than the runs before it ({}, {}, {})",
-                other_name.display(),
-                other.max_length,
-                other.max_sentence_length,
-                other.unaligned_edges,
-                self.max_length,
-                self.max_sentence_length,
-                self.unaligned_edges
-            )));
+            return Err(Error::invalid(
+                "runs",
+                format!(
+                    "{} was extracted with different settings (max length {}, max sentence length {}, unaligned edges {}) than the runs before it ({}, {}, {})",
+                    other_name.display(),
+                    other.max_length,
+                    other.max_sentence_length,
+                    other.unaligned_edges,
+                    self.max_length,
+                    self.max_sentence_length,
+                    self.unaligned_edges
+                ),
+            ));
         }
         if let Some(repeat) = other.shards.iter().find(|s| self.shards.contains(s)) {
-            return Err(Error::Unsupported(format!(
-                "{} repeats corpus shard {repeat:016x}, which the runs before it already counted: each shard must be merged once",
-                other_name.display()
-            )));
+            return Err(Error::invalid(
+                "runs",
+                format!(
+                    "{} repeats corpus shard {repeat:016x}, which the runs before it already counted: each shard must be merged once",
+                    other_name.display()
+                ),
+            ));
         }
         self.shards.extend_from_slice(&other.shards);
         self.corpus.add(&other.corpus);
         self.pair_occurrences += other.pair_occurrences;
         Ok(())
     }
-}
-
-/// Appends `v` as LEB128.
-pub(crate) use crate::format::write_varint as put_varint;
-
-/// Reads a LEB128 value from the front of `bytes`, advancing it.
-/// `None` when the bytes end early or the value overflows 64 bits.
-pub(crate) fn take_varint(bytes: &mut &[u8]) -> Option<u64> {
-    let mut pos = 0;
-    let v = crate::format::read_varint(bytes, &mut pos)?;
-    *bytes = &bytes[pos..];
-    Some(v)
-}
-
-pub(crate) fn read_varint<R: Read>(r: &mut R) -> io::Result<Option<u64>> {
-    let mut v = 0u64;
-    let mut byte = [0u8];
-    for (k, shift) in (0..64).step_by(7).enumerate() {
-        match r.read(&mut byte)? {
-            0 if k == 0 => return Ok(None),
-            0 => return Err(io::ErrorKind::UnexpectedEof.into()),
-            _ => {}
-        }
-        if shift == 63 && byte[0] > 1 {
-            break; // past 64 bits
-        }
-        v |= u64::from(byte[0] & 0x7f) << shift;
-        if byte[0] < 0x80 {
-            return Ok(Some(v));
-        }
-    }
-    Err(io::Error::new(
-        io::ErrorKind::InvalidData,
-        "varint too long",
-    ))
 }
 
 /// Writes a run; records must be given in strictly increasing key order.
@@ -164,9 +136,9 @@ impl RunWriter {
             "run records must be pushed in strictly increasing key order"
         );
         self.buf.clear();
-        put_varint(&mut self.buf, key.len() as u64);
+        write_varint(&mut self.buf, key.len() as u64);
         self.buf.extend_from_slice(key);
-        put_varint(&mut self.buf, count);
+        write_varint(&mut self.buf, count);
         self.encoder
             .write_all(&self.buf)
             .map_err(|e| Error::io(&self.path, "writing", e))?;
@@ -225,7 +197,7 @@ impl RunReader {
             return Ok(false);
         }
         let damaged = |reason: String| Error::damaged_intermediate(&self.path, "count run", reason);
-        let len = read_varint(&mut self.input)
+        let len = read_varint_from(&mut self.input)
             .map_err(|e| damaged(e.to_string()))?
             .ok_or_else(|| damaged("missing end marker (truncated?)".into()))?;
         if len == 0 {
@@ -243,7 +215,7 @@ impl RunReader {
         if self.started && self.key <= self.previous {
             return Err(damaged("keys out of order".into()));
         }
-        self.count = read_varint(&mut self.input)
+        self.count = read_varint_from(&mut self.input)
             .map_err(|e| damaged(e.to_string()))?
             .ok_or_else(|| damaged("truncated record".into()))?;
         self.started = true;

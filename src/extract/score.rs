@@ -32,9 +32,10 @@ use std::path::{Path, PathBuf};
 use super::counter::hash_bytes;
 use super::index::IndexWriter;
 use super::ranges::TargetTotals;
-use super::runs::{put_varint, take_varint, RunInfo, RunMerger, RunReader, PHRASE_KIND, WORD_KIND};
+use super::runs::{RunInfo, RunMerger, RunReader, PHRASE_KIND, WORD_KIND};
 use super::shard::combined_info;
 use crate::error::{Error, Result};
+use crate::format::{take_varint, write_varint as put_varint};
 use crate::sort::{ExternalSorter, SortedRecords};
 use crate::table::{CountColumn, Header, PhrasePair, TsvWriter};
 

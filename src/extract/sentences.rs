@@ -35,9 +35,9 @@ use super::corpus::{
 };
 use super::index::IndexReader;
 use super::report::Progress;
-use super::runs::{put_varint, read_varint};
 use crate::error::{Error, Result};
 use crate::files;
+use crate::format::{read_varint_from as read_varint, write_varint as put_varint};
 use crate::table::{CountColumn, PhrasePair, TsvReader, TsvWriter};
 
 const MAGIC: &[u8; 8] = b"BALERTLY";
@@ -137,47 +137,47 @@ fn walk(fst: &Fst<Vec<u8>>, text: &str, starts: &[u32], start: usize, found: &mu
     }
 }
 
-/// Finds the table's phrases in one sentence pair and counts it.
-fn count_sentence(
-    pair: &SentencePair,
-    targets: &Fst<Vec<u8>>,
-    sources: &Fst<Vec<u8>>,
+/// One chunk's counting: the index's maps, where the chunk's sources start, and its counts.
+#[derive(Clone, Copy)]
+struct ChunkCounter<'a> {
+    targets: &'a Fst<Vec<u8>>,
+    sources: &'a Fst<Vec<u8>>,
     first_source: u64,
-    counts: &Cooccurrence,
-    s_found: &mut Vec<u32>,
-    t_found: &mut Vec<u32>,
-) {
-    t_found.clear();
-    for j in 0..pair.target_len() {
-        walk(targets, &pair.target, &pair.target_starts, j, t_found);
+    counts: &'a Cooccurrence,
+}
+
+impl ChunkCounter<'_> {
+    /// Finds the table's phrases in one sentence pair and counts it.
+    fn count_sentence(&self, pair: &SentencePair, s_found: &mut Vec<u32>, t_found: &mut Vec<u32>) {
+        t_found.clear();
+        for j in 0..pair.target_len() {
+            walk(self.targets, &pair.target, &pair.target_starts, j, t_found);
+        }
+        s_found.clear();
+        for i in 0..pair.source_len() {
+            walk(self.sources, &pair.source, &pair.source_starts, i, s_found);
+        }
+        let (first, n) = (self.first_source, self.counts.sources() as u64);
+        s_found.retain_mut(|s| {
+            let local = u64::from(*s).wrapping_sub(first);
+            *s = local as u32;
+            local < n
+        });
+        self.counts.add_sentence(s_found, t_found);
     }
-    s_found.clear();
-    for i in 0..pair.source_len() {
-        walk(sources, &pair.source, &pair.source_starts, i, s_found);
-    }
-    let n = counts.sources() as u64;
-    s_found.retain_mut(|s| {
-        let local = u64::from(*s).wrapping_sub(first_source);
-        *s = local as u32;
-        local < n
-    });
-    counts.add_sentence(s_found, t_found);
 }
 
 /// One pass over the corpus for one chunk.
 fn count_chunk(
     corpus: &CorpusPaths,
     corpus_options: CorpusOptions,
-    targets: &Fst<Vec<u8>>,
-    sources: &Fst<Vec<u8>>,
-    first_source: u64,
-    counts: &Cooccurrence,
+    counter: ChunkCounter,
     options: &TallyOptions,
     label: &str,
 ) -> Result<(CorpusStats, u64)> {
     let mut reader = CorpusReader::open(corpus, corpus_options)?;
     let progress = Progress::new(label, reader.total_bytes(), options.progress);
-    let counter = reader.progress_counter();
+    let bytes_read = reader.progress_counter();
     let threads = options.threads.max(1);
     let (tx, rx) = mpsc::sync_channel::<Vec<SentencePair>>(threads * 2);
     let rx = Mutex::new(rx);
@@ -188,15 +188,7 @@ fn count_chunk(
                 let (mut s_found, mut t_found) = (Vec::new(), Vec::new());
                 while let Ok(batch) = rx.lock().unwrap().recv() {
                     for pair in &batch {
-                        count_sentence(
-                            pair,
-                            targets,
-                            sources,
-                            first_source,
-                            counts,
-                            &mut s_found,
-                            &mut t_found,
-                        );
+                        counter.count_sentence(pair, &mut s_found, &mut t_found);
                     }
                 }
             });
@@ -213,7 +205,7 @@ fn count_chunk(
                     tx.send(batch).expect("workers outlive the reader");
                 }
                 progress.update(
-                    counter.load(Ordering::Relaxed),
+                    bytes_read.load(Ordering::Relaxed),
                     reader.stats().sentence_pairs,
                 );
                 if done {
@@ -390,10 +382,12 @@ pub fn tally(
         let stats = count_chunk(
             &corpus,
             corpus_options,
-            index.targets.as_fst(),
-            index.sources.as_fst(),
-            chunk.first_source,
-            &counts,
+            ChunkCounter {
+                targets: index.targets.as_fst(),
+                sources: index.sources.as_fst(),
+                first_source: chunk.first_source,
+                counts: &counts,
+            },
             options,
             &label,
         )?;

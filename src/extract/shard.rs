@@ -58,12 +58,6 @@ pub struct ShardRuns {
     _dir: TempDir,
 }
 
-/// A registered temporary directory (removed on drop and on Ctrl-C/SIGTERM) named `prefix…`
-/// inside `parent`, or the system's temporary directory.
-pub(crate) fn temp_dir(parent: &Option<PathBuf>, prefix: &str) -> Result<TempDir> {
-    TempDir::new(parent.as_deref(), prefix)
-}
-
 /// Checks the settings of an extraction before any work.
 pub(crate) fn check_settings(paths: &CorpusPaths, options: &ShardOptions) -> Result<()> {
     options.corpus.validate()?;
@@ -83,7 +77,7 @@ pub(crate) fn check_settings(paths: &CorpusPaths, options: &ShardOptions) -> Res
 pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<ShardRuns> {
     check_settings(paths, options)?;
     let threads = options.threads.max(1);
-    let dir = temp_dir(&options.temp_dir, "baler-extract-")?;
+    let dir = TempDir::new(options.temp_dir.as_deref(), "baler-extract-")?;
     let mut reader = CorpusReader::open(paths, options.corpus)?;
     let progress = Progress::new("extract", reader.total_bytes(), options.progress);
     let counter = reader.progress_counter();

@@ -203,7 +203,6 @@ pub struct TsvReader<R> {
     header: Header,
     slots: Vec<Slot>,
     buf: String,
-    pending: Option<String>,
 }
 
 impl<R: BufRead> TsvReader<R> {
@@ -246,7 +245,6 @@ impl<R: BufRead> TsvReader<R> {
             header: Header { metadata, schema },
             slots,
             buf,
-            pending: None,
         })
     }
 
@@ -269,9 +267,7 @@ impl<R: BufRead> TsvReader<R> {
     pub fn read_into(&mut self, pair: &mut PhrasePair) -> Result<bool> {
         loop {
             self.line_no += 1;
-            if let Some(line) = self.pending.take() {
-                self.buf = line;
-            } else if !files::read_line(&mut self.input, &mut self.buf, &self.file, self.line_no)? {
+            if !files::read_line(&mut self.input, &mut self.buf, &self.file, self.line_no)? {
                 return Ok(false);
             }
             if self.buf.is_empty() {
