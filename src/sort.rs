@@ -252,8 +252,15 @@ impl ExternalSorter {
         Ok(())
     }
 
-    /// Ends input and returns the merged stream.
+    /// Ends input and returns the merged stream. Once anything was spilled, the records still
+    /// in memory are spilled too, so that the merge holds only the runs' buffers (the memory
+    /// goes back before whatever consumes the stream fills its own).
     pub fn finish(mut self) -> Result<SortedRecords> {
+        if !self.runs.is_empty() {
+            self.spill()?;
+            self.arena = Vec::new();
+            self.index = Vec::new();
+        }
         self.sort_in_memory();
         let mut sources = Vec::with_capacity(self.runs.len() + 1);
         for path in &self.runs {

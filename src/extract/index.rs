@@ -20,7 +20,7 @@ use fst::{Map, MapBuilder};
 use std::sync::mpsc;
 
 use crate::error::{Error, Result};
-use crate::format::{read_varint_from as read_varint, take_varint, write_varint as put_varint};
+use crate::format::{take_varint, write_varint as put_varint};
 
 const MAGIC: &[u8; 8] = b"BALERIDX";
 const VERSION: u32 = 1;
@@ -285,11 +285,10 @@ impl IndexReader {
     }
 
     fn number(&mut self) -> Result<u64> {
-        match read_varint(&mut self.input) {
-            Ok(Some(v)) => Ok(v),
-            Ok(None) => Err(self.damaged("truncated")),
-            Err(e) => Err(self.damaged(&e.to_string())),
-        }
+        let path = &self.path;
+        super::framed::number(&mut self.input, |why| {
+            Error::damaged_intermediate(path, "phrase index", why)
+        })
     }
 
     /// Sources not yet read with [`IndexReader::next_source`].

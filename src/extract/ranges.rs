@@ -22,9 +22,8 @@
 
 use std::path::{Path, PathBuf};
 
-use super::runs::{RunInfo, RunMerger, RunReader, RunWriter, PHRASE_KIND, TARGET_KIND, WORD_KIND};
+use super::runs::{RunInfo, RunMerger, RunWriter, PHRASE_KIND, TARGET_KIND, WORD_KIND};
 use super::score::{damaged, split_zero};
-use super::shard::combined_info;
 use crate::error::{Error, Result};
 use crate::files::{self, Partial};
 use crate::format::{take_varint, write_varint as put_varint};
@@ -137,15 +136,7 @@ pub fn split_runs(
     memory: u64,
     temp_dir: Option<PathBuf>,
 ) -> Result<RunInfo> {
-    let readers = runs
-        .iter()
-        .map(|p| RunReader::open(p))
-        .collect::<Result<Vec<_>>>()?;
-    let mut info = combined_info(runs, &readers)?;
-    info.corpus = readers.iter().fold(Default::default(), |mut acc, r| {
-        acc.add(&r.info().corpus);
-        acc
-    });
+    let (mut merger, info) = RunMerger::open(runs)?;
     let mut partials = Vec::with_capacity(keys.ranges() + 1);
     let mut writers = Vec::with_capacity(keys.ranges());
     for r in 0..keys.ranges() {
@@ -155,7 +146,6 @@ pub fn split_runs(
     }
     let totals_partial = Partial::beside(&totals_path(prefix))?;
     let mut by_target = ExternalSorter::new((memory / 2).max(1 << 20) as usize, temp_dir)?;
-    let mut merger = RunMerger::new(readers)?;
     // Pairs summed over their alignments (adjacent in key order), re-keyed `target 0 source`.
     let mut pair: Vec<u8> = Vec::new();
     let mut pair_count = 0u64;
@@ -247,13 +237,9 @@ pub(crate) struct TargetTotals {
 impl TargetTotals {
     /// Opens the target-totals runs of every shard.
     pub(crate) fn open(paths: &[PathBuf]) -> Result<TargetTotals> {
-        let readers = paths
-            .iter()
-            .map(|p| RunReader::open(p))
-            .collect::<Result<Vec<_>>>()?;
-        let info = combined_info(paths, &readers)?;
+        let (merger, info) = RunMerger::open(paths)?;
         let mut totals = TargetTotals {
-            merger: RunMerger::new(readers)?,
+            merger,
             current: None,
             shards: info.shards,
         };

@@ -296,6 +296,28 @@ impl RunMerger {
         })
     }
 
+    /// Opens the runs at `paths` for merging, with their combined header: settings checked
+    /// to agree, a shard given twice refused, corpus statistics and occurrences summed.
+    pub(crate) fn open(paths: &[PathBuf]) -> Result<(RunMerger, RunInfo)> {
+        let readers = paths
+            .iter()
+            .map(|p| RunReader::open(p))
+            .collect::<Result<Vec<_>>>()?;
+        let Some(first) = readers.first() else {
+            return Err(Error::invalid("runs", "no count runs given"));
+        };
+        let mut info = RunInfo {
+            corpus: CorpusStats::default(),
+            pair_occurrences: 0,
+            shards: Vec::new(),
+            ..first.info().clone()
+        };
+        for (path, r) in paths.iter().zip(&readers) {
+            info.combine(r.info(), path)?;
+        }
+        Ok((RunMerger::new(readers)?, info))
+    }
+
     /// The next distinct key and its summed count, or `None` at the end.
     pub fn next_record(&mut self) -> Result<Option<(&[u8], u64)>> {
         Ok(self.next_merged()?.map(|m| (m.key, m.count)))

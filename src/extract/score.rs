@@ -32,8 +32,7 @@ use std::path::{Path, PathBuf};
 use super::counter::hash_bytes;
 use super::index::IndexWriter;
 use super::ranges::TargetTotals;
-use super::runs::{RunInfo, RunMerger, RunReader, PHRASE_KIND, WORD_KIND};
-use super::shard::combined_info;
+use super::runs::{RunInfo, RunMerger, PHRASE_KIND, WORD_KIND};
 use crate::error::{Error, Result};
 use crate::format::{take_varint, write_varint as put_varint};
 use crate::sort::{ExternalSorter, SortedRecords};
@@ -356,19 +355,33 @@ pub(crate) fn damaged(what: &str) -> Error {
     }
 }
 
-/// Checks what the row writer relies on in a phrase record of the merged runs: both phrases
-/// UTF-8, the internal alignment well formed and inside the pair.
-fn check_pair(
-    source: &[u8],
-    target: &[u8],
-    alignment: &[u8],
+/// The number of words of a phrase of a merged run, checking that it is UTF-8 (the row writer
+/// relies on it).
+fn phrase_words(phrase: &[u8]) -> std::result::Result<usize, String> {
+    std::str::from_utf8(phrase).map_err(|_| "a phrase is not UTF-8".to_string())?;
+    Ok(phrase.iter().filter(|&&b| b == b' ').count() + 1)
+}
+
+/// Reads the internal alignment `text` of a pair of `source_words` and `target_words` words
+/// into `links` (through the one link parser, [`crate::table::split_links`]).
+fn read_links(
+    text: &[u8],
+    source_words: usize,
+    target_words: usize,
     links: &mut Vec<(u16, u16)>,
 ) -> std::result::Result<(), String> {
-    let text = |bytes| std::str::from_utf8(bytes).map_err(|_| "a phrase is not UTF-8".to_string());
-    let (source, target) = (text(source)?, text(target)?);
-    let alignment =
-        std::str::from_utf8(alignment).map_err(|_| "an alignment is not UTF-8".to_string())?;
-    crate::table::parse_alignment(alignment, source, target, links)
+    links.clear();
+    let text = std::str::from_utf8(text).map_err(|_| "an alignment is not UTF-8".to_string())?;
+    for link in crate::table::split_links(text) {
+        let (i, j) = link.map_err(|link| format!("malformed alignment link {link:?}"))?;
+        if i >= source_words || j >= target_words {
+            return Err(format!(
+                "alignment link {i}-{j} outside a pair of {source_words} and {target_words} words"
+            ));
+        }
+        links.push((i as u16, j as u16));
+    }
+    Ok(())
 }
 
 /// One group's entries (a source's targets in pass 1, a target's sources in pass 2), buffered
@@ -537,18 +550,14 @@ pub fn merge_and_score<W: Write + Send>(
     output_name: &Path,
     options: &MergeOptions,
 ) -> Result<MergeSummary> {
-    let readers = runs
-        .iter()
-        .map(|p| RunReader::open(p))
-        .collect::<Result<Vec<_>>>()?;
-    let info = combined_info(runs, &readers)?;
+    let (merger, info) = RunMerger::open(runs)?;
     let target_totals = open_target_totals(options, &info)?;
     // Two sorters are alive at once in pass 2, and a sorter's buffers may hold up to twice
     // what it counts (vectors grow by doubling): a quarter of the budget each.
     let budget = (options.memory / 4).max(1 << 20) as usize;
     let sorter = || ExternalSorter::new(budget, options.temp_dir.clone());
 
-    let by_source = sum_sources(RunMerger::new(readers)?, sorter()?)?;
+    let by_source = sum_sources(merger, sorter()?)?;
     let mut index = match &options.index {
         Some(_) => Some(IndexWriter::new(&options.temp_dir)?),
         None => None,
@@ -608,6 +617,7 @@ fn sum_sources(mut merger: RunMerger, by_target: ExternalSorter) -> Result<Sourc
     let mut in_pair = false;
     let mut group = Group::default();
     let mut links = Vec::new();
+    let (mut source_words, mut target_words) = (0, 0);
     while let Some(record) = merger.next_merged()? {
         let count = record.count;
         let (&kind, rest) =
@@ -625,9 +635,18 @@ fn sum_sources(mut merger: RunMerger, by_target: ExternalSorter) -> Result<Sourc
         if s.is_empty() || t.is_empty() {
             return Err(record.damaged("empty phrase"));
         }
-        check_pair(s, t, a, &mut links).map_err(|reason| record.damaged(reason))?;
         let same_source = in_pair && s == source.as_slice();
-        if same_source && t == pair.target.as_slice() {
+        let same_pair = same_source && t == pair.target.as_slice();
+        // What the row writer relies on, checked here where the run is known.
+        if !same_source {
+            source_words = phrase_words(s).map_err(|reason| record.damaged(reason))?;
+        }
+        if !same_pair {
+            target_words = phrase_words(t).map_err(|reason| record.damaged(reason))?;
+        }
+        read_links(a, source_words, target_words, &mut links)
+            .map_err(|reason| record.damaged(reason))?;
+        if same_pair {
             pair.add(a, count);
             continue;
         }
@@ -900,9 +919,13 @@ fn write_rows<W: Write>(
             target_ids.clear();
             target_ids.extend(row.target.split(' ').map(|w| words.target_id(w.as_bytes())));
             let counts = PairCounts::decode(v)?;
-            let alignment = std::str::from_utf8(counts.alignment).map_err(|_| damaged("value"))?;
-            crate::table::parse_alignment(alignment, &row.source, &row.target, &mut row.alignment)
-                .map_err(|reason| damaged(&reason))?;
+            read_links(
+                counts.alignment,
+                source_ids.len(),
+                target_ids.len(),
+                &mut row.alignment,
+            )
+            .map_err(|reason| damaged(&reason))?;
             let (p_t_given_s, p_s_given_t) = scorer.probabilities(
                 counts.count,
                 counts.source_total,

@@ -37,8 +37,8 @@ use super::index::IndexReader;
 use super::report::Progress;
 use crate::error::{Error, Result};
 use crate::files;
-use crate::format::{read_varint_from as read_varint, write_varint as put_varint};
-use crate::table::{CountColumn, PhrasePair, TsvReader, TsvWriter};
+use crate::format::write_varint as put_varint;
+use crate::table::{CountColumn, TsvReader, TsvWriter};
 
 const MAGIC: &[u8; 8] = b"BALERTLY";
 const VERSION: u32 = 1;
@@ -195,11 +195,7 @@ fn count_chunk(
         }
         let result = (|| -> Result<()> {
             loop {
-                let mut batch = Vec::with_capacity(BATCH);
-                let mut pair = SentencePair::default();
-                while batch.len() < BATCH && reader.next_pair(&mut pair)? {
-                    batch.push(std::mem::take(&mut pair));
-                }
+                let batch = reader.next_batch(BATCH)?;
                 let done = batch.len() < BATCH;
                 if !batch.is_empty() {
                     tx.send(batch).expect("workers outlive the reader");
@@ -444,11 +440,10 @@ impl TallyReader {
     }
 
     fn number(&mut self) -> Result<u64> {
-        match read_varint(&mut self.input) {
-            Ok(Some(v)) => Ok(v),
-            Ok(None) => Err(self.damaged("truncated")),
-            Err(e) => Err(self.damaged(&e.to_string())),
-        }
+        let path = &self.path;
+        super::framed::number(&mut self.input, |why| {
+            Error::damaged_intermediate(path, "tally", why)
+        })
     }
 
     /// Reads the next record; at the end sets `row` to `u64::MAX`.
@@ -479,7 +474,8 @@ pub struct AttachSummary {
 /// Sums the `tallies` of all shards and writes `table` to `out` with the columns `cooc`,
 /// `df_source` and `df_target` appended to every row and `# sentence_pairs` set to the number
 /// of sentence pairs counted (it must agree with the table's own value, when present). The
-/// table is read and written through [`crate::table`] (columns in canonical order).
+/// table is read and written through [`crate::table`], its rows passed through unchanged
+/// (columns must be in canonical order).
 pub fn attach<W: Write>(
     table: &Path,
     tallies: &[PathBuf],
@@ -499,6 +495,13 @@ pub fn attach<W: Write>(
             &name,
             reader.line(),
             format!("the table already has a {:?} column", c.name()),
+        ));
+    }
+    if !reader.canonical_columns() {
+        return Err(Error::input(
+            &name,
+            reader.line(),
+            "columns must be in canonical order (source, target, alignment, scores, counts)",
         ));
     }
     if tallies.is_empty() {
@@ -526,14 +529,17 @@ pub fn attach<W: Write>(
     header.schema.counts.extend(added); // the last in canonical order
     let werr = |e| Error::io(output_name, "writing", e);
     let mut writer = TsvWriter::new(out, &header).map_err(werr)?;
-    let mut pair = PhrasePair::default();
-    let mut previous = PhrasePair::default();
+    let (mut previous, mut key) = (Vec::new(), Vec::new());
     let mut row = 0u64;
-    while reader.read_into(&mut pair)? {
-        if row > 0 && (&pair.source, &pair.target) <= (&previous.source, &previous.target) {
+    while let Some(record) = reader.read_raw()? {
+        key.clear();
+        key.extend_from_slice(record.source.as_bytes());
+        key.push(0);
+        key.extend_from_slice(record.target.as_bytes());
+        if row > 0 && key <= previous {
             return Err(Error::input(
                 &name,
-                reader.line(),
+                record.line_no,
                 "rows must be sorted by source, then target, without repeats",
             ));
         }
@@ -546,9 +552,8 @@ pub fn attach<W: Write>(
                 r.advance()?;
             }
         }
-        pair.counts.extend_from_slice(&counts);
-        writer.write_pair(&pair).map_err(werr)?;
-        std::mem::swap(&mut pair, &mut previous);
+        writer.write_extended(record.line, &counts).map_err(werr)?;
+        std::mem::swap(&mut key, &mut previous);
         row += 1;
     }
     if summed.table_pairs != row || readers.iter().any(|r| r.row != u64::MAX) {

@@ -13,7 +13,7 @@ use super::corpus::{CorpusOptions, CorpusPaths, CorpusReader, CorpusStats, Sente
 use super::counter::CountTable;
 use super::phrases::{write_inside, PhraseFinder, PhraseLimits, SpanPair};
 use super::report::Progress;
-use super::runs::{RunInfo, RunMerger, RunReader, RunWriter, PHRASE_KIND, WORD_KIND};
+use super::runs::{RunInfo, RunMerger, RunWriter, PHRASE_KIND, WORD_KIND};
 use crate::error::{Error, Result};
 use crate::files::TempDir;
 
@@ -104,11 +104,7 @@ pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<Shard
             .collect();
         let read_result = (|| -> Result<()> {
             loop {
-                let mut batch = Vec::with_capacity(BATCH);
-                let mut pair = SentencePair::default();
-                while batch.len() < BATCH && reader.next_pair(&mut pair)? {
-                    batch.push(std::mem::take(&mut pair));
-                }
+                let batch = reader.next_batch(BATCH)?;
                 let done = batch.len() < BATCH;
                 if !batch.is_empty() && tx.send(batch).is_err() {
                     return Ok(()); // every worker stopped; their errors are reported below
@@ -279,40 +275,14 @@ fn count_pair(
 /// place), checking that they were extracted with the same settings. Returns the combined
 /// header.
 pub fn merge_runs_into(runs: &[PathBuf], out: &Path) -> Result<RunInfo> {
-    let readers = runs
-        .iter()
-        .map(|p| RunReader::open(p))
-        .collect::<Result<Vec<_>>>()?;
-    let mut info = combined_info(runs, &readers)?;
-    info.corpus = readers.iter().fold(CorpusStats::default(), |mut acc, r| {
-        acc.add(&r.info().corpus);
-        acc
-    });
+    let (mut merger, info) = RunMerger::open(runs)?;
     let temp = crate::files::Partial::beside(out)?;
     let mut writer = RunWriter::create(temp.path(), &info)?;
-    let mut merger = RunMerger::new(readers)?;
     while let Some((key, count)) = merger.next_record()? {
         writer.push(key, count)?;
     }
     writer.finish()?;
     temp.persist()?;
-    Ok(info)
-}
-
-/// The combined headers of `readers`, checked for agreeing settings.
-pub(crate) fn combined_info(paths: &[PathBuf], readers: &[RunReader]) -> Result<RunInfo> {
-    let Some(first) = readers.first() else {
-        return Err(Error::invalid("runs", "no count runs given"));
-    };
-    let mut info = RunInfo {
-        corpus: CorpusStats::default(),
-        pair_occurrences: 0,
-        shards: Vec::new(),
-        ..first.info().clone()
-    };
-    for (path, r) in paths.iter().zip(readers) {
-        info.combine(r.info(), path)?;
-    }
     Ok(info)
 }
 
