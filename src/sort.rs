@@ -122,14 +122,28 @@ impl<R: SortedRun> Merge<R> {
 }
 
 /// A record in the sorter's arena: its first eight key bytes as a big-endian number (shorter
-/// keys padded with zeros, which orders like the bytes up to ties), start, key and value
-/// lengths. Sorting compares the prefix first, so most comparisons never touch the arena.
+/// keys padded with zeros, which orders like the bytes up to ties), where its key starts and
+/// the key's length. Sorting compares the prefix first, so most comparisons never touch the
+/// arena. In the arena a record is the value's length (`u32`, little-endian), the key, the
+/// value; 16 bytes a slot keep the index small and its sort fast.
 #[derive(Clone, Copy)]
 struct Slot {
     prefix: u64,
-    start: usize,
+    start: u32,
     klen: u32,
-    vlen: u32,
+}
+
+impl Slot {
+    fn key<'a>(&self, arena: &'a [u8]) -> &'a [u8] {
+        &arena[self.start as usize..(self.start + self.klen) as usize]
+    }
+
+    fn value<'a>(&self, arena: &'a [u8]) -> &'a [u8] {
+        let start = self.start as usize;
+        let vlen = u32::from_le_bytes(arena[start - 4..start].try_into().expect("4 bytes"));
+        let from = start + self.klen as usize;
+        &arena[from..from + vlen as usize]
+    }
 }
 
 fn prefix(key: &[u8]) -> u64 {
@@ -176,19 +190,23 @@ impl ExternalSorter {
 
     /// Adds one record.
     pub fn push(&mut self, key: &[u8], value: &[u8]) -> Result<()> {
-        let start = self.arena.len();
+        if self.arena.len() + 4 + key.len() + value.len() > u32::MAX as usize {
+            self.spill()?; // slots address the arena with 32 bits
+        }
         if self.in_order {
             if let Some(last) = self.index.last() {
-                self.in_order = self.arena[last.start..last.start + last.klen as usize] <= *key;
+                self.in_order = last.key(&self.arena) <= key;
             }
         }
+        self.arena
+            .extend_from_slice(&(value.len() as u32).to_le_bytes());
+        let start = self.arena.len() as u32;
         self.arena.extend_from_slice(key);
         self.arena.extend_from_slice(value);
         self.index.push(Slot {
             prefix: prefix(key),
             start,
             klen: key.len() as u32,
-            vlen: value.len() as u32,
         });
         if self.memory_used() >= self.budget {
             self.spill()?;
@@ -206,7 +224,7 @@ impl ExternalSorter {
             return; // pushed in key order already (the common case for pipeline outputs)
         }
         let arena = &self.arena;
-        let key = |s: &Slot| &arena[s.start..s.start + s.klen as usize];
+        let key = |s: &Slot| s.key(arena);
         // Prefix, then the whole key, then the arena position, which keeps equal keys in push
         // order without a stable sort's buffer.
         self.index.sort_unstable_by(|a, b| {
@@ -238,10 +256,12 @@ impl ExternalSorter {
             .map_err(werr)?;
         enc.include_checksum(true).map_err(werr)?;
         for s in &self.index {
+            let (key, value) = (s.key(&self.arena), s.value(&self.arena));
             enc.write_all(&s.klen.to_le_bytes()).map_err(werr)?;
-            enc.write_all(&s.vlen.to_le_bytes()).map_err(werr)?;
-            enc.write_all(&self.arena[s.start..s.start + (s.klen + s.vlen) as usize])
+            enc.write_all(&(value.len() as u32).to_le_bytes())
                 .map_err(werr)?;
+            enc.write_all(key).map_err(werr)?;
+            enc.write_all(value).map_err(werr)?;
         }
         let mut file = enc.finish().map_err(werr)?;
         file.flush().map_err(werr)?;
@@ -304,10 +324,7 @@ impl Source {
     fn value(&self) -> &[u8] {
         match self {
             Source::Run { value, .. } => value,
-            Source::Memory { arena, index, next } => {
-                let s = &index[*next - 1];
-                &arena[s.start + s.klen as usize..s.start + (s.klen + s.vlen) as usize]
-            }
+            Source::Memory { arena, index, next } => index[*next - 1].value(arena),
         }
     }
 }
@@ -352,10 +369,7 @@ impl SortedRun for Source {
     fn key(&self) -> &[u8] {
         match self {
             Source::Run { key, .. } => key,
-            Source::Memory { arena, index, next } => {
-                let s = &index[*next - 1];
-                &arena[s.start..s.start + s.klen as usize]
-            }
+            Source::Memory { arena, index, next } => index[*next - 1].key(arena),
         }
     }
 }

@@ -24,9 +24,7 @@ pub(crate) struct Cooccurrence {
     /// `offsets[s]..offsets[s + 1]`: source `s`'s pairs, in `targets` and in `cooc`.
     offsets: Vec<usize>,
     targets: Vec<u32>,
-    cooc: Vec<AtomicU32>,
-    df_source: Vec<AtomicU32>,
-    df_target: Vec<AtomicU32>,
+    counts: Counts,
 }
 
 fn zeros(n: usize) -> Vec<AtomicU32> {
@@ -44,9 +42,11 @@ impl Cooccurrence {
                 .all(|w| w[0] < w[1]))
         );
         Cooccurrence {
-            cooc: zeros(targets.len()),
-            df_source: zeros(offsets.len() - 1),
-            df_target: zeros(n_targets),
+            counts: Counts {
+                cooc: zeros(targets.len()),
+                df_source: zeros(offsets.len() - 1),
+                df_target: zeros(n_targets),
+            },
             offsets,
             targets,
         }
@@ -63,25 +63,25 @@ impl Cooccurrence {
         targets.sort_unstable();
         targets.dedup();
         for &t in targets.iter() {
-            self.df_target[t as usize].fetch_add(1, Ordering::Relaxed);
+            self.counts.df_target[t as usize].fetch_add(1, Ordering::Relaxed);
         }
         sources.sort_unstable();
         sources.dedup();
         for &s in sources.iter() {
-            self.df_source[s as usize].fetch_add(1, Ordering::Relaxed);
+            self.counts.df_source[s as usize].fetch_add(1, Ordering::Relaxed);
             let pairs = self.pairs(s as usize);
             let options = &self.targets[pairs.clone()];
             // Binary search from the smaller side.
             if options.len() <= targets.len() {
                 for (k, t) in options.iter().enumerate() {
                     if targets.binary_search(t).is_ok() {
-                        self.cooc[pairs.start + k].fetch_add(1, Ordering::Relaxed);
+                        self.counts.cooc[pairs.start + k].fetch_add(1, Ordering::Relaxed);
                     }
                 }
             } else {
                 for t in targets.iter() {
                     if let Ok(k) = options.binary_search(t) {
-                        self.cooc[pairs.start + k].fetch_add(1, Ordering::Relaxed);
+                        self.counts.cooc[pairs.start + k].fetch_add(1, Ordering::Relaxed);
                     }
                 }
             }
@@ -103,6 +103,26 @@ impl Cooccurrence {
         self.offsets.len() - 1
     }
 
+    /// The counts so far.
+    pub(crate) fn counts(&self) -> &Counts {
+        &self.counts
+    }
+
+    /// The counts alone, the option lists freed (for a caller that keeps the counts while it
+    /// writes its table).
+    pub(crate) fn into_counts(self) -> Counts {
+        self.counts
+    }
+}
+
+/// The counts of a [`Cooccurrence`].
+pub(crate) struct Counts {
+    cooc: Vec<AtomicU32>,
+    df_source: Vec<AtomicU32>,
+    df_target: Vec<AtomicU32>,
+}
+
+impl Counts {
     /// `cooc` of pair `p`.
     pub(crate) fn cooc(&self, p: usize) -> u32 {
         self.cooc[p].load(Ordering::Relaxed)
@@ -131,6 +151,7 @@ mod tests {
         counts.add_sentence(&mut vec![0, 0], &mut vec![2, 1, 2]);
         // Source 1, target 0 and 1.
         counts.add_sentence(&mut vec![1], &mut vec![0, 1]);
+        let counts = counts.into_counts();
         assert_eq!((counts.df_source(0), counts.df_source(1)), (1, 1));
         let df_target: Vec<u32> = (0..3).map(|t| counts.df_target(t)).collect();
         assert_eq!(df_target, [1, 2, 1]);

@@ -33,7 +33,7 @@ use std::sync::mpsc;
 
 use rustc_hash::FxHashMap;
 
-use super::cooccurrence::Cooccurrence;
+use super::cooccurrence::{Cooccurrence, Counts};
 use super::corpus::{CorpusPaths, CorpusReader, CorpusStats, SentencePair};
 use super::phrases::{write_inside, PhraseFinder, SpanPair};
 use super::report::Progress;
@@ -811,7 +811,7 @@ fn count_sentences(
     table: &Table,
     max: usize,
     threads: usize,
-) -> Cooccurrence {
+) -> Counts {
     // Each source's options: its pairs' targets, sorted, and the index of its first pair.
     let mut pair_start = Vec::with_capacity(ranks.source_nodes.len() + 1);
     let mut targets = Vec::with_capacity(table.pairs as usize);
@@ -840,7 +840,7 @@ fn count_sentences(
             });
         }
     });
-    counts
+    counts.into_counts()
 }
 
 /// The ranks of the extracted phrases occurring in sentence `k` of `side` (with repeats).
@@ -870,7 +870,7 @@ fn write_table<W: Write>(
     x: &Extracted,
     ranks: &Ranks,
     table: &Table,
-    counts: &Cooccurrence,
+    counts: &Counts,
     info: &RunInfo,
     discount: Discount,
     threads: usize,
@@ -994,7 +994,7 @@ struct RowContext<'a> {
     x: &'a Extracted,
     ranks: &'a Ranks,
     table: &'a Table,
-    counts: &'a Cooccurrence,
+    counts: &'a Counts,
     words: &'a WordTable,
     scorer: &'a Scorer,
     links: &'a [Vec<(u16, u16)>],

@@ -392,13 +392,14 @@ pub fn tally(
             writer = Some(TallyWriter::create(temp.path(), &info)?);
         }
         let writer = writer.as_mut().expect("created above");
+        let sums = counts.counts();
         for k in 0..counts.sources() {
-            let df_source = counts.df_source(k);
+            let df_source = sums.df_source(k);
             for p in counts.pairs(k) {
-                let df_target = counts.df_target(counts.target(p) as usize);
+                let df_target = sums.df_target(counts.target(p) as usize);
                 writer.push(
                     chunk.first_row + p as u64,
-                    [counts.cooc(p), df_source, df_target],
+                    [sums.cooc(p), df_source, df_target],
                 )?;
             }
         }

@@ -177,10 +177,11 @@ impl SentenceCounts {
         let sid = *self.sources.get(source)?;
         let tid = *self.targets.get(target)?;
         let pair = *self.pairs.get(&(sid, tid))?;
+        let counts = self.counts.counts();
         Some((
-            u64::from(self.counts.cooc(pair)),
-            u64::from(self.counts.df_source(sid as usize)),
-            u64::from(self.counts.df_target(tid as usize)),
+            u64::from(counts.cooc(pair)),
+            u64::from(counts.df_source(sid as usize)),
+            u64::from(counts.df_target(tid as usize)),
         ))
     }
 }
