@@ -31,8 +31,8 @@
 //! * [`files`]: the one I/O layer (inputs, atomic outputs, temporary directories, removal on
 //!   interrupt, line-parallel texts).
 //! * [`synth`]: synthetic tables for benchmarks.
-//! * [`Error`] and [`Result`]: the one error type (its module and the external sorter are
-//!   internal).
+//! * [`Error`] and [`Result`]: the one error type (its module and `sort`, the one external
+//!   sorter and k-way merge every stage uses, are internal).
 //!
 //! ```
 //! # fn main() -> baler::Result<()> {

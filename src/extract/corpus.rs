@@ -494,6 +494,17 @@ impl CorpusReader {
         self.total_bytes
     }
 
+    /// Reads up to `size` kept sentence pairs (fewer only at the end of the corpus), for
+    /// handing to worker threads.
+    pub(crate) fn next_batch(&mut self, size: usize) -> Result<Vec<SentencePair>> {
+        let mut batch = Vec::with_capacity(size);
+        let mut pair = SentencePair::default();
+        while batch.len() < size && self.next_pair(&mut pair)? {
+            batch.push(std::mem::take(&mut pair));
+        }
+        Ok(batch)
+    }
+
     /// Reads the next kept sentence pair into `pair`; false at the end of the corpus.
     pub fn next_pair(&mut self, pair: &mut SentencePair) -> Result<bool> {
         if self.line + 1 < self.options.lines.first && !self.skip_to_first()? {

@@ -51,6 +51,16 @@ pub(crate) fn open<T: DeserializeOwned>(
     Ok((input, info, bad))
 }
 
+/// Reads the next LEB128 number of a file's records; `damaged` makes the error of a truncated
+/// or malformed one.
+pub(crate) fn number(input: &mut FramedInput, damaged: impl Fn(&str) -> Error) -> Result<u64> {
+    match crate::format::read_varint_from(input) {
+        Ok(Some(v)) => Ok(v),
+        Ok(None) => Err(damaged("truncated")),
+        Err(e) => Err(damaged(&e.to_string())),
+    }
+}
+
 /// Checks that `path` is one zstd frame with a content checksum and that it decompresses to
 /// the end with a matching checksum.
 fn verify(path: &Path, bad: &impl Fn(&str) -> Error) -> Result<()> {

@@ -19,8 +19,8 @@ use fst::{Map, MapBuilder};
 
 use std::sync::mpsc;
 
-use super::runs::{put_varint, read_varint, take_varint};
 use crate::error::{Error, Result};
+use crate::format::{take_varint, write_varint as put_varint};
 
 const MAGIC: &[u8; 8] = b"BALERIDX";
 const VERSION: u32 = 1;
@@ -40,8 +40,13 @@ pub struct IndexInfo {
     pub max_sentence_length: usize,
 }
 
-fn fst_error(e: fst::Error) -> Error {
-    Error::Unsupported(format!("building the phrase index: {e}"))
+/// An error of the fst builder, converted at the boundary: writing failed, or (a bug) the
+/// keys did not arrive in increasing order.
+fn fst_error(path: &Path, e: fst::Error) -> Error {
+    match e {
+        fst::Error::Io(e) => Error::io(path, "writing", e),
+        fst::Error::Fst(_) => Error::Internal("phrase index keys out of order"),
+    }
 }
 
 /// Feeds keys in increasing order to an fst map builder on its own thread (building the map
@@ -53,8 +58,8 @@ struct FstFeed {
 }
 
 impl FstFeed {
-    fn new(file: BufWriter<File>) -> Result<FstFeed> {
-        let mut builder = MapBuilder::new(file).map_err(fst_error)?;
+    fn new(file: BufWriter<File>, path: PathBuf) -> Result<FstFeed> {
+        let mut builder = MapBuilder::new(file).map_err(|e| fst_error(&path, e))?;
         let (tx, rx) = mpsc::sync_channel::<Vec<u8>>(8);
         let handle = std::thread::spawn(move || -> Result<()> {
             let mut rank = 0u64;
@@ -62,12 +67,12 @@ impl FstFeed {
                 let mut rest = batch.as_slice();
                 while !rest.is_empty() {
                     let len = take_varint(&mut rest).expect("batch written below") as usize;
-                    builder.insert(&rest[..len], rank).map_err(fst_error)?;
+                    (builder.insert(&rest[..len], rank)).map_err(|e| fst_error(&path, e))?;
                     rest = &rest[len..];
                     rank += 1;
                 }
             }
-            builder.finish().map_err(fst_error)
+            builder.finish().map_err(|e| fst_error(&path, e))
         });
         Ok(FstFeed {
             tx: Some(tx),
@@ -102,7 +107,9 @@ impl FstFeed {
         }
         self.tx = None;
         match self.handle.take() {
-            Some(h) => h.join().expect("index builder panicked"),
+            Some(h) => h.join().map_err(|_| Error::WorkerPanicked {
+                worker: "phrase index builder",
+            })?,
             None => Ok(()),
         }
     }
@@ -121,7 +128,7 @@ pub(crate) struct IndexWriter {
 
 impl IndexWriter {
     pub(crate) fn new(temp_parent: &Option<PathBuf>) -> Result<IndexWriter> {
-        let dir = super::shard::temp_dir(temp_parent, "baler-index-")?;
+        let dir = crate::files::TempDir::new(temp_parent.as_deref(), "baler-index-")?;
         let create = |name: &str| -> Result<BufWriter<File>> {
             let p = dir.path().join(name);
             Ok(BufWriter::with_capacity(
@@ -129,8 +136,9 @@ impl IndexWriter {
                 File::create(&p).map_err(|e| Error::io(&p, "creating", e))?,
             ))
         };
-        let targets = FstFeed::new(create("targets.fst")?)?;
-        let sources = FstFeed::new(create("sources.fst")?)?;
+        let part =
+            |name: &str| -> Result<FstFeed> { FstFeed::new(create(name)?, dir.path().join(name)) };
+        let (targets, sources) = (part("targets.fst")?, part("sources.fst")?);
         let rows = create("rows")?;
         Ok(IndexWriter {
             dir,
@@ -277,11 +285,10 @@ impl IndexReader {
     }
 
     fn number(&mut self) -> Result<u64> {
-        match read_varint(&mut self.input) {
-            Ok(Some(v)) => Ok(v),
-            Ok(None) => Err(self.damaged("truncated")),
-            Err(e) => Err(self.damaged(&e.to_string())),
-        }
+        let path = &self.path;
+        super::framed::number(&mut self.input, |why| {
+            Error::damaged_intermediate(path, "phrase index", why)
+        })
     }
 
     /// Sources not yet read with [`IndexReader::next_source`].

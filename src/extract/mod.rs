@@ -51,6 +51,7 @@
 //! # Ok(()) }
 //! ```
 
+pub(crate) mod cooccurrence;
 pub mod corpus;
 mod counter;
 mod framed;
@@ -59,7 +60,6 @@ pub mod phrases;
 pub mod ranges;
 mod report;
 mod resident;
-mod resort;
 pub mod runs;
 pub mod score;
 pub mod sentences;
@@ -155,7 +155,8 @@ fn extract_spilling(
 ) -> Result<ExtractSummary> {
     let out = output.path().to_path_buf();
     let out = out.as_path();
-    let work = shard::temp_dir(&options.shard.temp_dir, "baler-extract-work-")?;
+    let work =
+        crate::files::TempDir::new(options.shard.temp_dir.as_deref(), "baler-extract-work-")?;
     let merged_path = work.path().join("merged.tsv.zst");
     let index_path = work.path().join("merged.index");
     let mut steps = [0.0; 4];

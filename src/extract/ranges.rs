@@ -22,15 +22,12 @@
 
 use std::path::{Path, PathBuf};
 
-use super::resort::Resorter;
-use super::runs::{
-    put_varint, take_varint, RunInfo, RunMerger, RunReader, RunWriter, PHRASE_KIND, TARGET_KIND,
-    WORD_KIND,
-};
+use super::runs::{RunInfo, RunMerger, RunWriter, PHRASE_KIND, TARGET_KIND, WORD_KIND};
 use super::score::{damaged, split_zero};
-use super::shard::combined_info;
 use crate::error::{Error, Result};
 use crate::files::{self, Partial};
+use crate::format::{take_varint, write_varint as put_varint};
+use crate::sort::ExternalSorter;
 
 /// The split keys of the source key ranges.
 ///
@@ -139,15 +136,7 @@ pub fn split_runs(
     memory: u64,
     temp_dir: Option<PathBuf>,
 ) -> Result<RunInfo> {
-    let readers = runs
-        .iter()
-        .map(|p| RunReader::open(p))
-        .collect::<Result<Vec<_>>>()?;
-    let mut info = combined_info(runs, &readers)?;
-    info.corpus = readers.iter().fold(Default::default(), |mut acc, r| {
-        acc.add(&r.info().corpus);
-        acc
-    });
+    let (mut merger, info) = RunMerger::open(runs)?;
     let mut partials = Vec::with_capacity(keys.ranges() + 1);
     let mut writers = Vec::with_capacity(keys.ranges());
     for r in 0..keys.ranges() {
@@ -156,14 +145,13 @@ pub fn split_runs(
         partials.push(partial);
     }
     let totals_partial = Partial::beside(&totals_path(prefix))?;
-    let mut by_target = Resorter::new((memory / 2).max(1 << 20) as usize, temp_dir);
-    let mut merger = RunMerger::new(readers)?;
+    let mut by_target = ExternalSorter::new((memory / 2).max(1 << 20) as usize, temp_dir)?;
     // Pairs summed over their alignments (adjacent in key order), re-keyed `target 0 source`.
     let mut pair: Vec<u8> = Vec::new();
     let mut pair_count = 0u64;
     let mut key = Vec::new();
     let mut value = Vec::new();
-    let mut flush = |pair: &[u8], count: u64, by_target: &mut Resorter| -> Result<()> {
+    let mut flush = |pair: &[u8], count: u64, by_target: &mut ExternalSorter| -> Result<()> {
         if pair.is_empty() {
             return Ok(());
         }
@@ -176,8 +164,11 @@ pub fn split_runs(
         put_varint(&mut value, count);
         by_target.push(&key, &value)
     };
-    while let Some((record, count)) = merger.next_record()? {
-        let (&kind, rest) = record.split_first().ok_or_else(|| damaged("empty key"))?;
+    while let Some(merged) = merger.next_merged()? {
+        let (record, count) = (merged.key, merged.count);
+        let (&kind, rest) = record
+            .split_first()
+            .ok_or_else(|| merged.damaged("empty key"))?;
         if kind == WORD_KIND {
             for w in &mut writers {
                 w.push(record, count)?;
@@ -185,12 +176,12 @@ pub fn split_runs(
             continue;
         }
         if kind != PHRASE_KIND {
-            return Err(damaged(&format!("unknown record kind {kind}")));
+            return Err(merged.damaged(format!("unknown record kind {kind}")));
         }
         let (s, rest_t) = split_zero(rest);
         let (t, _) = split_zero(rest_t);
         if s.is_empty() || t.is_empty() {
-            return Err(damaged("empty phrase"));
+            return Err(merged.damaged("empty phrase"));
         }
         writers[keys.range_of(s)].push(record, count)?;
         let this_pair = &rest[..s.len() + 1 + t.len()];
@@ -211,9 +202,8 @@ pub fn split_runs(
     let mut sorted = by_target.finish()?;
     let mut target: Vec<u8> = vec![TARGET_KIND];
     let mut total = 0u64;
-    while let Some(record) = sorted.next_record()? {
-        let (t, rest) = split_zero(record);
-        let (_, mut v) = split_zero(rest);
+    while let Some((key, mut v)) = sorted.next_record()? {
+        let (t, _) = split_zero(key);
         let count = take_varint(&mut v).ok_or_else(|| damaged("value"))?;
         if &target[1..] != t {
             if target.len() > 1 {
@@ -247,13 +237,9 @@ pub(crate) struct TargetTotals {
 impl TargetTotals {
     /// Opens the target-totals runs of every shard.
     pub(crate) fn open(paths: &[PathBuf]) -> Result<TargetTotals> {
-        let readers = paths
-            .iter()
-            .map(|p| RunReader::open(p))
-            .collect::<Result<Vec<_>>>()?;
-        let info = combined_info(paths, &readers)?;
+        let (merger, info) = RunMerger::open(paths)?;
         let mut totals = TargetTotals {
-            merger: RunMerger::new(readers)?,
+            merger,
             current: None,
             shards: info.shards,
         };
@@ -267,10 +253,10 @@ impl TargetTotals {
     }
 
     fn advance(&mut self) -> Result<()> {
-        self.current = match self.merger.next_record()? {
-            Some((key, count)) => match key.split_first() {
-                Some((&TARGET_KIND, t)) => Some((t.to_vec(), count)),
-                _ => return Err(damaged("not a target total")),
+        self.current = match self.merger.next_merged()? {
+            Some(merged) => match merged.key.split_first() {
+                Some((&TARGET_KIND, t)) => Some((t.to_vec(), merged.count)),
+                _ => return Err(merged.damaged("not a target total")),
             },
             None => None,
         };
@@ -284,10 +270,13 @@ impl TargetTotals {
                 Some((t, count)) if t.as_slice() == target => return Ok(*count),
                 Some((t, _)) if t.as_slice() < target => self.advance()?,
                 _ => {
-                    return Err(Error::Unsupported(format!(
-                        "the target totals lack the target {:?}: give the target totals of every shard whose runs are merged",
-                        String::from_utf8_lossy(target)
-                    )))
+                    return Err(Error::invalid(
+                        "--target-totals",
+                        format!(
+                            "the target totals lack the target {:?}: give the target totals of every shard whose runs are merged",
+                            String::from_utf8_lossy(target)
+                        ),
+                    ))
                 }
             }
         }

@@ -28,11 +28,12 @@
 //! takes the map/reduce path.
 
 use std::io::Write;
-use std::sync::atomic::{AtomicU32, AtomicUsize, Ordering};
+use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::mpsc;
 
 use rustc_hash::FxHashMap;
 
+use super::cooccurrence::{Cooccurrence, Counts};
 use super::corpus::{CorpusPaths, CorpusReader, CorpusStats, SentencePair};
 use super::phrases::{write_inside, PhraseFinder, SpanPair};
 use super::report::Progress;
@@ -802,30 +803,15 @@ fn sum_range(mut keys: Vec<u128>, first: u32, end: u32, alignment_of_rank: &[u32
     range
 }
 
-/// Step 4's result: `cooc` per pair (ranges concatenated), `df` per source and target.
-struct SentenceCounts {
-    cooc: Vec<AtomicU32>,
-    df_source: Vec<AtomicU32>,
-    df_target: Vec<AtomicU32>,
-}
-
-fn zeros(n: usize) -> Vec<AtomicU32> {
-    (0..n).map(|_| AtomicU32::new(0)).collect()
-}
-
-/// Step 4.
+/// Step 4: the sentence-level counts ([`Cooccurrence`]: pairs numbered as the ranges
+/// concatenated, sources and targets by rank), sentences split between the threads.
 fn count_sentences(
     x: &Extracted,
     ranks: &Ranks,
     table: &Table,
     max: usize,
     threads: usize,
-) -> SentenceCounts {
-    let counts = SentenceCounts {
-        cooc: zeros(table.pairs as usize),
-        df_source: zeros(ranks.source_nodes.len()),
-        df_target: zeros(ranks.target_nodes.len()),
-    };
+) -> Counts {
     // Each source's options: its pairs' targets, sorted, and the index of its first pair.
     let mut pair_start = Vec::with_capacity(ranks.source_nodes.len() + 1);
     let mut targets = Vec::with_capacity(table.pairs as usize);
@@ -837,52 +823,24 @@ fn count_sentences(
         }
     }
     pair_start.push(targets.len());
+    let counts = Cooccurrence::new(pair_start, targets, ranks.target_nodes.len());
     let sentences = x.source.sentences.ends.len();
     let per_thread = sentences.div_ceil(threads.max(1)).max(1);
-    let (counts_ref, pair_start, targets) = (&counts, &pair_start, &targets);
+    let counts_ref = &counts;
     std::thread::scope(|scope| {
         for first in (0..sentences).step_by(per_thread) {
             let last = (first + per_thread).min(sentences);
             scope.spawn(move || {
-                let mut seen_target = vec![u32::MAX; ranks.target_nodes.len()];
                 let (mut s_found, mut t_found) = (Vec::new(), Vec::new());
                 for k in first..last {
-                    let stamp = k as u32;
                     find_phrases(&x.target, &ranks.target_rank, k, max, &mut t_found);
-                    for &t in &t_found {
-                        if seen_target[t as usize] != stamp {
-                            seen_target[t as usize] = stamp;
-                            counts_ref.df_target[t as usize].fetch_add(1, Ordering::Relaxed);
-                        }
-                    }
-                    t_found.sort_unstable();
-                    t_found.dedup();
                     find_phrases(&x.source, &ranks.source_rank, k, max, &mut s_found);
-                    s_found.sort_unstable();
-                    s_found.dedup();
-                    for &s in &s_found {
-                        counts_ref.df_source[s as usize].fetch_add(1, Ordering::Relaxed);
-                        let (lo, hi) = (pair_start[s as usize], pair_start[s as usize + 1]);
-                        let options = &targets[lo..hi];
-                        if options.len() <= t_found.len() {
-                            for (p, t) in options.iter().enumerate() {
-                                if seen_target[*t as usize] == stamp {
-                                    counts_ref.cooc[lo + p].fetch_add(1, Ordering::Relaxed);
-                                }
-                            }
-                        } else {
-                            for t in &t_found {
-                                if let Ok(p) = options.binary_search(t) {
-                                    counts_ref.cooc[lo + p].fetch_add(1, Ordering::Relaxed);
-                                }
-                            }
-                        }
-                    }
+                    counts_ref.add_sentence(&mut s_found, &mut t_found);
                 }
             });
         }
     });
-    counts
+    counts.into_counts()
 }
 
 /// The ranks of the extracted phrases occurring in sentence `k` of `side` (with repeats).
@@ -912,7 +870,7 @@ fn write_table<W: Write>(
     x: &Extracted,
     ranks: &Ranks,
     table: &Table,
-    counts: &SentenceCounts,
+    counts: &Counts,
     info: &RunInfo,
     discount: Discount,
     threads: usize,
@@ -1036,7 +994,7 @@ struct RowContext<'a> {
     x: &'a Extracted,
     ranks: &'a Ranks,
     table: &'a Table,
-    counts: &'a SentenceCounts,
+    counts: &'a Counts,
     words: &'a WordTable,
     scorer: &'a Scorer,
     links: &'a [Vec<(u16, u16)>],
@@ -1072,7 +1030,7 @@ impl RowContext<'_> {
             );
             self.x.source.tree.ids(node, &mut f);
             let (cs, ns) = (self.table.source_totals[s], self.table.source_distinct[s]);
-            let df_source = self.counts.df_source[s].load(Ordering::Relaxed);
+            let df_source = self.counts.df_source(s);
             for p in range.offsets[k]..range.offsets[k + 1] {
                 let pair = range.pairs[p];
                 let t = pair.target as usize;
@@ -1093,9 +1051,9 @@ impl RowContext<'_> {
                     pair.count,
                     cs,
                     ct,
-                    u64::from(self.counts.cooc[pair_index].load(Ordering::Relaxed)),
+                    u64::from(self.counts.cooc(pair_index)),
                     u64::from(df_source),
-                    u64::from(self.counts.df_target[t].load(Ordering::Relaxed)),
+                    u64::from(self.counts.df_target(t)),
                 ]);
                 writer.write_pair(&row)?;
             }

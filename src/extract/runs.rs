@@ -14,14 +14,14 @@
 //! the target totals of [`super::ranges`]) are a target phrase. Runs from any number of
 //! shards merge by summing the counts of equal keys ([`RunMerger`]).
 
-use std::cmp::Ordering;
-use std::collections::BinaryHeap;
 use std::fs::File;
-use std::io::{self, BufReader, BufWriter, Read, Write};
+use std::io::{BufReader, BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
 
 use super::corpus::CorpusStats;
 use crate::error::{Error, Result};
+use crate::format::{read_varint_from, write_varint};
+use crate::sort::{Merge, SortedRun};
 
 /// Kind byte of a word-link count key.
 pub const WORD_KIND: u8 = 1;
@@ -65,63 +65,34 @@ impl RunInfo {
             other.max_sentence_length,
             other.unaligned_edges,
         ) {
-            return Err(Error::Unsupported(format!(
-                "{} was extracted with different settings (max length {}, max sentence length {}, unaligned edges {}) than the runs before it ({}, {}, {})",
-                other_name.display(),
-                other.max_length,
-                other.max_sentence_length,
-                other.unaligned_edges,
-                self.max_length,
-                self.max_sentence_length,
-                self.unaligned_edges
-            )));
+            return Err(Error::invalid(
+                "runs",
+                format!(
+                    "{} was extracted with different settings (max length {}, max sentence length {}, unaligned edges {}) than the runs before it ({}, {}, {})",
+                    other_name.display(),
+                    other.max_length,
+                    other.max_sentence_length,
+                    other.unaligned_edges,
+                    self.max_length,
+                    self.max_sentence_length,
+                    self.unaligned_edges
+                ),
+            ));
         }
         if let Some(repeat) = other.shards.iter().find(|s| self.shards.contains(s)) {
-            return Err(Error::Unsupported(format!(
-                "{} repeats corpus shard {repeat:016x}, which the runs before it already counted: each shard must be merged once",
-                other_name.display()
-            )));
+            return Err(Error::invalid(
+                "runs",
+                format!(
+                    "{} repeats corpus shard {repeat:016x}, which the runs before it already counted: each shard must be merged once",
+                    other_name.display()
+                ),
+            ));
         }
         self.shards.extend_from_slice(&other.shards);
         self.corpus.add(&other.corpus);
         self.pair_occurrences += other.pair_occurrences;
         Ok(())
     }
-}
-
-/// Appends `v` as LEB128.
-pub(crate) use crate::format::write_varint as put_varint;
-
-/// Reads a LEB128 value from the front of `bytes`, advancing it.
-/// `None` when the bytes end early or the value overflows 64 bits.
-pub(crate) fn take_varint(bytes: &mut &[u8]) -> Option<u64> {
-    let mut pos = 0;
-    let v = crate::format::read_varint(bytes, &mut pos)?;
-    *bytes = &bytes[pos..];
-    Some(v)
-}
-
-pub(crate) fn read_varint<R: Read>(r: &mut R) -> io::Result<Option<u64>> {
-    let mut v = 0u64;
-    let mut byte = [0u8];
-    for (k, shift) in (0..64).step_by(7).enumerate() {
-        match r.read(&mut byte)? {
-            0 if k == 0 => return Ok(None),
-            0 => return Err(io::ErrorKind::UnexpectedEof.into()),
-            _ => {}
-        }
-        if shift == 63 && byte[0] > 1 {
-            break; // past 64 bits
-        }
-        v |= u64::from(byte[0] & 0x7f) << shift;
-        if byte[0] < 0x80 {
-            return Ok(Some(v));
-        }
-    }
-    Err(io::Error::new(
-        io::ErrorKind::InvalidData,
-        "varint too long",
-    ))
 }
 
 /// Writes a run; records must be given in strictly increasing key order.
@@ -165,9 +136,9 @@ impl RunWriter {
             "run records must be pushed in strictly increasing key order"
         );
         self.buf.clear();
-        put_varint(&mut self.buf, key.len() as u64);
+        write_varint(&mut self.buf, key.len() as u64);
         self.buf.extend_from_slice(key);
-        put_varint(&mut self.buf, count);
+        write_varint(&mut self.buf, count);
         self.encoder
             .write_all(&self.buf)
             .map_err(|e| Error::io(&self.path, "writing", e))?;
@@ -226,7 +197,7 @@ impl RunReader {
             return Ok(false);
         }
         let damaged = |reason: String| Error::damaged_intermediate(&self.path, "count run", reason);
-        let len = read_varint(&mut self.input)
+        let len = read_varint_from(&mut self.input)
             .map_err(|e| damaged(e.to_string()))?
             .ok_or_else(|| damaged("missing end marker (truncated?)".into()))?;
         if len == 0 {
@@ -244,7 +215,7 @@ impl RunReader {
         if self.started && self.key <= self.previous {
             return Err(damaged("keys out of order".into()));
         }
-        self.count = read_varint(&mut self.input)
+        self.count = read_varint_from(&mut self.input)
             .map_err(|e| damaged(e.to_string()))?
             .ok_or_else(|| damaged("truncated record".into()))?;
         self.started = true;
@@ -262,30 +233,17 @@ impl RunReader {
     }
 }
 
-struct Head {
-    run: usize,
-    key: Vec<u8>,
-}
-
-impl PartialEq for Head {
-    fn eq(&self, other: &Self) -> bool {
-        self.cmp(other) == Ordering::Equal
+impl SortedRun for RunReader {
+    fn advance(&mut self) -> Result<bool> {
+        RunReader::advance(self)
     }
-}
-impl Eq for Head {}
-impl Ord for Head {
-    fn cmp(&self, other: &Self) -> Ordering {
-        // Smallest key on top of the max-heap.
-        other.key.cmp(&self.key).then(other.run.cmp(&self.run))
-    }
-}
-impl PartialOrd for Head {
-    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
-        Some(self.cmp(other))
+    fn key(&self) -> &[u8] {
+        RunReader::key(self)
     }
 }
 
-/// Merges runs into one stream in key order, summing the counts of equal keys.
+/// Merges runs into one stream in key order, summing the counts of equal keys (the k-way
+/// merge is [`crate::sort`]'s).
 ///
 /// # Examples
 /// ```
@@ -310,60 +268,82 @@ impl PartialOrd for Head {
 /// assert_eq!(out, [("anchor".to_string(), 5), ("buoy".into(), 2), ("quay".into(), 4)]);
 /// ```
 pub struct RunMerger {
-    runs: Vec<RunReader>,
-    heap: BinaryHeap<Head>,
+    merge: Merge<RunReader>,
     current: Vec<u8>,
-    spare: Vec<Vec<u8>>,
+}
+
+/// A record of a [`RunMerger`]: a key, its count summed over the runs, and the first run it
+/// was read from (named by [`Merged::damaged`]).
+pub(crate) struct Merged<'a> {
+    pub(crate) key: &'a [u8],
+    pub(crate) count: u64,
+    run: &'a Path,
+}
+
+impl Merged<'_> {
+    /// The error of a record that does not parse, naming the run it came from.
+    pub(crate) fn damaged(&self, reason: impl Into<String>) -> Error {
+        Error::damaged_intermediate(self.run, "count run", reason)
+    }
 }
 
 impl RunMerger {
     /// Starts merging `runs`.
-    pub fn new(mut runs: Vec<RunReader>) -> Result<RunMerger> {
-        let mut heap = BinaryHeap::with_capacity(runs.len());
-        for (i, run) in runs.iter_mut().enumerate() {
-            if run.advance()? {
-                heap.push(Head {
-                    run: i,
-                    key: run.key().to_vec(),
-                });
-            }
-        }
+    pub fn new(runs: Vec<RunReader>) -> Result<RunMerger> {
         Ok(RunMerger {
-            runs,
-            heap,
+            merge: Merge::new(runs)?,
             current: Vec::new(),
-            spare: Vec::new(),
         })
+    }
+
+    /// Opens the runs at `paths` for merging, with their combined header: settings checked
+    /// to agree, a shard given twice refused, corpus statistics and occurrences summed.
+    pub(crate) fn open(paths: &[PathBuf]) -> Result<(RunMerger, RunInfo)> {
+        let readers = paths
+            .iter()
+            .map(|p| RunReader::open(p))
+            .collect::<Result<Vec<_>>>()?;
+        let Some(first) = readers.first() else {
+            return Err(Error::invalid("runs", "no count runs given"));
+        };
+        let mut info = RunInfo {
+            corpus: CorpusStats::default(),
+            pair_occurrences: 0,
+            shards: Vec::new(),
+            ..first.info().clone()
+        };
+        for (path, r) in paths.iter().zip(&readers) {
+            info.combine(r.info(), path)?;
+        }
+        Ok((RunMerger::new(readers)?, info))
     }
 
     /// The next distinct key and its summed count, or `None` at the end.
     pub fn next_record(&mut self) -> Result<Option<(&[u8], u64)>> {
-        let Some(top) = self.heap.pop() else {
-            return Ok(None);
-        };
-        let old = std::mem::replace(&mut self.current, top.key);
-        self.spare.push(old);
-        let mut total = self.runs[top.run].count();
-        self.refill(top.run)?;
-        while let Some(next) = self.heap.peek() {
-            if next.key != self.current {
-                break;
-            }
-            let next = self.heap.pop().expect("peeked");
-            total = total.saturating_add(self.runs[next.run].count());
-            self.spare.push(next.key);
-            self.refill(next.run)?;
-        }
-        Ok(Some((&self.current, total)))
+        Ok(self.next_merged()?.map(|m| (m.key, m.count)))
     }
 
-    fn refill(&mut self, i: usize) -> Result<()> {
-        if self.runs[i].advance()? {
-            let mut key = self.spare.pop().unwrap_or_default();
-            key.clear();
-            key.extend_from_slice(self.runs[i].key());
-            self.heap.push(Head { run: i, key });
+    /// The next distinct key, its summed count and where it came from, or `None` at the end.
+    pub(crate) fn next_merged(&mut self) -> Result<Option<Merged<'_>>> {
+        let Some(from) = self.merge.peek()? else {
+            return Ok(None);
+        };
+        let run = self.merge.next()?.expect("peeked");
+        self.current.clear();
+        self.current.extend_from_slice(run.key());
+        let mut count = run.count();
+        while let Some(i) = self.merge.peek()? {
+            let run = self.merge.run(i);
+            if run.key() != self.current.as_slice() {
+                break;
+            }
+            count = count.saturating_add(run.count());
+            self.merge.next()?;
         }
-        Ok(())
+        Ok(Some(Merged {
+            key: &self.current,
+            count,
+            run: &self.merge.run(from).path,
+        }))
     }
 }

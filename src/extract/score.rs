@@ -32,10 +32,10 @@ use std::path::{Path, PathBuf};
 use super::counter::hash_bytes;
 use super::index::IndexWriter;
 use super::ranges::TargetTotals;
-use super::resort::Resorter;
-use super::runs::{put_varint, take_varint, RunInfo, RunMerger, RunReader, PHRASE_KIND, WORD_KIND};
-use super::shard::combined_info;
+use super::runs::{RunInfo, RunMerger, PHRASE_KIND, WORD_KIND};
 use crate::error::{Error, Result};
+use crate::format::{take_varint, write_varint as put_varint};
+use crate::sort::{ExternalSorter, SortedRecords};
 use crate::table::{CountColumn, Header, PhrasePair, TsvWriter};
 
 /// Score columns written by extraction, in order.
@@ -346,39 +346,200 @@ pub(crate) fn split_zero(bytes: &[u8]) -> (&[u8], &[u8]) {
     }
 }
 
-/// The error of a count run whose records do not parse.
+/// The error of a record of this run's own sorts (or of the batches between its threads) that
+/// does not read back as written: what reaches them from a count run was checked on the way in.
 pub(crate) fn damaged(what: &str) -> Error {
-    Error::Unsupported(format!("damaged count run: {what}"))
+    Error::DamagedTemporary {
+        what: "sort run",
+        reason: what.to_string(),
+    }
 }
 
-/// One source's pairs, buffered until its total is known.
+/// The number of words of a phrase of a merged run, checking that it is UTF-8 (the row writer
+/// relies on it).
+fn phrase_words(phrase: &[u8]) -> std::result::Result<usize, String> {
+    std::str::from_utf8(phrase).map_err(|_| "a phrase is not UTF-8".to_string())?;
+    Ok(phrase.iter().filter(|&&b| b == b' ').count() + 1)
+}
+
+/// Reads the internal alignment `text` of a pair of `source_words` and `target_words` words
+/// into `links` (through the one link parser, [`crate::table::split_links`]).
+fn read_links(
+    text: &[u8],
+    source_words: usize,
+    target_words: usize,
+    links: &mut Vec<(u16, u16)>,
+) -> std::result::Result<(), String> {
+    links.clear();
+    let text = std::str::from_utf8(text).map_err(|_| "an alignment is not UTF-8".to_string())?;
+    for link in crate::table::split_links(text) {
+        let (i, j) = link.map_err(|link| format!("malformed alignment link {link:?}"))?;
+        if i >= source_words || j >= target_words {
+            return Err(format!(
+                "alignment link {i}-{j} outside a pair of {source_words} and {target_words} words"
+            ));
+        }
+        links.push((i as u16, j as u16));
+    }
+    Ok(())
+}
+
+/// One group's entries (a source's targets in pass 1, a target's sources in pass 2), buffered
+/// until the group's total is known.
 #[derive(Default)]
 struct Group {
     bytes: Vec<u8>,
-    // (start in bytes, phrase length, count); the alignment follows the phrase.
-    items: Vec<(usize, usize, usize, u64)>,
+    entries: Vec<GroupEntry>,
+}
+
+/// Where an entry of a [`Group`] sits in its bytes: the phrase, then `rest` (the kept
+/// alignment in pass 1, the record's value in pass 2).
+struct GroupEntry {
+    start: usize,
+    phrase_len: usize,
+    rest_len: usize,
+    count: u64,
 }
 
 impl Group {
     fn clear(&mut self) {
         self.bytes.clear();
-        self.items.clear();
+        self.entries.clear();
     }
-    fn push(&mut self, phrase: &[u8], alignment: &[u8], count: u64) {
-        self.items
-            .push((self.bytes.len(), phrase.len(), alignment.len(), count));
+    fn push(&mut self, phrase: &[u8], rest: &[u8], count: u64) {
+        self.entries.push(GroupEntry {
+            start: self.bytes.len(),
+            phrase_len: phrase.len(),
+            rest_len: rest.len(),
+            count,
+        });
         self.bytes.extend_from_slice(phrase);
-        self.bytes.extend_from_slice(alignment);
+        self.bytes.extend_from_slice(rest);
+    }
+    fn total(&self) -> u64 {
+        self.entries.iter().map(|e| e.count).sum()
+    }
+    fn distinct(&self) -> u64 {
+        self.entries.len() as u64
     }
     fn iter(&self) -> impl Iterator<Item = (&[u8], &[u8], u64)> {
-        self.items.iter().map(|&(start, p, a, c)| {
+        self.entries.iter().map(|e| {
+            let phrase_end = e.start + e.phrase_len;
             (
-                &self.bytes[start..start + p],
-                &self.bytes[start + p..start + p + a],
-                c,
+                &self.bytes[e.start..phrase_end],
+                &self.bytes[phrase_end..phrase_end + e.rest_len],
+                e.count,
             )
         })
     }
+}
+
+/// One phrase pair summed over its internal alignments (adjacent in the merged runs): the
+/// count, and the most frequent alignment (the first in byte order on ties).
+#[derive(Default)]
+struct PairSum {
+    target: Vec<u8>,
+    alignment: Vec<u8>,
+    best: u64,
+    count: u64,
+}
+
+impl PairSum {
+    fn start(&mut self, target: &[u8], alignment: &[u8], count: u64) {
+        self.target.clear();
+        self.target.extend_from_slice(target);
+        self.alignment.clear();
+        self.alignment.extend_from_slice(alignment);
+        self.best = count;
+        self.count = count;
+    }
+    fn add(&mut self, alignment: &[u8], count: u64) {
+        if count > self.best {
+            self.alignment.clear();
+            self.alignment.extend_from_slice(alignment);
+            self.best = count;
+        }
+        self.count += count;
+    }
+}
+
+/// The value of a pair re-keyed `target 0 source` by pass 1.
+struct SourceCounts<'a> {
+    count: u64,
+    source_total: u64,
+    source_distinct: u64,
+    alignment: &'a [u8],
+}
+
+impl<'a> SourceCounts<'a> {
+    fn encode(&self, out: &mut Vec<u8>) {
+        out.clear();
+        for v in [self.count, self.source_total, self.source_distinct] {
+            put_varint(out, v);
+        }
+        out.extend_from_slice(self.alignment);
+    }
+    fn decode(mut bytes: &'a [u8]) -> Result<SourceCounts<'a>> {
+        let mut next = || take_varint(&mut bytes).ok_or_else(|| damaged("value"));
+        let (count, source_total, source_distinct) = (next()?, next()?, next()?);
+        Ok(SourceCounts {
+            count,
+            source_total,
+            source_distinct,
+            alignment: bytes,
+        })
+    }
+}
+
+/// The value of a pair re-keyed `source 0 target` by pass 2: every count its scores need, the
+/// target's rank (for the phrase index) and the kept alignment.
+struct PairCounts<'a> {
+    count: u64,
+    source_total: u64,
+    target_total: u64,
+    source_distinct: u64,
+    target_distinct: u64,
+    target_rank: u64,
+    alignment: &'a [u8],
+}
+
+impl<'a> PairCounts<'a> {
+    fn encode(&self, out: &mut Vec<u8>) {
+        out.clear();
+        for v in [
+            self.count,
+            self.source_total,
+            self.target_total,
+            self.source_distinct,
+            self.target_distinct,
+            self.target_rank,
+        ] {
+            put_varint(out, v);
+        }
+        out.extend_from_slice(self.alignment);
+    }
+    fn decode(mut bytes: &'a [u8]) -> Result<PairCounts<'a>> {
+        let mut next = || take_varint(&mut bytes).ok_or_else(|| damaged("value"));
+        let (count, source_total, target_total) = (next()?, next()?, next()?);
+        let (source_distinct, target_distinct, target_rank) = (next()?, next()?, next()?);
+        Ok(PairCounts {
+            count,
+            source_total,
+            target_total,
+            source_distinct,
+            target_distinct,
+            target_rank,
+            alignment: bytes,
+        })
+    }
+}
+
+/// Appends `first 0 second` to the cleared `key`.
+fn joined_key(key: &mut Vec<u8>, first: &[u8], second: &[u8]) {
+    key.clear();
+    key.extend_from_slice(first);
+    key.push(0);
+    key.extend_from_slice(second);
 }
 
 /// Merges count runs and writes the scored table (without the sentence-level counts) to `out`
@@ -389,226 +550,279 @@ pub fn merge_and_score<W: Write + Send>(
     output_name: &Path,
     options: &MergeOptions,
 ) -> Result<MergeSummary> {
-    let readers = runs
-        .iter()
-        .map(|p| RunReader::open(p))
-        .collect::<Result<Vec<_>>>()?;
-    let info = combined_info(runs, &readers)?;
-    let mut target_totals = open_target_totals(options, &info)?;
-    let mut merger = RunMerger::new(readers)?;
+    let (merger, info) = RunMerger::open(runs)?;
+    let target_totals = open_target_totals(options, &info)?;
     // Two sorters are alive at once in pass 2, and a sorter's buffers may hold up to twice
     // what it counts (vectors grow by doubling): a quarter of the budget each.
     let budget = (options.memory / 4).max(1 << 20) as usize;
+    let sorter = || ExternalSorter::new(budget, options.temp_dir.clone());
 
-    // Word table, then pass 1 (source order).
-    let mut words = WordTable::default();
-    let mut by_target = Resorter::new(budget, options.temp_dir.clone());
-    let mut histogram = vec![0u64; GOOD_TURING_MAX_COUNT as usize + 2];
-    let mut source: Vec<u8> = Vec::new();
-    let mut pair_target: Vec<u8> = Vec::new();
-    let mut best_alignment: Vec<u8> = Vec::new();
-    let (mut best_count, mut pair_count) = (0u64, 0u64);
-    let mut in_pair = false;
-    let mut group = Group::default();
-    let (mut pairs, mut sources) = (0u64, 0u64);
-    let mut value = Vec::new();
-    let mut key = Vec::new();
-
-    let mut flush_source =
-        |source: &[u8], group: &mut Group, by_target: &mut Resorter| -> Result<()> {
-            if group.items.is_empty() {
-                return Ok(());
-            }
-            let total: u64 = group.items.iter().map(|i| i.3).sum();
-            let distinct = group.items.len() as u64;
-            sources += 1;
-            for (target, alignment, count) in group.iter() {
-                pairs += 1;
-                let top = histogram.len() - 1;
-                histogram[(count as usize).min(top)] += 1;
-                key.clear();
-                key.extend_from_slice(target);
-                key.push(0);
-                key.extend_from_slice(source);
-                value.clear();
-                put_varint(&mut value, count);
-                put_varint(&mut value, total);
-                put_varint(&mut value, distinct);
-                value.extend_from_slice(alignment);
-                by_target.push(&key, &value)?;
-            }
-            group.clear();
-            Ok(())
-        };
-
-    while let Some((record, count)) = merger.next_record()? {
-        let (&kind, rest) = record.split_first().ok_or_else(|| damaged("empty key"))?;
-        if kind == WORD_KIND {
-            let (f, e) = split_zero(rest);
-            words.add_bytes(f, e, count);
-            continue;
-        }
-        if kind != PHRASE_KIND {
-            return Err(damaged(&format!("unknown record kind {kind}")));
-        }
-        let (s, rest) = split_zero(rest);
-        let (t, a) = split_zero(rest);
-        if s.is_empty() || t.is_empty() {
-            return Err(damaged("empty phrase"));
-        }
-        let same_source = in_pair && s == source.as_slice();
-        if !(same_source && t == pair_target.as_slice()) {
-            if in_pair {
-                group.push(&pair_target, &best_alignment, pair_count);
-            }
-            if !same_source {
-                flush_source(&source, &mut group, &mut by_target)?;
-                source.clear();
-                source.extend_from_slice(s);
-            }
-            pair_target.clear();
-            pair_target.extend_from_slice(t);
-            best_alignment.clear();
-            best_alignment.extend_from_slice(a);
-            best_count = count;
-            pair_count = 0;
-            in_pair = true;
-        } else if count > best_count {
-            best_alignment.clear();
-            best_alignment.extend_from_slice(a);
-            best_count = count;
-        }
-        pair_count += count;
-    }
-    if in_pair {
-        group.push(&pair_target, &best_alignment, pair_count);
-    }
-    flush_source(&source, &mut group, &mut by_target)?;
-    drop(merger);
-
-    // Pass 2 (target order): count_target and distinct sources per target.
-    let mut by_source = Resorter::new(budget, options.temp_dir.clone());
-    let mut sorted = by_target.finish()?;
-    let mut target: Vec<u8> = Vec::new();
-    let mut targets = 0u64;
+    let by_source = sum_sources(merger, sorter()?)?;
     let mut index = match &options.index {
         Some(_) => Some(IndexWriter::new(&options.temp_dir)?),
         None => None,
     };
-    let mut tgroup = Group::default(); // phrase = source, "alignment" = the value bytes
-    let mut flush_target =
-        |target: &[u8], tgroup: &mut Group, by_source: &mut Resorter| -> Result<()> {
-            if tgroup.items.is_empty() {
-                return Ok(());
-            }
-            let rank = match index.as_mut() {
-                Some(ix) => ix.add_target(target)?,
-                None => targets,
-            };
-            targets += 1;
-            let total: u64 = match target_totals.as_mut() {
-                Some(totals) => totals.total(target)?,
-                None => tgroup.items.iter().map(|i| i.3).sum(),
-            };
-            let distinct = tgroup.items.len() as u64;
-            for (source, old, _) in tgroup.iter() {
-                let mut rest = old;
-                let count = take_varint(&mut rest).ok_or_else(|| damaged("value"))?;
-                let source_total = take_varint(&mut rest).ok_or_else(|| damaged("value"))?;
-                let source_distinct = take_varint(&mut rest).ok_or_else(|| damaged("value"))?;
-                key.clear();
-                key.extend_from_slice(source);
-                key.push(0);
-                key.extend_from_slice(target);
-                value.clear();
-                for v in [count, source_total, total, source_distinct, distinct, rank] {
-                    put_varint(&mut value, v);
-                }
-                value.extend_from_slice(rest);
-                by_source.push(&key, &value)?;
-            }
-            tgroup.clear();
-            Ok(())
-        };
-    while let Some(record) = sorted.next_record()? {
-        let (t, rest) = split_zero(record);
-        let (s, v) = split_zero(rest);
-        if t != target.as_slice() {
-            flush_target(&target, &mut tgroup, &mut by_source)?;
-            target.clear();
-            target.extend_from_slice(t);
-        }
-        let mut peek = v;
-        let count = take_varint(&mut peek).ok_or_else(|| damaged("value"))?;
-        tgroup.push(s, v, count);
-    }
-    flush_target(&target, &mut tgroup, &mut by_source)?;
-    drop(sorted);
-
-    // Pass 3 (source order): scores.
-    let scorer = Scorer::new(options.discount, &histogram, pairs);
+    let by_target = sum_targets(
+        by_source.by_target.finish()?,
+        target_totals,
+        index.as_mut(),
+        sorter()?,
+    )?;
+    let scorer = Scorer::new(options.discount, &by_source.histogram, by_source.pairs);
     let header = scored_header(&info, options.discount, false);
-    let werr = |e| Error::io(output_name, "writing", e);
-    let writer = TsvWriter::new(out, &header).map_err(werr)?;
-    let mut sorted = by_source.finish()?;
-    // Scoring, formatting and compressing the rows run on a second thread, fed batches of raw
-    // records in table order.
-    let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<u8>>(4);
-    let (words, scorer) = (&words, &scorer);
-    std::thread::scope(|scope| -> Result<()> {
-        let worker = scope.spawn(move || write_rows(rx, writer, words, scorer, output_name));
-        let mut batch = Vec::with_capacity(1 << 18);
-        let mut previous_source: Vec<u8> = Vec::new();
-        let mut first = true;
-        let fed = (|| -> Result<()> {
-            while let Some(record) = sorted.next_record()? {
-                let (s, rest) = split_zero(record);
-                let (t, v) = split_zero(rest);
-                let k = &record[..s.len() + 1 + t.len()];
-                let new_source = first || s != previous_source.as_slice();
-                if new_source {
-                    previous_source.clear();
-                    previous_source.extend_from_slice(s);
-                    first = false;
-                }
-                if let Some(ix) = index.as_mut() {
-                    let mut rest = v;
-                    for _ in 0..5 {
-                        take_varint(&mut rest).ok_or_else(|| damaged("value"))?;
-                    }
-                    let target_rank = take_varint(&mut rest).ok_or_else(|| damaged("value"))?;
-                    ix.add_row(s, new_source, target_rank)?;
-                }
-                put_varint(&mut batch, k.len() as u64);
-                batch.extend_from_slice(k);
-                put_varint(&mut batch, v.len() as u64);
-                batch.extend_from_slice(v);
-                if batch.len() >= 1 << 18 {
-                    let full = std::mem::replace(&mut batch, Vec::with_capacity(1 << 18));
-                    if tx.send(full).is_err() {
-                        return Ok(()); // the writer failed; its error is reported below
-                    }
-                }
-            }
-            if !batch.is_empty() {
-                let _ = tx.send(batch);
-            }
-            Ok(())
-        })();
-        drop(tx);
-        let written = worker.join().expect("row writer panicked");
-        written?;
-        fed
-    })?;
+    let writer = TsvWriter::new(out, &header).map_err(|e| Error::io(output_name, "writing", e))?;
+    let table = ScoredRows {
+        words: &by_source.words,
+        scorer: &scorer,
+        output_name,
+    };
+    table.write(by_target.by_source.finish()?, writer, index.as_mut())?;
     if let (Some(ix), Some(path)) = (index, &options.index) {
         ix.finish(path, info.corpus.sentence_pairs, info.max_sentence_length)?;
     }
     Ok(MergeSummary {
         info,
-        pairs,
-        sources,
-        targets,
+        pairs: by_source.pairs,
+        sources: by_source.sources,
+        targets: by_target.targets,
     })
+}
+
+/// What pass 1 leaves behind.
+struct SourcePass {
+    /// The word translation table.
+    words: WordTable,
+    /// How many distinct pairs were seen `c` times, `c` up to [`GOOD_TURING_MAX_COUNT`] + 1
+    /// (the last slot counts every higher `c`).
+    histogram: Vec<u64>,
+    /// Every pair re-keyed `target 0 source`, valued [`SourceCounts`].
+    by_target: ExternalSorter,
+    pairs: u64,
+    sources: u64,
+}
+
+/// Pass 1 (source order): the word table from the word-link records; each phrase pair summed
+/// over its alignments, `count_source` and the distinct targets of each source; the pairs
+/// re-keyed by target into `by_target`.
+fn sum_sources(mut merger: RunMerger, by_target: ExternalSorter) -> Result<SourcePass> {
+    let mut pass = SourcePass {
+        words: WordTable::default(),
+        histogram: vec![0u64; GOOD_TURING_MAX_COUNT as usize + 2],
+        by_target,
+        pairs: 0,
+        sources: 0,
+    };
+    let mut source: Vec<u8> = Vec::new();
+    let mut pair = PairSum::default();
+    let mut in_pair = false;
+    let mut group = Group::default();
+    let mut links = Vec::new();
+    let (mut source_words, mut target_words) = (0, 0);
+    while let Some(record) = merger.next_merged()? {
+        let count = record.count;
+        let (&kind, rest) =
+            (record.key.split_first()).ok_or_else(|| record.damaged("empty key"))?;
+        if kind == WORD_KIND {
+            let (f, e) = split_zero(rest);
+            pass.words.add_bytes(f, e, count);
+            continue;
+        }
+        if kind != PHRASE_KIND {
+            return Err(record.damaged(format!("unknown record kind {kind}")));
+        }
+        let (s, rest) = split_zero(rest);
+        let (t, a) = split_zero(rest);
+        if s.is_empty() || t.is_empty() {
+            return Err(record.damaged("empty phrase"));
+        }
+        let same_source = in_pair && s == source.as_slice();
+        let same_pair = same_source && t == pair.target.as_slice();
+        // What the row writer relies on, checked here where the run is known.
+        if !same_source {
+            source_words = phrase_words(s).map_err(|reason| record.damaged(reason))?;
+        }
+        if !same_pair {
+            target_words = phrase_words(t).map_err(|reason| record.damaged(reason))?;
+        }
+        read_links(a, source_words, target_words, &mut links)
+            .map_err(|reason| record.damaged(reason))?;
+        if same_pair {
+            pair.add(a, count);
+            continue;
+        }
+        if in_pair {
+            group.push(&pair.target, &pair.alignment, pair.count);
+        }
+        if !same_source {
+            pass.flush_source(&source, &mut group)?;
+            source.clear();
+            source.extend_from_slice(s);
+        }
+        pair.start(t, a, count);
+        in_pair = true;
+    }
+    if in_pair {
+        group.push(&pair.target, &pair.alignment, pair.count);
+    }
+    pass.flush_source(&source, &mut group)?;
+    Ok(pass)
+}
+
+impl SourcePass {
+    /// Re-keys the finished `group` of `source`'s pairs by target.
+    fn flush_source(&mut self, source: &[u8], group: &mut Group) -> Result<()> {
+        if group.entries.is_empty() {
+            return Ok(());
+        }
+        let (source_total, source_distinct) = (group.total(), group.distinct());
+        self.sources += 1;
+        let (mut key, mut value) = (Vec::new(), Vec::new());
+        for (target, alignment, count) in group.iter() {
+            self.pairs += 1;
+            let top = self.histogram.len() - 1;
+            self.histogram[(count as usize).min(top)] += 1;
+            joined_key(&mut key, target, source);
+            let counts = SourceCounts {
+                count,
+                source_total,
+                source_distinct,
+                alignment,
+            };
+            counts.encode(&mut value);
+            self.by_target.push(&key, &value)?;
+        }
+        group.clear();
+        Ok(())
+    }
+}
+
+/// What pass 2 leaves behind.
+struct TargetPass {
+    /// Every pair re-keyed `source 0 target`, valued [`PairCounts`].
+    by_source: ExternalSorter,
+    targets: u64,
+}
+
+/// Pass 2 (target order): `count_target` (summed, or from the other ranges' `target_totals`)
+/// and the distinct sources of each target; each target numbered in the phrase index; the
+/// pairs re-keyed by source into `by_source`.
+fn sum_targets(
+    mut sorted: SortedRecords,
+    mut target_totals: Option<TargetTotals>,
+    mut index: Option<&mut IndexWriter>,
+    mut by_source: ExternalSorter,
+) -> Result<TargetPass> {
+    let mut targets = 0u64;
+    let (mut key, mut value) = (Vec::new(), Vec::new());
+    let mut flush = |target: &[u8], group: &mut Group, by_source: &mut ExternalSorter| {
+        if group.entries.is_empty() {
+            return Ok(());
+        }
+        let target_rank = match index.as_mut() {
+            Some(ix) => ix.add_target(target)?,
+            None => targets,
+        };
+        targets += 1;
+        let target_total = match target_totals.as_mut() {
+            Some(totals) => totals.total(target)?,
+            None => group.total(),
+        };
+        let target_distinct = group.distinct();
+        for (source, value_bytes, _) in group.iter() {
+            let from_source = SourceCounts::decode(value_bytes)?;
+            joined_key(&mut key, source, target);
+            let counts = PairCounts {
+                count: from_source.count,
+                source_total: from_source.source_total,
+                target_total,
+                source_distinct: from_source.source_distinct,
+                target_distinct,
+                target_rank,
+                alignment: from_source.alignment,
+            };
+            counts.encode(&mut value);
+            by_source.push(&key, &value)?;
+        }
+        group.clear();
+        Ok::<(), Error>(())
+    };
+    let mut target: Vec<u8> = Vec::new();
+    let mut group = Group::default(); // phrase = source, rest = the record's value
+    while let Some((key, value)) = sorted.next_record()? {
+        let (t, s) = split_zero(key);
+        if t != target.as_slice() {
+            flush(&target, &mut group, &mut by_source)?;
+            target.clear();
+            target.extend_from_slice(t);
+        }
+        group.push(s, value, SourceCounts::decode(value)?.count);
+    }
+    flush(&target, &mut group, &mut by_source)?;
+    Ok(TargetPass { by_source, targets })
+}
+
+/// Pass 3 (source order): scoring, formatting and compressing the rows run on a second thread
+/// ([`write_rows`]), fed batches of raw records in table order; the phrase index takes each
+/// row's source and target rank on this one.
+struct ScoredRows<'a> {
+    words: &'a WordTable,
+    scorer: &'a Scorer,
+    output_name: &'a Path,
+}
+
+/// Bytes of raw records per batch handed to the row writer.
+const BATCH_BYTES: usize = 1 << 18;
+
+impl ScoredRows<'_> {
+    fn write<W: Write + Send>(
+        &self,
+        mut sorted: SortedRecords,
+        writer: TsvWriter<W>,
+        mut index: Option<&mut IndexWriter>,
+    ) -> Result<()> {
+        let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<u8>>(4);
+        let (words, scorer, output_name) = (self.words, self.scorer, self.output_name);
+        std::thread::scope(|scope| -> Result<()> {
+            let worker = scope.spawn(move || write_rows(rx, writer, words, scorer, output_name));
+            let mut batch = Vec::with_capacity(BATCH_BYTES);
+            let mut previous_source: Vec<u8> = Vec::new();
+            let mut first = true;
+            let fed = (|| -> Result<()> {
+                while let Some((k, v)) = sorted.next_record()? {
+                    if let Some(ix) = index.as_mut() {
+                        let (s, _) = split_zero(k);
+                        let new_source = first || s != previous_source.as_slice();
+                        if new_source {
+                            previous_source.clear();
+                            previous_source.extend_from_slice(s);
+                            first = false;
+                        }
+                        ix.add_row(s, new_source, PairCounts::decode(v)?.target_rank)?;
+                    }
+                    put_varint(&mut batch, k.len() as u64);
+                    batch.extend_from_slice(k);
+                    put_varint(&mut batch, v.len() as u64);
+                    batch.extend_from_slice(v);
+                    if batch.len() >= BATCH_BYTES {
+                        let full = std::mem::replace(&mut batch, Vec::with_capacity(BATCH_BYTES));
+                        if tx.send(full).is_err() {
+                            return Ok(()); // the writer failed; its error is reported below
+                        }
+                    }
+                }
+                if !batch.is_empty() {
+                    let _ = tx.send(batch);
+                }
+                Ok(())
+            })();
+            drop(tx);
+            let written = worker.join().map_err(|_| Error::WorkerPanicked {
+                worker: "row writer",
+            })?;
+            written?;
+            fed
+        })
+    }
 }
 
 /// Opens the target totals of a merge of one source key range, checking that they were summed
@@ -704,40 +918,31 @@ fn write_rows<W: Write>(
                 .push_str(std::str::from_utf8(t).map_err(|_| damaged("not UTF-8"))?);
             target_ids.clear();
             target_ids.extend(row.target.split(' ').map(|w| words.target_id(w.as_bytes())));
-            let mut rest = v;
-            let mut next = || take_varint(&mut rest).ok_or_else(|| damaged("value"));
-            let (count, cs, ct, ns, nt) = (next()?, next()?, next()?, next()?, next()?);
-            let _target_rank = next()?;
-            parse_links(rest, &mut row.alignment)?;
-            if row.alignment.iter().any(|&(i, j)| {
-                usize::from(i) >= source_ids.len() || usize::from(j) >= target_ids.len()
-            }) {
-                return Err(damaged("alignment outside its phrase pair"));
-            }
-            let (p_t_given_s, p_s_given_t) = scorer.probabilities(count, cs, ct, ns, nt);
+            let counts = PairCounts::decode(v)?;
+            read_links(
+                counts.alignment,
+                source_ids.len(),
+                target_ids.len(),
+                &mut row.alignment,
+            )
+            .map_err(|reason| damaged(&reason))?;
+            let (p_t_given_s, p_s_given_t) = scorer.probabilities(
+                counts.count,
+                counts.source_total,
+                counts.target_total,
+                counts.source_distinct,
+                counts.target_distinct,
+            );
             let (lex_t, lex_s) =
                 words.lexical_weights_ids(&source_ids, &target_ids, &row.alignment);
             row.scores
                 .copy_from_slice(&[p_t_given_s, p_s_given_t, lex_t, lex_s]);
-            row.counts.copy_from_slice(&[count, cs, ct]);
+            row.counts
+                .copy_from_slice(&[counts.count, counts.source_total, counts.target_total]);
             writer.write_pair(&row).map_err(werr)?;
         }
     }
     writer.get_mut().flush().map_err(werr)?;
-    Ok(())
-}
-
-fn parse_links(text: &[u8], links: &mut Vec<(u16, u16)>) -> Result<()> {
-    links.clear();
-    if text.is_empty() {
-        return Ok(());
-    }
-    let text = std::str::from_utf8(text).map_err(|_| damaged("alignment not UTF-8"))?;
-    for link in crate::table::split_links(text) {
-        let (i, j) = link.map_err(|_| damaged("malformed alignment"))?;
-        let small = |n: usize| u16::try_from(n).map_err(|_| damaged("malformed alignment"));
-        links.push((small(i)?, small(j)?));
-    }
     Ok(())
 }
 

@@ -22,21 +22,23 @@
 //! numbers `(gap + 1, cooc, df_source, df_target)` for table rows with any non-zero count
 //! (`gap` = rows skipped since the previous record), and a 0 ending the records.
 
-use std::io::{BufRead, BufWriter, Write};
+use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicU32, Ordering};
+use std::sync::atomic::Ordering;
 use std::sync::{mpsc, Mutex};
 
 use fst::raw::{Fst, Output};
 
+use super::cooccurrence::Cooccurrence;
 use super::corpus::{
     CorpusOptions, CorpusPaths, CorpusReader, CorpusStats, LineRange, SentencePair,
 };
 use super::index::IndexReader;
 use super::report::Progress;
-use super::runs::{put_varint, read_varint};
 use crate::error::{Error, Result};
 use crate::files;
+use crate::format::write_varint as put_varint;
+use crate::table::{CountColumn, TsvReader, TsvWriter};
 
 const MAGIC: &[u8; 8] = b"BALERTLY";
 const VERSION: u32 = 1;
@@ -88,133 +90,20 @@ impl Default for TallyOptions {
     }
 }
 
-/// Reads a table's metadata and header, then its rows as raw lines.
-struct TableLines {
-    name: String,
-    input: Box<dyn BufRead + Send>,
-    metadata: Vec<String>,
-    header: String,
-    source_column: usize,
-    target_column: usize,
-    line_no: u64,
-    line: String,
-    previous: Vec<u8>,
-    scratch: Vec<u8>,
-}
-
-impl TableLines {
-    fn open(path: &Path) -> Result<TableLines> {
-        let name = path.display().to_string();
-        let mut input = files::open_input(path)?;
-        let mut metadata = Vec::new();
-        let mut line = String::new();
-        let mut line_no = 0;
-        loop {
-            line_no += 1;
-            if !files::read_line(&mut *input, &mut line, &name, line_no)? {
-                return Err(Error::input(
-                    &name,
-                    line_no,
-                    "missing header line (no columns)",
-                ));
-            }
-            if line.starts_with('#') {
-                metadata.push(line.clone());
-            } else {
-                break;
-            }
-        }
-        let columns: Vec<&str> = line.split('\t').collect();
-        let find = |c: &str| {
-            columns.iter().position(|&x| x == c).ok_or_else(|| {
-                Error::input(&name, line_no, format!("header lacks the {c:?} column"))
-            })
-        };
-        let (source_column, target_column) = (find("source")?, find("target")?);
-        Ok(TableLines {
-            name: name.clone(),
-            input,
-            metadata,
-            header: line.clone(),
-            source_column,
-            target_column,
-            line_no,
-            line: String::new(),
-            previous: Vec::new(),
-            scratch: Vec::new(),
-        })
-    }
-
-    fn metadata_value(&self, key: &str) -> Option<&str> {
-        self.metadata.iter().find_map(|m| {
-            let (k, v) = m.strip_prefix('#')?.split_once('=')?;
-            (k.trim() == key).then(|| v.trim())
-        })
-    }
-
-    /// Advances to the next row, checking the table order; false at the end.
-    fn next_row(&mut self) -> Result<bool> {
-        loop {
-            self.line_no += 1;
-            if !files::read_line(&mut *self.input, &mut self.line, &self.name, self.line_no)? {
-                return Ok(false);
-            }
-            if self.line.is_empty() {
-                continue;
-            }
-            let mut key = std::mem::take(&mut self.scratch);
-            let (s, t) = self.fields()?;
-            key.clear();
-            key.extend_from_slice(s.as_bytes());
-            key.push(0);
-            key.extend_from_slice(t.as_bytes());
-            if !self.previous.is_empty() && key <= self.previous {
-                return Err(Error::input(
-                    &self.name,
-                    self.line_no,
-                    "rows must be sorted by source, then target, without repeats",
-                ));
-            }
-            self.scratch = std::mem::replace(&mut self.previous, key);
-            return Ok(true);
-        }
-    }
-
-    fn fields(&self) -> Result<(&str, &str)> {
-        let mut s = None;
-        let mut t = None;
-        for (i, f) in self.line.split('\t').enumerate() {
-            if i == self.source_column {
-                s = Some(f);
-            }
-            if i == self.target_column {
-                t = Some(f);
-            }
-        }
-        match (s, t) {
-            (Some(s), Some(t)) if !s.is_empty() && !t.is_empty() => Ok((s, t)),
-            _ => Err(Error::input(
-                &self.name,
-                self.line_no,
-                "missing or empty source or target field",
-            )),
-        }
-    }
-}
-
 /// The sources of one chunk of the table, with their targets' ranks.
 struct Chunk {
     // Sources first_source.. have local numbers 0..; offsets[k]..offsets[k+1] are the rows of
     // local source k within the chunk.
     first_source: u64,
-    offsets: Vec<u64>,
+    offsets: Vec<usize>,
     targets: Vec<u32>,
     first_row: u64,
 }
 
 impl Chunk {
     fn memory(&self) -> usize {
-        self.offsets.len() * 12 + self.targets.len() * 8
+        self.offsets.len() * Cooccurrence::BYTES_PER_SOURCE
+            + self.targets.len() * Cooccurrence::BYTES_PER_PAIR
     }
 }
 
@@ -248,64 +137,33 @@ fn walk(fst: &Fst<Vec<u8>>, text: &str, starts: &[u32], start: usize, found: &mu
     }
 }
 
-struct Counters {
-    df_source: Vec<AtomicU32>,
-    df_target: Vec<AtomicU32>,
-    cooc: Vec<AtomicU32>,
+/// One chunk's counting: the index's maps, where the chunk's sources start, and its counts.
+#[derive(Clone, Copy)]
+struct ChunkCounter<'a> {
+    targets: &'a Fst<Vec<u8>>,
+    sources: &'a Fst<Vec<u8>>,
+    first_source: u64,
+    counts: &'a Cooccurrence,
 }
 
-fn zeros(n: usize) -> Vec<AtomicU32> {
-    (0..n).map(|_| AtomicU32::new(0)).collect()
-}
-
-fn count_sentence(
-    pair: &SentencePair,
-    targets: &Fst<Vec<u8>>,
-    sources: &Fst<Vec<u8>>,
-    chunk: &Chunk,
-    counters: &Counters,
-    s_found: &mut Vec<u32>,
-    t_found: &mut Vec<u32>,
-) {
-    t_found.clear();
-    for j in 0..pair.target_len() {
-        walk(targets, &pair.target, &pair.target_starts, j, t_found);
-    }
-    t_found.sort_unstable();
-    t_found.dedup();
-    for &t in t_found.iter() {
-        counters.df_target[t as usize].fetch_add(1, Ordering::Relaxed);
-    }
-    s_found.clear();
-    for i in 0..pair.source_len() {
-        walk(sources, &pair.source, &pair.source_starts, i, s_found);
-    }
-    let (first, n) = (chunk.first_source, chunk.offsets.len() as u64 - 1);
-    s_found.retain_mut(|s| {
-        let local = u64::from(*s).wrapping_sub(first);
-        *s = local as u32;
-        local < n
-    });
-    s_found.sort_unstable();
-    s_found.dedup();
-    for &s in s_found.iter() {
-        counters.df_source[s as usize].fetch_add(1, Ordering::Relaxed);
-        let lo = chunk.offsets[s as usize] as usize;
-        let hi = chunk.offsets[s as usize + 1] as usize;
-        let options = &chunk.targets[lo..hi];
-        if options.len() <= t_found.len() {
-            for (k, t) in options.iter().enumerate() {
-                if t_found.binary_search(t).is_ok() {
-                    counters.cooc[lo + k].fetch_add(1, Ordering::Relaxed);
-                }
-            }
-        } else {
-            for t in t_found.iter() {
-                if let Ok(k) = options.binary_search(t) {
-                    counters.cooc[lo + k].fetch_add(1, Ordering::Relaxed);
-                }
-            }
+impl ChunkCounter<'_> {
+    /// Finds the table's phrases in one sentence pair and counts it.
+    fn count_sentence(&self, pair: &SentencePair, s_found: &mut Vec<u32>, t_found: &mut Vec<u32>) {
+        t_found.clear();
+        for j in 0..pair.target_len() {
+            walk(self.targets, &pair.target, &pair.target_starts, j, t_found);
         }
+        s_found.clear();
+        for i in 0..pair.source_len() {
+            walk(self.sources, &pair.source, &pair.source_starts, i, s_found);
+        }
+        let (first, n) = (self.first_source, self.counts.sources() as u64);
+        s_found.retain_mut(|s| {
+            let local = u64::from(*s).wrapping_sub(first);
+            *s = local as u32;
+            local < n
+        });
+        self.counts.add_sentence(s_found, t_found);
     }
 }
 
@@ -313,56 +171,37 @@ fn count_sentence(
 fn count_chunk(
     corpus: &CorpusPaths,
     corpus_options: CorpusOptions,
-    targets: &Fst<Vec<u8>>,
-    sources: &Fst<Vec<u8>>,
-    chunk: &Chunk,
+    counter: ChunkCounter,
     options: &TallyOptions,
     label: &str,
-) -> Result<(Counters, (CorpusStats, u64))> {
-    let counters = Counters {
-        df_source: zeros(chunk.offsets.len() - 1),
-        df_target: zeros(targets.len()),
-        cooc: zeros(chunk.targets.len()),
-    };
+) -> Result<(CorpusStats, u64)> {
     let mut reader = CorpusReader::open(corpus, corpus_options)?;
     let progress = Progress::new(label, reader.total_bytes(), options.progress);
-    let counter = reader.progress_counter();
+    let bytes_read = reader.progress_counter();
     let threads = options.threads.max(1);
     let (tx, rx) = mpsc::sync_channel::<Vec<SentencePair>>(threads * 2);
     let rx = Mutex::new(rx);
     let result = std::thread::scope(|scope| {
         for _ in 0..threads {
-            let (rx, counters) = (&rx, &counters);
+            let rx = &rx;
             scope.spawn(move || {
                 let (mut s_found, mut t_found) = (Vec::new(), Vec::new());
                 while let Ok(batch) = rx.lock().unwrap().recv() {
                     for pair in &batch {
-                        count_sentence(
-                            pair,
-                            targets,
-                            sources,
-                            chunk,
-                            counters,
-                            &mut s_found,
-                            &mut t_found,
-                        );
+                        counter.count_sentence(pair, &mut s_found, &mut t_found);
                     }
                 }
             });
         }
         let result = (|| -> Result<()> {
             loop {
-                let mut batch = Vec::with_capacity(BATCH);
-                let mut pair = SentencePair::default();
-                while batch.len() < BATCH && reader.next_pair(&mut pair)? {
-                    batch.push(std::mem::take(&mut pair));
-                }
+                let batch = reader.next_batch(BATCH)?;
                 let done = batch.len() < BATCH;
                 if !batch.is_empty() {
                     tx.send(batch).expect("workers outlive the reader");
                 }
                 progress.update(
-                    counter.load(Ordering::Relaxed),
+                    bytes_read.load(Ordering::Relaxed),
                     reader.stats().sentence_pairs,
                 );
                 if done {
@@ -375,7 +214,7 @@ fn count_chunk(
     });
     progress.finish();
     result?;
-    Ok((counters, (reader.stats(), reader.fingerprint())))
+    Ok((reader.stats(), reader.fingerprint()))
 }
 
 struct TallyWriter {
@@ -529,18 +368,22 @@ pub fn tally(
         };
         while index.sources_left() > 0 && chunk.memory() < chunk_budget {
             index.next_source(&mut chunk.targets)?;
-            chunk.offsets.push(chunk.targets.len() as u64);
+            chunk.offsets.push(chunk.targets.len());
             source += 1;
         }
         row += chunk.targets.len() as u64;
         info.passes += 1;
         let label = format!("sentence counts (pass {})", info.passes);
-        let (counters, stats) = count_chunk(
+        let counts = Cooccurrence::new(chunk.offsets, chunk.targets, index.targets.len());
+        let stats = count_chunk(
             &corpus,
             corpus_options,
-            index.targets.as_fst(),
-            index.sources.as_fst(),
-            &chunk,
+            ChunkCounter {
+                targets: index.targets.as_fst(),
+                sources: index.sources.as_fst(),
+                first_source: chunk.first_source,
+                counts: &counts,
+            },
             options,
             &label,
         )?;
@@ -549,13 +392,15 @@ pub fn tally(
             writer = Some(TallyWriter::create(temp.path(), &info)?);
         }
         let writer = writer.as_mut().expect("created above");
-        for k in 0..chunk.offsets.len() - 1 {
-            let df_source = counters.df_source[k].load(Ordering::Relaxed);
-            for p in chunk.offsets[k] as usize..chunk.offsets[k + 1] as usize {
-                let df_target =
-                    counters.df_target[chunk.targets[p] as usize].load(Ordering::Relaxed);
-                let cooc = counters.cooc[p].load(Ordering::Relaxed);
-                writer.push(chunk.first_row + p as u64, [cooc, df_source, df_target])?;
+        let sums = counts.counts();
+        for k in 0..counts.sources() {
+            let df_source = sums.df_source(k);
+            for p in counts.pairs(k) {
+                let df_target = sums.df_target(counts.target(p) as usize);
+                writer.push(
+                    chunk.first_row + p as u64,
+                    [sums.cooc(p), df_source, df_target],
+                )?;
             }
         }
         if index.sources_left() == 0 {
@@ -596,11 +441,10 @@ impl TallyReader {
     }
 
     fn number(&mut self) -> Result<u64> {
-        match read_varint(&mut self.input) {
-            Ok(Some(v)) => Ok(v),
-            Ok(None) => Err(self.damaged("truncated")),
-            Err(e) => Err(self.damaged(&e.to_string())),
-        }
+        let path = &self.path;
+        super::framed::number(&mut self.input, |why| {
+            Error::damaged_intermediate(path, "tally", why)
+        })
     }
 
     /// Reads the next record; at the end sets `row` to `u64::MAX`.
@@ -630,41 +474,116 @@ pub struct AttachSummary {
 
 /// Sums the `tallies` of all shards and writes `table` to `out` with the columns `cooc`,
 /// `df_source` and `df_target` appended to every row and `# sentence_pairs` set to the number
-/// of sentence pairs counted (it must agree with the table's own value, when present).
+/// of sentence pairs counted (it must agree with the table's own value, when present). The
+/// table is read and written through [`crate::table`], its rows passed through unchanged
+/// (columns must be in canonical order).
 pub fn attach<W: Write>(
     table: &Path,
     tallies: &[PathBuf],
-    mut out: W,
+    out: W,
     output_name: &Path,
 ) -> Result<AttachSummary> {
-    use crate::table::CountColumn;
-    let mut lines = TableLines::open(table)?;
-    let header_line = lines.line_no;
-    for c in ["cooc", "df_source", "df_target"] {
-        if lines.header.split('\t').any(|x| x == c) {
-            return Err(Error::input(
-                &lines.name,
-                header_line,
-                format!("the table already has a {c:?} column"),
-            ));
-        }
-    }
-    let counts_last = lines
-        .header
-        .split('\t')
-        .skip_while(|x| CountColumn::from_name(x).is_none())
-        .all(|x| CountColumn::from_name(x).is_some());
-    if !counts_last {
+    let name = table.display().to_string();
+    let mut reader = TsvReader::new(files::open_input(table)?, name.as_str())?;
+    let mut header = reader.header().clone();
+    let added = [
+        CountColumn::Cooc,
+        CountColumn::DfSource,
+        CountColumn::DfTarget,
+    ];
+    if let Some(c) = added.iter().find(|c| header.schema.counts.contains(c)) {
         return Err(Error::input(
-            &lines.name,
-            header_line,
-            "count columns must come after the score columns (canonical order)",
+            &name,
+            reader.line(),
+            format!("the table already has a {:?} column", c.name()),
+        ));
+    }
+    if !reader.canonical_columns() {
+        return Err(Error::input(
+            &name,
+            reader.line(),
+            "columns must be in canonical order (source, target, alignment, scores, counts)",
         ));
     }
     if tallies.is_empty() {
         return Err(Error::invalid("tallies", "no sentence-count tallies given"));
     }
-    let mut readers = tallies
+    let (mut readers, summed) = open_tallies(tallies)?;
+    let sentence_pairs = summed.sentence_pairs;
+    if let Some(v) = header.metadata.get("sentence_pairs") {
+        if v.parse::<u64>().ok() != Some(sentence_pairs) {
+            return Err(Error::input(
+                &name,
+                0,
+                format!("sentence_pairs={v}, but the tallies counted {sentence_pairs} sentence pairs: a shard is missing or was read with other settings"),
+            ));
+        }
+    } else {
+        // Recorded first, as extraction writes it.
+        let mut metadata = crate::table::Metadata::default();
+        metadata.set("sentence_pairs", sentence_pairs.to_string());
+        for (k, v) in header.metadata.entries() {
+            metadata.set(k.as_str(), v.as_str());
+        }
+        header.metadata = metadata;
+    }
+    header.schema.counts.extend(added); // the last in canonical order
+    let werr = |e| Error::io(output_name, "writing", e);
+    let mut writer = TsvWriter::new(out, &header).map_err(werr)?;
+    let (mut previous, mut key) = (Vec::new(), Vec::new());
+    let mut row = 0u64;
+    while let Some(record) = reader.read_raw()? {
+        key.clear();
+        key.extend_from_slice(record.source.as_bytes());
+        key.push(0);
+        key.extend_from_slice(record.target.as_bytes());
+        if row > 0 && key <= previous {
+            return Err(Error::input(
+                &name,
+                record.line_no,
+                "rows must be sorted by source, then target, without repeats",
+            ));
+        }
+        let mut counts = [0u64; 3];
+        for r in readers.iter_mut() {
+            if r.row == row {
+                for (sum, c) in counts.iter_mut().zip(r.counts) {
+                    *sum += c;
+                }
+                r.advance()?;
+            }
+        }
+        writer.write_extended(record.line, &counts).map_err(werr)?;
+        std::mem::swap(&mut key, &mut previous);
+        row += 1;
+    }
+    if summed.table_pairs != row || readers.iter().any(|r| r.row != u64::MAX) {
+        return Err(Error::input(
+            &name,
+            0,
+            format!(
+                "has {row} rows but the tallies were made for a table of {} rows",
+                summed.table_pairs
+            ),
+        ));
+    }
+    writer.get_mut().flush().map_err(werr)?;
+    Ok(AttachSummary {
+        pairs: row,
+        sentence_pairs,
+    })
+}
+
+/// What the tallies of [`attach`] add up to.
+struct Summed {
+    sentence_pairs: u64,
+    table_pairs: u64,
+}
+
+/// Opens the tallies, checking that no shard is given twice and that all were made for the
+/// same table.
+fn open_tallies(tallies: &[PathBuf]) -> Result<(Vec<TallyReader>, Summed)> {
+    let readers = tallies
         .iter()
         .map(|p| TallyReader::open(p))
         .collect::<Result<Vec<_>>>()?;
@@ -675,11 +594,14 @@ pub fn attach<W: Write>(
             .iter()
             .position(|o| o.info.shard == r.info.shard);
         if let Some(first) = repeat.filter(|_| r.info.shard != 0) {
-            return Err(Error::Unsupported(format!(
-                "{} counts the same corpus shard as {}: each shard's tally must be given once",
-                path.display(),
-                tallies[first].display()
-            )));
+            return Err(Error::invalid(
+                "tallies",
+                format!(
+                    "{} counts the same corpus shard as {}: each shard's tally must be given once",
+                    path.display(),
+                    tallies[first].display()
+                ),
+            ));
         }
         sentence_pairs += r.info.corpus.sentence_pairs;
         match table_pairs {
@@ -693,69 +615,9 @@ pub fn attach<W: Write>(
             Some(_) => {}
         }
     }
-    if let Some(v) = lines.metadata_value("sentence_pairs") {
-        if v.parse::<u64>().ok() != Some(sentence_pairs) {
-            return Err(Error::input(
-                &lines.name,
-                0,
-                format!("sentence_pairs={v}, but the tallies counted {sentence_pairs} sentence pairs: a shard is missing or was read with other settings"),
-            ));
-        }
-    }
-    let werr = |e| Error::io(output_name, "writing", e);
-    let mut head = String::new();
-    let mut wrote_count = false;
-    for m in &lines.metadata {
-        let is_count = m
-            .strip_prefix('#')
-            .and_then(|r| r.split_once('='))
-            .is_some_and(|(k, _)| k.trim() == "sentence_pairs");
-        if is_count {
-            head.push_str(&format!("# sentence_pairs={sentence_pairs}\n"));
-            wrote_count = true;
-        } else {
-            head.push_str(m);
-            head.push('\n');
-        }
-    }
-    if !wrote_count {
-        head.insert_str(0, &format!("# sentence_pairs={sentence_pairs}\n"));
-    }
-    head.push_str(&lines.header);
-    head.push_str("\tcooc\tdf_source\tdf_target\n");
-    out.write_all(head.as_bytes()).map_err(werr)?;
-    let mut row = 0u64;
-    let mut text = String::with_capacity(256);
-    while lines.next_row()? {
-        let mut counts = [0u64; 3];
-        for r in readers.iter_mut() {
-            if r.row == row {
-                for (sum, c) in counts.iter_mut().zip(r.counts) {
-                    *sum += c;
-                }
-                r.advance()?;
-            }
-        }
-        text.clear();
-        text.push_str(&lines.line);
-        use std::fmt::Write as _;
-        let _ = writeln!(text, "\t{}\t{}\t{}", counts[0], counts[1], counts[2]);
-        out.write_all(text.as_bytes()).map_err(werr)?;
-        row += 1;
-    }
-    if table_pairs != Some(row) || readers.iter().any(|r| r.row != u64::MAX) {
-        return Err(Error::input(
-            &lines.name,
-            0,
-            format!(
-                "has {row} rows but the tallies were made for a table of {} rows",
-                table_pairs.unwrap_or(0)
-            ),
-        ));
-    }
-    out.flush().map_err(werr)?;
-    Ok(AttachSummary {
-        pairs: row,
+    let summed = Summed {
         sentence_pairs,
-    })
+        table_pairs: table_pairs.unwrap_or(0),
+    };
+    Ok((readers, summed))
 }

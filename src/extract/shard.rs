@@ -13,7 +13,7 @@ use super::corpus::{CorpusOptions, CorpusPaths, CorpusReader, CorpusStats, Sente
 use super::counter::CountTable;
 use super::phrases::{write_inside, PhraseFinder, PhraseLimits, SpanPair};
 use super::report::Progress;
-use super::runs::{RunInfo, RunMerger, RunReader, RunWriter, PHRASE_KIND, WORD_KIND};
+use super::runs::{RunInfo, RunMerger, RunWriter, PHRASE_KIND, WORD_KIND};
 use crate::error::{Error, Result};
 use crate::files::TempDir;
 
@@ -58,12 +58,6 @@ pub struct ShardRuns {
     _dir: TempDir,
 }
 
-/// A registered temporary directory (removed on drop and on Ctrl-C/SIGTERM) named `prefix…`
-/// inside `parent`, or the system's temporary directory.
-pub(crate) fn temp_dir(parent: &Option<PathBuf>, prefix: &str) -> Result<TempDir> {
-    TempDir::new(parent.as_deref(), prefix)
-}
-
 /// Checks the settings of an extraction before any work.
 pub(crate) fn check_settings(paths: &CorpusPaths, options: &ShardOptions) -> Result<()> {
     options.corpus.validate()?;
@@ -83,7 +77,7 @@ pub(crate) fn check_settings(paths: &CorpusPaths, options: &ShardOptions) -> Res
 pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<ShardRuns> {
     check_settings(paths, options)?;
     let threads = options.threads.max(1);
-    let dir = temp_dir(&options.temp_dir, "baler-extract-")?;
+    let dir = TempDir::new(options.temp_dir.as_deref(), "baler-extract-")?;
     let mut reader = CorpusReader::open(paths, options.corpus)?;
     let progress = Progress::new("extract", reader.total_bytes(), options.progress);
     let counter = reader.progress_counter();
@@ -110,11 +104,7 @@ pub fn extract_runs(paths: &CorpusPaths, options: &ShardOptions) -> Result<Shard
             .collect();
         let read_result = (|| -> Result<()> {
             loop {
-                let mut batch = Vec::with_capacity(BATCH);
-                let mut pair = SentencePair::default();
-                while batch.len() < BATCH && reader.next_pair(&mut pair)? {
-                    batch.push(std::mem::take(&mut pair));
-                }
+                let batch = reader.next_batch(BATCH)?;
                 let done = batch.len() < BATCH;
                 if !batch.is_empty() && tx.send(batch).is_err() {
                     return Ok(()); // every worker stopped; their errors are reported below
@@ -285,40 +275,14 @@ fn count_pair(
 /// place), checking that they were extracted with the same settings. Returns the combined
 /// header.
 pub fn merge_runs_into(runs: &[PathBuf], out: &Path) -> Result<RunInfo> {
-    let readers = runs
-        .iter()
-        .map(|p| RunReader::open(p))
-        .collect::<Result<Vec<_>>>()?;
-    let mut info = combined_info(runs, &readers)?;
-    info.corpus = readers.iter().fold(CorpusStats::default(), |mut acc, r| {
-        acc.add(&r.info().corpus);
-        acc
-    });
+    let (mut merger, info) = RunMerger::open(runs)?;
     let temp = crate::files::Partial::beside(out)?;
     let mut writer = RunWriter::create(temp.path(), &info)?;
-    let mut merger = RunMerger::new(readers)?;
     while let Some((key, count)) = merger.next_record()? {
         writer.push(key, count)?;
     }
     writer.finish()?;
     temp.persist()?;
-    Ok(info)
-}
-
-/// The combined headers of `readers`, checked for agreeing settings.
-pub(crate) fn combined_info(paths: &[PathBuf], readers: &[RunReader]) -> Result<RunInfo> {
-    let Some(first) = readers.first() else {
-        return Err(Error::invalid("runs", "no count runs given"));
-    };
-    let mut info = RunInfo {
-        corpus: CorpusStats::default(),
-        pair_occurrences: 0,
-        shards: Vec::new(),
-        ..first.info().clone()
-    };
-    for (path, r) in paths.iter().zip(readers) {
-        info.combine(r.info(), path)?;
-    }
     Ok(info)
 }
 

@@ -12,7 +12,8 @@ pub mod lm;
 pub mod sections;
 mod varint;
 
-pub use varint::{read_varint, write_varint, VarintReader};
+pub use varint::{read_varint, write_varint};
+pub(crate) use varint::{read_varint_from, take_varint};
 
 use byteorder::{ByteOrder, LittleEndian as LE};
 

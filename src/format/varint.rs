@@ -40,36 +40,36 @@ pub fn read_varint(data: &[u8], pos: &mut usize) -> Option<u64> {
     }
 }
 
-/// A cursor reading varints from a byte slice.
-#[derive(Clone, Debug)]
-pub struct VarintReader<'a> {
-    data: &'a [u8],
-    pos: usize,
+/// Reads a varint from the front of `bytes`, advancing the slice; `None` as [`read_varint`].
+#[inline]
+pub(crate) fn take_varint(bytes: &mut &[u8]) -> Option<u64> {
+    let mut pos = 0;
+    let v = read_varint(bytes, &mut pos)?;
+    *bytes = &bytes[pos..];
+    Some(v)
 }
 
-impl<'a> VarintReader<'a> {
-    /// A cursor at the start of `data`.
-    pub fn new(data: &'a [u8]) -> VarintReader<'a> {
-        VarintReader { data, pos: 0 }
-    }
-
-    /// The next varint, `None` when malformed or past the end.
-    #[inline]
-    pub fn next_varint(&mut self) -> Option<u64> {
-        read_varint(self.data, &mut self.pos)
-    }
-
-    /// Skips `n` varints.
-    #[inline]
-    pub fn skip(&mut self, n: usize) -> Option<()> {
-        for _ in 0..n {
-            self.next_varint()?;
+/// Reads a varint from a stream: `Ok(None)` at a clean end of the stream, an
+/// `UnexpectedEof` error when it ends inside the varint, `InvalidData` past 64 bits.
+pub(crate) fn read_varint_from<R: std::io::Read>(r: &mut R) -> std::io::Result<Option<u64>> {
+    let mut v = 0u64;
+    let mut byte = [0u8];
+    for (k, shift) in (0..64).step_by(7).enumerate() {
+        match r.read(&mut byte)? {
+            0 if k == 0 => return Ok(None),
+            0 => return Err(std::io::ErrorKind::UnexpectedEof.into()),
+            _ => {}
         }
-        Some(())
+        if shift == 63 && byte[0] > 1 {
+            break; // past 64 bits
+        }
+        v |= u64::from(byte[0] & 0x7f) << shift;
+        if byte[0] < 0x80 {
+            return Ok(Some(v));
+        }
     }
-
-    /// Bytes consumed so far.
-    pub fn position(&self) -> usize {
-        self.pos
-    }
+    Err(std::io::Error::new(
+        std::io::ErrorKind::InvalidData,
+        "varint too long",
+    ))
 }

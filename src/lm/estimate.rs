@@ -615,11 +615,7 @@ fn estimate(levels: &mut [Level], disc: &[[f64; 3]]) -> Result<()> {
                 } else {
                     child(levels, n - 2, suffix[p] as usize, w)
                 };
-                let s = s.ok_or_else(|| {
-                    Error::Unsupported(format!(
-                        "internal: the suffix of an order-{n} n-gram is missing"
-                    ))
-                })?;
+                let s = s.ok_or(Error::Internal("the suffix of an n-gram is missing"))?;
                 let c = levels[n - 1].cells[i];
                 let prob = (f64::from(c) - d_of(n, c)) / total + gamma * lower[s];
                 levels[n - 1].cells[i] = (prob.log10() as f32).to_bits();

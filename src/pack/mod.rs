@@ -29,7 +29,7 @@ use crate::format::coder::{Counter, Models, PlainSink, PlainSource, RansSink};
 use crate::format::sections::{encode_codebooks, encode_vocabulary, push_group_entry};
 use crate::format::{self, write_varint, Compression, Layout, Meta, SectionEntry, SectionKind};
 use crate::quantize::{Codebook, Reservoir, DEFAULT_SAMPLE_SIZE};
-use crate::sort::ExternalSorter;
+use crate::sort::{ExternalSorter, SortedRecords};
 use crate::table::{Header, PhrasePair, TsvReader};
 
 use blocks::{CostSink, PackedOption};
@@ -263,17 +263,118 @@ fn pack_records<I>(
     unit: &str,
     out: &Path,
     options: &PackOptions,
-    mut provenance: Vec<(String, String)>,
+    provenance: Vec<(String, String)>,
 ) -> Result<PackReport>
 where
     I: Iterator<Item = Result<(u64, PhrasePair)>>,
 {
     check_options(options)?;
     let schema = &header.schema;
-    let n_scores = schema.scores.len();
-    let n_counts = schema.counts.len();
+    let ReadRecords {
+        sorted,
+        numbering,
+        reservoirs,
+        pairs,
+    } = read_records(records, name, schema.scores.len(), options)?;
+    let ids = ModelIds::new(schema.scores.len());
+    let Numbered {
+        vocabulary_section,
+        groups,
+        n_targets,
+        n_words,
+        refs,
+    } = numbering.finish(TargetGroups::new(options.targets_per_group, ids))?;
+    let layout = ScoreLayout::fit(&reservoirs, schema, options);
+    drop(reservoirs);
+    let temp = crate::files::TempDir::new(options.temp_dir.as_deref(), "baler-pack-")?;
+    let what = (name, unit);
+    let Grouped {
+        written,
+        raw_path,
+        errors,
+    } = group_sources(sorted, &refs, &layout, ids, options, temp.path(), what)?;
+    drop(refs);
+    let mut meta = Meta {
+        format: format::FORMAT_NAME.to_string(),
+        pairs,
+        sources: 0,
+        targets: n_targets,
+        vocabulary: n_words,
+        scores: schema.scores.clone(),
+        counts: schema.counts.iter().map(|c| c.name().to_string()).collect(),
+        alignment: schema.alignment,
+        option_order: format::OptionOrder {
+            by: layout.order_column.map(|c| schema.scores[c].clone()),
+            ties: "target phrase bytes ascending".into(),
+        },
+        sources_per_block: options.sources_per_block,
+        targets_per_group: options.targets_per_group,
+        block_compression: options.compression.name().to_string(),
+        max_block_bytes: 0,
+        layout: options.layout.name().to_string(),
+        components: Vec::new(),
+        table_metadata: header.metadata.entries().to_vec(),
+        provenance: full_provenance(provenance, options),
+        quantization: layout.report(schema, &errors, options),
+    };
+    let codebook_section = encode_codebooks(&layout.codebooks, &layout.widths);
+    let parts = match written {
+        Written::Direct(sections) => {
+            drop(std::fs::remove_file(&raw_path));
+            direct_parts(
+                sections,
+                &mut meta,
+                schema,
+                codebook_section,
+                vocabulary_section,
+            )
+        }
+        Written::Compact(written) => {
+            let coded = code_sections(
+                written,
+                &raw_path,
+                groups,
+                n_words,
+                &layout,
+                ids,
+                temp.path(),
+            )?;
+            compact_parts(
+                coded,
+                &mut meta,
+                schema,
+                codebook_section,
+                vocabulary_section,
+            )
+        }
+    };
+    let (sections, file_bytes) = write_file(out, &parts, options.layout)?;
+    Ok(PackReport {
+        meta,
+        sections,
+        file_bytes,
+    })
+}
 
-    // Pass 1: sort, count targets, sample scores.
+/// Pass 1's result: the records sorted by `source 0 target`, the targets counted for
+/// numbering, and a sample of every score column.
+struct ReadRecords {
+    sorted: SortedRecords,
+    numbering: TargetNumbering,
+    reservoirs: Vec<Reservoir>,
+    pairs: u64,
+}
+
+/// Pass 1: every record through the sorter, targets counted, scores sampled.
+fn read_records<I>(
+    records: I,
+    name: &str,
+    n_scores: usize,
+    options: &PackOptions,
+) -> Result<ReadRecords>
+where
+    I: Iterator<Item = Result<(u64, PhrasePair)>>,
+{
     let sort_budget = (options.memory as usize / 2).max(1 << 20);
     let mut sorter = ExternalSorter::new(sort_budget, options.temp_dir.clone())?;
     let mut numbering = TargetNumbering::new(options.memory as usize / 4, options.temp_dir.clone());
@@ -305,62 +406,117 @@ where
         }
     }
     bar.finish_and_clear();
+    Ok(ReadRecords {
+        sorted: sorter.finish()?,
+        numbering,
+        reservoirs,
+        pairs,
+    })
+}
 
-    // Targets by frequency, then vocabulary by frequency; targets grouped, plain.
-    let ids = ModelIds::new(n_scores);
-    let Numbered {
-        vocabulary_section,
-        groups: target_groups,
-        n_targets,
-        n_words,
-        refs: target_refs,
-    } = numbering.finish(TargetGroups::new(options.targets_per_group, ids))?;
+/// How scores are stored: a codebook per column (or f32), the widths they take, the block
+/// shape, and the column options are ordered by.
+struct ScoreLayout {
+    codebooks: Vec<Option<Codebook>>,
+    /// Per column: score mode and bits.
+    widths: Vec<(u8, u8)>,
+    shape: BlockShape,
+    order_column: Option<usize>,
+}
 
-    let codebooks: Vec<Option<Codebook>> = reservoirs
-        .iter()
-        .map(|r| options.bits.map(|bits| Codebook::fit(&r.values(), bits)))
-        .collect();
-    drop(reservoirs);
-    let order_column =
-        schema
-            .score_index("p_t_given_s")
-            .or(if n_scores > 0 { Some(0) } else { None });
-    let widths: Vec<(u8, u8)> = codebooks
-        .iter()
-        .map(|c| match c {
-            Some(_) => (format::score_mode::CODEBOOK, options.bits.unwrap()),
-            None => (format::score_mode::F32, 32),
-        })
-        .collect();
-    let shape = BlockShape {
-        widths: widths
+impl ScoreLayout {
+    fn fit(reservoirs: &[Reservoir], schema: &crate::table::Schema, options: &PackOptions) -> Self {
+        let codebooks: Vec<Option<Codebook>> = reservoirs
             .iter()
-            .map(|&(m, b)| format::score_width(m, b))
-            .collect(),
-        alignment: schema.alignment,
-        counts: n_counts,
-    };
-
-    // Pass 2: group by source into plain blocks, counting their symbols.
-    let temp = match &options.temp_dir {
-        Some(p) => tempfile::Builder::new().prefix("baler-pack-").tempdir_in(p),
-        None => tempfile::Builder::new().prefix("baler-pack-").tempdir(),
+            .map(|r| options.bits.map(|bits| Codebook::fit(&r.values(), bits)))
+            .collect();
+        let n_scores = schema.scores.len();
+        let order_column =
+            schema
+                .score_index("p_t_given_s")
+                .or(if n_scores > 0 { Some(0) } else { None });
+        let widths: Vec<(u8, u8)> = codebooks
+            .iter()
+            .map(|c| match (c, options.bits) {
+                (Some(_), Some(bits)) => (format::score_mode::CODEBOOK, bits),
+                _ => (format::score_mode::F32, 32),
+            })
+            .collect();
+        let shape = BlockShape {
+            widths: widths
+                .iter()
+                .map(|&(m, b)| format::score_width(m, b))
+                .collect(),
+            alignment: schema.alignment,
+            counts: schema.counts.len(),
+        };
+        ScoreLayout {
+            codebooks,
+            widths,
+            shape,
+            order_column,
+        }
     }
-    .map_err(|e| Error::io(std::env::temp_dir(), "creating a temporary directory in", e))?;
-    let raw_path = temp.path().join("blocks.plain");
+
+    /// The quantization report of each score column.
+    fn report(
+        &self,
+        schema: &crate::table::Schema,
+        errors: &[ErrorStats],
+        options: &PackOptions,
+    ) -> Vec<format::QuantizationReport> {
+        schema
+            .scores
+            .iter()
+            .zip(&self.codebooks)
+            .zip(errors)
+            .map(|((column, book), err)| err.report(column, book, options.bits.unwrap_or(32)))
+            .collect()
+    }
+}
+
+/// Pass 2's result: the plain blocks (in `raw_path`), what indexes them, and the quantization
+/// error of every score column.
+struct Grouped {
+    written: Written,
+    raw_path: PathBuf,
+    errors: Vec<ErrorStats>,
+}
+
+/// What pass 2 wrote, by layout.
+enum Written {
+    /// Plain source blocks (in `raw_path`) and what indexes them, still to be coded.
+    Compact(WrittenSources),
+    /// The direct layout's finished sections.
+    Direct(direct::DirectSections),
+}
+
+/// Pass 2: the sorted records grouped by source into plain blocks, their symbols counted; a
+/// pair given twice is an input error naming both places (`what`: the input's name and its
+/// unit of position).
+fn group_sources(
+    mut sorted: SortedRecords,
+    target_refs: &TargetRefs,
+    layout: &ScoreLayout,
+    ids: ModelIds,
+    options: &PackOptions,
+    temp: &Path,
+    (name, unit): (&str, &str),
+) -> Result<Grouped> {
+    let raw_path = temp.join("blocks.plain");
     let raw_file = File::create(&raw_path).map_err(|e| Error::io(&raw_path, "creating", e))?;
     let mut direct = match options.layout {
         Layout::Direct => Some(direct::DirectWriter::new(
-            temp.path(),
-            &shape,
-            order_column,
+            temp,
+            &layout.shape,
+            layout.order_column,
         )?),
         Layout::Compact => None,
     };
     let mut writer = SourceWriter {
         raw_out: BufWriter::with_capacity(1 << 20, raw_file),
         raw_path: &raw_path,
-        shape: &shape,
+        shape: &layout.shape,
         ids,
         block: BlockRecords::default(),
         counter: (options.compression == Compression::Rans).then(|| Counter::new(ids.count())),
@@ -370,19 +526,18 @@ where
         key_ends: Vec::new(),
         previous_source: Vec::new(),
         sources: 0,
-        order_column,
+        order_column: layout.order_column,
         sources_per_block: options.sources_per_block,
         spare: Vec::new(),
     };
-    let mut errors = vec![ErrorStats::default(); n_scores];
+    let mut errors = vec![ErrorStats::default(); layout.codebooks.len()];
     let mut group: Vec<PackedOption> = Vec::new();
     let mut group_source: Vec<u8> = Vec::new();
     let mut previous_target: Vec<u8> = Vec::new();
     let mut previous_position = 0u64;
     let bar = progress_bar(options.progress, "packing");
     let mut done = 0u64;
-    let mut merged = sorter.finish()?;
-    while let Some((k, v)) = merged.next_record()? {
+    while let Some((k, v)) = sorted.next_record()? {
         let split = k
             .iter()
             .position(|&b| b == 0)
@@ -393,7 +548,8 @@ where
             None => &mut writer.spare,
         };
         let mut option = spare.pop().unwrap_or_default();
-        let (position, target_number) = decode_value(v, &codebooks, &mut errors, &mut option);
+        let (position, target_number) =
+            decode_value(v, &layout.codebooks, &mut errors, &mut option);
         option.target_ref = target_refs.get(target_number, target)?;
         if direct.is_some() {
             option.target.clear();
@@ -437,10 +593,196 @@ where
         None => writer.add_source(&group_source, &mut group)?,
     }
     bar.finish_and_clear();
-    drop(merged);
-    drop(target_refs);
+    let written = match direct {
+        Some(d) => {
+            drop(writer);
+            Written::Direct(d.finish()?)
+        }
+        None => Written::Compact(writer.finish()?),
+    };
+    Ok(Grouped {
+        written,
+        raw_path,
+        errors,
+    })
+}
 
-    // Provenance and quantization reports, for either layout.
+/// Every coded section but the metadata, codebooks and vocabulary.
+struct CodedSections {
+    sources: u64,
+    models: Option<Models>,
+    block_index: Vec<u8>,
+    first_keys: Vec<u8>,
+    target_index: Vec<u8>,
+    target_data: Vec<u8>,
+    blocks: Part,
+    max_block_bytes: u64,
+    /// Bits each component of the file costs (indexed as [`COMPONENTS`], then per score).
+    cost_bits: Vec<f64>,
+}
+
+impl CodedSections {
+    /// The bytes of each named component, as the metadata records them.
+    fn components(&self, schema: &crate::table::Schema) -> Vec<(String, u64)> {
+        let mut components: Vec<(String, u64)> = Vec::new();
+        for (i, bits) in self.cost_bits.iter().enumerate() {
+            let name = match COMPONENTS.get(i) {
+                Some(&"-") => continue,
+                Some(n) => n.to_string(),
+                None => format!("score:{}", schema.scores[i - COMPONENTS.len()]),
+            };
+            components.push((name, (bits / 8.0).ceil() as u64));
+        }
+        components
+    }
+}
+
+/// The rANS models from the symbol counts of blocks and targets; then the target groups and
+/// the blocks coded with them (the plain blocks are read back once and removed).
+fn code_sections(
+    written: WrittenSources,
+    raw_path: &Path,
+    target_groups: TargetGroups,
+    n_words: u64,
+    layout: &ScoreLayout,
+    ids: ModelIds,
+    temp: &Path,
+) -> Result<CodedSections> {
+    let models = written.counter.map(|mut c| {
+        for (m, t) in c.counts.iter_mut().zip(&target_groups.counter.counts) {
+            for (x, y) in m.iter_mut().zip(t) {
+                *x += y;
+            }
+        }
+        Models::from_counts(&c.counts)
+    });
+    let mut costs = CostSink::new(ids, models.as_ref(), layout.codebooks.len());
+    let (target_index, target_data, max_group) =
+        target_groups.code(models.as_ref(), n_words, &mut costs);
+    let blocks_path = temp.join("blocks.coded");
+    let coded = blocks::code_blocks(
+        raw_path,
+        &written.block_sources,
+        &written.first_keys,
+        &written.key_ends,
+        &layout.shape,
+        ids,
+        models.as_ref(),
+        &mut costs,
+        &blocks_path,
+    )?;
+    drop(std::fs::remove_file(raw_path));
+    let cost_bits = std::mem::take(&mut costs.bits);
+    drop(costs);
+    Ok(CodedSections {
+        sources: written.sources,
+        models,
+        block_index: coded.index,
+        first_keys: written.first_keys,
+        target_index,
+        target_data,
+        blocks: Part::File {
+            path: blocks_path,
+            len: coded.bytes,
+            crc: coded.crc,
+        },
+        max_block_bytes: coded.max_block.max(max_group) as u64,
+        cost_bits,
+    })
+}
+
+/// The compact layout's sections, in file order; completes `meta` with what coding found.
+fn compact_parts(
+    coded: CodedSections,
+    meta: &mut Meta,
+    schema: &crate::table::Schema,
+    codebook_section: Vec<u8>,
+    vocabulary_section: Vec<u8>,
+) -> Vec<(SectionKind, Part)> {
+    meta.sources = coded.sources;
+    meta.max_block_bytes = coded.max_block_bytes;
+    meta.components = coded.components(schema);
+    let meta_section = serde_json::to_vec(&*meta).expect("metadata serializes");
+    let mut parts: Vec<(SectionKind, Part)> = vec![
+        (SectionKind::Metadata, Part::Memory(meta_section)),
+        (SectionKind::Codebooks, Part::Memory(codebook_section)),
+    ];
+    if let Some(m) = &coded.models {
+        parts.push((SectionKind::Models, Part::Memory(m.encode())));
+    }
+    parts.push((SectionKind::Vocabulary, Part::Memory(vocabulary_section)));
+    parts.push((SectionKind::BlockIndex, Part::Memory(coded.block_index)));
+    parts.push((SectionKind::BlockKeys, Part::Memory(coded.first_keys)));
+    parts.push((SectionKind::TargetIndex, Part::Memory(coded.target_index)));
+    parts.push((SectionKind::Targets, Part::Memory(coded.target_data)));
+    parts.push((SectionKind::Blocks, coded.blocks));
+    parts
+}
+
+/// The direct layout's sections, in file order; completes `meta` with what the writer found.
+fn direct_parts(
+    written: direct::DirectSections,
+    meta: &mut Meta,
+    schema: &crate::table::Schema,
+    codebook_section: Vec<u8>,
+    vocabulary_section: Vec<u8>,
+) -> Vec<(SectionKind, Part)> {
+    meta.sources = written.sources;
+    // Not used by this layout; 1 keeps 2.0's rules for them.
+    meta.sources_per_block = 1;
+    meta.targets_per_group = 1;
+    meta.block_compression = Compression::None.name().to_string();
+    meta.max_block_bytes = written.max_record as u64;
+    let z = &written.sizes;
+    meta.components = vec![
+        ("keys".to_string(), z.keys),
+        ("prefix-keys".to_string(), z.prefix_records),
+        ("hash".to_string(), z.hash),
+        ("targets".to_string(), z.text),
+        ("target-ends".to_string(), z.ends),
+    ];
+    if z.extras > 0 {
+        meta.components
+            .push(("alignments+counts".to_string(), z.extras));
+    }
+    for (name, bytes) in schema.scores.iter().zip(&z.codes) {
+        meta.components.push((format!("score:{name}"), *bytes));
+    }
+    meta.components.push(("chunk-sums".to_string(), z.chunks));
+    let meta_section = serde_json::to_vec(&*meta).expect("metadata serializes");
+    let (records_path, records_len, records_crc) = written.records;
+    let (text_path, text_len, text_crc) = written.text;
+    vec![
+        (SectionKind::Metadata, Part::Memory(meta_section)),
+        (SectionKind::Codebooks, Part::Memory(codebook_section)),
+        (SectionKind::Vocabulary, Part::Memory(vocabulary_section)),
+        (SectionKind::DirectChunks, Part::Memory(written.chunks)),
+        (SectionKind::DirectHash, Part::Memory(written.hash)),
+        (
+            SectionKind::DirectRecords,
+            Part::File {
+                path: records_path,
+                len: records_len,
+                crc: records_crc,
+            },
+        ),
+        (
+            SectionKind::DirectText,
+            Part::File {
+                path: text_path,
+                len: text_len,
+                crc: text_crc,
+            },
+        ),
+    ]
+}
+
+/// The provenance recorded in the file: the tool and version first, then what the caller
+/// gave, then the packing settings.
+fn full_provenance(
+    mut provenance: Vec<(String, String)>,
+    options: &PackOptions,
+) -> Vec<(String, String)> {
     provenance.insert(
         0,
         (
@@ -465,170 +807,7 @@ where
     } else {
         provenance.push(("layout".into(), options.layout.name().into()));
     }
-    let quantization: Vec<_> = schema
-        .scores
-        .iter()
-        .zip(&codebooks)
-        .zip(&errors)
-        .map(|((column, book), err)| err.report(column, book, options.bits.unwrap_or(32)))
-        .collect();
-    let codebook_section = encode_codebooks(&codebooks, &widths);
-    let mut meta = Meta {
-        format: format::FORMAT_NAME.to_string(),
-        pairs,
-        sources: 0,
-        targets: n_targets,
-        vocabulary: n_words,
-        scores: schema.scores.clone(),
-        counts: schema.counts.iter().map(|c| c.name().to_string()).collect(),
-        alignment: schema.alignment,
-        option_order: format::OptionOrder {
-            by: order_column.map(|c| schema.scores[c].clone()),
-            ties: "target phrase bytes ascending".into(),
-        },
-        sources_per_block: options.sources_per_block,
-        targets_per_group: options.targets_per_group,
-        block_compression: options.compression.name().to_string(),
-        max_block_bytes: 0,
-        layout: options.layout.name().to_string(),
-        components: Vec::new(),
-        table_metadata: header.metadata.entries().to_vec(),
-        provenance,
-        quantization,
-    };
-    if let Some(d) = direct {
-        drop(writer);
-        let written = d.finish()?;
-        meta.sources = written.sources;
-        // Not used by this layout; 1 keeps 2.0's rules for them.
-        meta.sources_per_block = 1;
-        meta.targets_per_group = 1;
-        meta.block_compression = Compression::None.name().to_string();
-        meta.max_block_bytes = written.max_record as u64;
-        let z = &written.sizes;
-        meta.components = vec![
-            ("keys".to_string(), z.keys),
-            ("prefix-keys".to_string(), z.prefix_records),
-            ("hash".to_string(), z.hash),
-            ("targets".to_string(), z.text),
-            ("target-ends".to_string(), z.ends),
-        ];
-        if z.extras > 0 {
-            meta.components
-                .push(("alignments+counts".to_string(), z.extras));
-        }
-        for (name, bytes) in schema.scores.iter().zip(&z.codes) {
-            meta.components.push((format!("score:{name}"), *bytes));
-        }
-        meta.components.push(("chunk-sums".to_string(), z.chunks));
-        let meta_section = serde_json::to_vec(&meta).expect("metadata serializes");
-        let (records_path, records_len, records_crc) = written.records;
-        let (text_path, text_len, text_crc) = written.text;
-        let parts: Vec<(SectionKind, Part)> = vec![
-            (SectionKind::Metadata, Part::Memory(meta_section)),
-            (SectionKind::Codebooks, Part::Memory(codebook_section)),
-            (SectionKind::Vocabulary, Part::Memory(vocabulary_section)),
-            (SectionKind::DirectChunks, Part::Memory(written.chunks)),
-            (SectionKind::DirectHash, Part::Memory(written.hash)),
-            (
-                SectionKind::DirectRecords,
-                Part::File {
-                    path: records_path,
-                    len: records_len,
-                    crc: records_crc,
-                },
-            ),
-            (
-                SectionKind::DirectText,
-                Part::File {
-                    path: text_path,
-                    len: text_len,
-                    crc: text_crc,
-                },
-            ),
-        ];
-        let (sections, file_bytes) = write_file(out, &parts, options.layout)?;
-        return Ok(PackReport {
-            meta,
-            sections,
-            file_bytes,
-        });
-    }
-    let WrittenSources {
-        sources,
-        block_sources,
-        first_keys,
-        key_ends,
-        counter,
-    } = writer.finish()?;
-
-    // Models from the counts of blocks and targets; then code targets and blocks.
-    let models = counter.map(|mut c| {
-        for (m, t) in c.counts.iter_mut().zip(&target_groups.counter.counts) {
-            for (x, y) in m.iter_mut().zip(t) {
-                *x += y;
-            }
-        }
-        Models::from_counts(&c.counts)
-    });
-    let mut costs = CostSink::new(ids, models.as_ref(), n_scores);
-    let (target_index, target_data, max_group) =
-        target_groups.code(models.as_ref(), n_words, &mut costs);
-    let blocks_path = temp.path().join("blocks.coded");
-    let coded = blocks::code_blocks(
-        &raw_path,
-        &block_sources,
-        &first_keys,
-        &key_ends,
-        &shape,
-        ids,
-        models.as_ref(),
-        &mut costs,
-        &blocks_path,
-    )?;
-    drop(std::fs::remove_file(&raw_path));
-
-    // Metadata.
-    let mut components: Vec<(String, u64)> = Vec::new();
-    for (i, bits) in costs.bits.iter().enumerate() {
-        let name = match COMPONENTS.get(i) {
-            Some(&"-") => continue,
-            Some(n) => n.to_string(),
-            None => format!("score:{}", schema.scores[i - COMPONENTS.len()]),
-        };
-        components.push((name, (bits / 8.0).ceil() as u64));
-    }
-    meta.sources = sources;
-    meta.max_block_bytes = coded.max_block.max(max_group) as u64;
-    meta.components = components;
-    let meta_section = serde_json::to_vec(&meta).expect("metadata serializes");
-
-    let mut parts: Vec<(SectionKind, Part)> = vec![
-        (SectionKind::Metadata, Part::Memory(meta_section)),
-        (SectionKind::Codebooks, Part::Memory(codebook_section)),
-    ];
-    if let Some(m) = &models {
-        parts.push((SectionKind::Models, Part::Memory(m.encode())));
-    }
-    parts.push((SectionKind::Vocabulary, Part::Memory(vocabulary_section)));
-    parts.push((SectionKind::BlockIndex, Part::Memory(coded.index)));
-    parts.push((SectionKind::BlockKeys, Part::Memory(first_keys)));
-    parts.push((SectionKind::TargetIndex, Part::Memory(target_index)));
-    parts.push((SectionKind::Targets, Part::Memory(target_data)));
-    parts.push((
-        SectionKind::Blocks,
-        Part::File {
-            path: blocks_path,
-            len: coded.bytes,
-            crc: coded.crc,
-        },
-    ));
-    let (sections, file_bytes) = write_file(out, &parts, options.layout)?;
-    Ok(PackReport {
-        meta,
-        sections,
-        file_bytes,
-    })
+    provenance
 }
 
 /// A section's bytes: in memory, or in a temporary file whose length and checksum were taken

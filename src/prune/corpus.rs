@@ -1,12 +1,14 @@
 //! Sentence-level counts for the significance test, computed from a sentence-aligned corpus.
 //!
-//! This is a self-contained counter for `baler prune --source --target`; extraction writes the
-//! same columns when it has the corpus at hand.
+//! `baler prune --source --target` finds a table's phrases in each sentence pair here and
+//! counts them with the one counter extraction uses (`extract::cooccurrence`, where
+//! the definition of the counts and of N is documented).
 
 use std::collections::HashMap;
 use std::io::BufRead;
 
 use crate::error::{Error, Result};
+use crate::extract::cooccurrence::Cooccurrence;
 use crate::extract::corpus::{kept, tokenize, Kept};
 use crate::files;
 
@@ -34,10 +36,9 @@ use crate::files;
 pub struct SentenceCounts {
     sources: HashMap<String, u32>,
     targets: HashMap<String, u32>,
+    /// Each pair's number in `counts`.
     pairs: HashMap<(u32, u32), usize>,
-    cooc: Vec<u64>,
-    df_source: Vec<u64>,
-    df_target: Vec<u64>,
+    counts: Cooccurrence,
     sentence_pairs: u64,
 }
 
@@ -80,42 +81,46 @@ impl SentenceCounts {
         S: BufRead,
         T: BufRead,
     {
-        let mut counts = SentenceCounts {
-            sources: HashMap::new(),
-            targets: HashMap::new(),
-            pairs: HashMap::new(),
-            cooc: Vec::new(),
-            df_source: Vec::new(),
-            df_target: Vec::new(),
-            sentence_pairs: 0,
-        };
-        let mut options: Vec<Vec<(u32, usize)>> = Vec::new();
+        let mut sources: HashMap<String, u32> = HashMap::new();
+        let mut targets: HashMap<String, u32> = HashMap::new();
+        let mut options: Vec<Vec<u32>> = Vec::new();
         let (mut longest_source, mut longest_target) = (0, 0);
         for (s, t) in pairs {
-            let next = counts.sources.len() as u32;
-            let sid = *counts.sources.entry(s.to_string()).or_insert(next);
+            let next = sources.len() as u32;
+            let sid = *sources.entry(s.to_string()).or_insert(next);
             if sid as usize == options.len() {
                 options.push(Vec::new());
                 longest_source = longest_source.max(s.split(' ').count());
             }
-            let next = counts.targets.len() as u32;
-            let tid = *counts.targets.entry(t.to_string()).or_insert(next);
-            if tid as usize == counts.df_target.len() {
-                counts.df_target.push(0);
+            let next = targets.len() as u32;
+            let tid = *targets.entry(t.to_string()).or_insert(next);
+            if tid == next {
                 longest_target = longest_target.max(t.split(' ').count());
             }
-            let next = counts.cooc.len();
-            let slot = *counts.pairs.entry((sid, tid)).or_insert(next);
-            if slot == next {
-                counts.cooc.push(0);
-                options[sid as usize].push((tid, slot));
-            }
+            options[sid as usize].push(tid);
         }
-        counts.df_source = vec![0; options.len()];
-        let mut seen_target = vec![u64::MAX; counts.targets.len()];
-        let mut seen_source = vec![u64::MAX; options.len()];
+        // Each source's targets sorted, numbered in that order.
+        let mut offsets = vec![0];
+        let mut flat = Vec::new();
+        let mut numbers = HashMap::new();
+        for (sid, mut tids) in options.into_iter().enumerate() {
+            tids.sort_unstable();
+            tids.dedup();
+            for tid in tids {
+                numbers.insert((sid as u32, tid), flat.len());
+                flat.push(tid);
+            }
+            offsets.push(flat.len());
+        }
+        let mut counts = SentenceCounts {
+            counts: Cooccurrence::new(offsets, flat, targets.len()),
+            sources,
+            targets,
+            pairs: numbers,
+            sentence_pairs: 0,
+        };
         let (mut source_line, mut target_line) = (String::new(), String::new());
-        let mut found_sources = Vec::new();
+        let (mut found_sources, mut found_targets) = (Vec::new(), Vec::new());
         let (mut source_tokens, mut target_tokens) = (String::new(), String::new());
         let (mut source_starts, mut target_starts) = (Vec::new(), Vec::new());
         let mut source = source;
@@ -146,33 +151,18 @@ impl SentenceCounts {
             if kept(ns, nt, max_sentence_length) != Kept::Yes {
                 continue;
             }
-            let sentence = counts.sentence_pairs;
             counts.sentence_pairs += 1;
             found_sources.clear();
             each_phrase(&source_tokens, &source_starts, longest_source, |p| {
-                if let Some(&id) = counts.sources.get(p) {
-                    if seen_source[id as usize] != sentence {
-                        seen_source[id as usize] = sentence;
-                        found_sources.push(id);
-                    }
-                }
+                found_sources.extend(counts.sources.get(p));
             });
+            found_targets.clear();
             each_phrase(&target_tokens, &target_starts, longest_target, |p| {
-                if let Some(&id) = counts.targets.get(p) {
-                    if seen_target[id as usize] != sentence {
-                        seen_target[id as usize] = sentence;
-                        counts.df_target[id as usize] += 1;
-                    }
-                }
+                found_targets.extend(counts.targets.get(p));
             });
-            for &sid in &found_sources {
-                counts.df_source[sid as usize] += 1;
-                for &(tid, slot) in &options[sid as usize] {
-                    if seen_target[tid as usize] == sentence {
-                        counts.cooc[slot] += 1;
-                    }
-                }
-            }
+            counts
+                .counts
+                .add_sentence(&mut found_sources, &mut found_targets);
         }
         Ok(counts)
     }
@@ -186,11 +176,12 @@ impl SentenceCounts {
     pub fn get(&self, source: &str, target: &str) -> Option<(u64, u64, u64)> {
         let sid = *self.sources.get(source)?;
         let tid = *self.targets.get(target)?;
-        let slot = *self.pairs.get(&(sid, tid))?;
+        let pair = *self.pairs.get(&(sid, tid))?;
+        let counts = self.counts.counts();
         Some((
-            self.cooc[slot],
-            self.df_source[sid as usize],
-            self.df_target[tid as usize],
+            u64::from(counts.cooc(pair)),
+            u64::from(counts.df_source(sid as usize)),
+            u64::from(counts.df_target(tid as usize)),
         ))
     }
 }

@@ -28,10 +28,138 @@ struct Significance {
 struct Widen {
     /// For each input count, its index in the output counts.
     count_map: Vec<usize>,
-    /// Output count indices of `cooc`, `df_source`, `df_target` filled from the corpus.
-    corpus: Option<(SentenceCounts, [usize; 3])>,
+    /// The `cooc`, `df_source`, `df_target` columns filled from the corpus.
+    corpus: Option<CorpusColumns>,
     scores: usize,
     counts: usize,
+}
+
+/// Sentence-level counts taken from a corpus, and the output count columns they fill.
+struct CorpusColumns {
+    counts: SentenceCounts,
+    cooc: usize,
+    df_source: usize,
+    df_target: usize,
+}
+
+impl CorpusColumns {
+    /// Adds the `cooc`, `df_source` and `df_target` columns to `out` (refusing a table that
+    /// has them already) and records the corpus's N as its `sentence_pairs`.
+    fn add(out: &mut Header, file: &str, counts: SentenceCounts) -> Result<CorpusColumns> {
+        for c in [
+            CountColumn::Cooc,
+            CountColumn::DfSource,
+            CountColumn::DfTarget,
+        ] {
+            if out.schema.counts.contains(&c) {
+                return Err(Error::invalid(
+                    "--source",
+                    format!(
+                        "{file} already has the column {:?}; counting from a corpus would \
+                         replace it (drop --source/--target to use the table's counts)",
+                        c.name()
+                    ),
+                ));
+            }
+            out.schema.counts.push(c);
+        }
+        out.schema.counts.sort();
+        out.metadata
+            .set("sentence_pairs", counts.sentence_pairs().to_string());
+        let at = |c| out.schema.count_index(c).expect("just added");
+        Ok(CorpusColumns {
+            cooc: at(CountColumn::Cooc),
+            df_source: at(CountColumn::DfSource),
+            df_target: at(CountColumn::DfTarget),
+            counts,
+        })
+    }
+}
+
+/// The index of the `neg_ln_p` score column in `out`, added when absent.
+fn annotation_column(out: &mut Header) -> usize {
+    match out.schema.score_index(NEG_LN_P) {
+        Some(i) => i,
+        None => {
+            out.schema.scores.push(NEG_LN_P.into());
+            out.schema.scores.len() - 1
+        }
+    }
+}
+
+/// One stage per filter, resolved against the output schema, with its statistics; `total` is
+/// the significance test's N (set when a filter needs it).
+fn build_stages(
+    filters: &[Filter],
+    out: &Header,
+    file: &str,
+    total: Option<u64>,
+) -> Result<(Vec<Stage>, Vec<FilterStats>)> {
+    let mut stages = Vec::new();
+    let mut filter_stats = Vec::new();
+    for f in filters {
+        let mut stats = FilterStats {
+            filter: f.describe(),
+            ..Default::default()
+        };
+        let stage = match f {
+            Filter::Significance(t) => {
+                let v = t.value(total.expect("significance set up"));
+                stats.threshold = Some(v);
+                stats.neg_ln_p = Some(Histogram::new());
+                Stage::Significance(v)
+            }
+            Filter::TopK { k, by } => {
+                if *k == 0 {
+                    return Err(Error::invalid("--top-k", "must be at least 1"));
+                }
+                Stage::TopK(*k, by.resolve(&out.schema)?)
+            }
+            Filter::Bound {
+                column,
+                minimum,
+                value,
+            } => {
+                let option = if *minimum { "--min" } else { "--max" };
+                Stage::Bound(
+                    Column::resolve(&out.schema, column, option)?,
+                    *minimum,
+                    *value,
+                )
+            }
+            Filter::RelativeEntropy(v) => {
+                if v.is_nan() {
+                    return Err(Error::invalid("--relative-entropy", "not a number"));
+                }
+                let column = out.schema.score_index("p_t_given_s").ok_or_else(|| {
+                    Error::invalid(
+                        "--relative-entropy",
+                        format!("{file} has no p_t_given_s column to compose"),
+                    )
+                })?;
+                stats.threshold = Some(*v);
+                Stage::Entropy(*v, column)
+            }
+            Filter::KeepTestPhrases(path) => {
+                Stage::TestPhrases(super::testset::TestPhrases::from_path(path)?)
+            }
+        };
+        stages.push(stage);
+        filter_stats.push(stats);
+    }
+    Ok((stages, filter_stats))
+}
+
+/// Appends what this run does to the `# pruned_with` provenance (after ` | ` when the table
+/// was pruned before).
+fn record_provenance(out: &mut Header, options: &PruneOptions) {
+    let mut value = options.describe();
+    if !value.is_empty() {
+        if let Some(earlier) = out.metadata.get("pruned_with") {
+            value = format!("{earlier} | {value}"); // pruned before: keep the history
+        }
+        out.metadata.set("pruned_with", value);
+    }
 }
 
 /// Applies [`Filter`]s to a stream of phrase pairs grouped by source, in byte order of source.
@@ -92,57 +220,23 @@ impl Pruner {
                 .filters
                 .iter()
                 .any(|f| matches!(f, Filter::Significance(_)));
-        // widen the schema: corpus counts, then the annotation column
-        let mut corpus_slots = None;
-        if let (CountSource::Corpus { .. }, true) = (&options.counts, needs_test) {
-            let counts = corpus.ok_or(Error::Internal(
-                "corpus counts must be computed before pruning",
-            ))?;
-            for c in [
-                CountColumn::Cooc,
-                CountColumn::DfSource,
-                CountColumn::DfTarget,
-            ] {
-                if out.schema.counts.contains(&c) {
-                    return Err(Error::invalid(
-                        "--source",
-                        format!(
-                            "{file} already has the column {:?}; counting from a corpus would \
-                             replace it (drop --source/--target to use the table's counts)",
-                            c.name()
-                        ),
-                    ));
-                }
-                out.schema.counts.push(c);
+        // The schema widened: corpus counts, then the annotation column.
+        let corpus = match (&options.counts, needs_test) {
+            (CountSource::Corpus { .. }, true) => {
+                let counts = corpus.ok_or(Error::Internal(
+                    "corpus counts must be computed before pruning",
+                ))?;
+                Some(CorpusColumns::add(&mut out, file, counts)?)
             }
-            out.schema.counts.sort();
-            out.metadata
-                .set("sentence_pairs", counts.sentence_pairs().to_string());
-            let at = |c| out.schema.count_index(c).expect("just added");
-            let slots = [
-                at(CountColumn::Cooc),
-                at(CountColumn::DfSource),
-                at(CountColumn::DfTarget),
-            ];
-            corpus_slots = Some((counts, slots));
-        }
+            _ => None,
+        };
         let count_map = header
             .schema
             .counts
             .iter()
             .map(|&c| out.schema.count_index(c).expect("kept"))
             .collect();
-        let annotate = if options.annotate {
-            Some(match out.schema.score_index(NEG_LN_P) {
-                Some(i) => i,
-                None => {
-                    out.schema.scores.push(NEG_LN_P.into());
-                    out.schema.scores.len() - 1
-                }
-            })
-        } else {
-            None
-        };
+        let annotate = options.annotate.then(|| annotation_column(&mut out));
         let significance = if needs_test {
             Some(significance_setup(
                 &out,
@@ -153,75 +247,21 @@ impl Pruner {
         } else {
             None
         };
-        let mut stages = Vec::new();
-        let mut filter_stats = Vec::new();
-        for f in &options.filters {
-            let mut stats = FilterStats {
-                filter: f.describe(),
-                ..Default::default()
-            };
-            let stage = match f {
-                Filter::Significance(t) => {
-                    let total = significance.as_ref().expect("set up").test.total();
-                    let v = t.value(total);
-                    stats.threshold = Some(v);
-                    stats.neg_ln_p = Some(Histogram::new());
-                    Stage::Significance(v)
-                }
-                Filter::TopK { k, by } => {
-                    if *k == 0 {
-                        return Err(Error::invalid("--top-k", "must be at least 1"));
-                    }
-                    Stage::TopK(*k, by.resolve(&out.schema)?)
-                }
-                Filter::Bound {
-                    column,
-                    minimum,
-                    value,
-                } => {
-                    let option = if *minimum { "--min" } else { "--max" };
-                    Stage::Bound(
-                        Column::resolve(&out.schema, column, option)?,
-                        *minimum,
-                        *value,
+        let total = significance.as_ref().map(|s| s.test.total());
+        let (stages, filter_stats) = build_stages(&options.filters, &out, file, total)?;
+        let renormalize = options
+            .renormalize
+            .iter()
+            .map(|name| {
+                out.schema.score_index(name).ok_or_else(|| {
+                    Error::invalid(
+                        "--renormalize",
+                        format!("{file} has no score column {name:?}"),
                     )
-                }
-                Filter::RelativeEntropy(v) => {
-                    if v.is_nan() {
-                        return Err(Error::invalid("--relative-entropy", "not a number"));
-                    }
-                    let column = out.schema.score_index("p_t_given_s").ok_or_else(|| {
-                        Error::invalid(
-                            "--relative-entropy",
-                            format!("{file} has no p_t_given_s column to compose"),
-                        )
-                    })?;
-                    stats.threshold = Some(*v);
-                    Stage::Entropy(*v, column)
-                }
-                Filter::KeepTestPhrases(path) => {
-                    Stage::TestPhrases(super::testset::TestPhrases::from_path(path)?)
-                }
-            };
-            stages.push(stage);
-            filter_stats.push(stats);
-        }
-        let mut renormalize = Vec::new();
-        for name in &options.renormalize {
-            renormalize.push(out.schema.score_index(name).ok_or_else(|| {
-                Error::invalid(
-                    "--renormalize",
-                    format!("{file} has no score column {name:?}"),
-                )
-            })?);
-        }
-        let mut value = options.describe();
-        if !value.is_empty() {
-            if let Some(earlier) = out.metadata.get("pruned_with") {
-                value = format!("{earlier} | {value}"); // pruned before: keep the history
-            }
-            out.metadata.set("pruned_with", value);
-        }
+                })
+            })
+            .collect::<Result<Vec<_>>>()?;
+        record_provenance(&mut out, options);
         let counts_label = match (&options.counts, needs_test) {
             (_, false) => "none",
             (CountSource::Table, _) => "table",
@@ -230,7 +270,7 @@ impl Pruner {
         };
         let widen = Widen {
             count_map,
-            corpus: corpus_slots,
+            corpus,
             scores: out.schema.scores.len(),
             counts: out.schema.counts.len(),
         };
@@ -238,7 +278,7 @@ impl Pruner {
             file: file.to_string(),
             stats: PruneStats {
                 input: file.to_string(),
-                sentence_pairs: significance.as_ref().map(|s| s.test.total()),
+                sentence_pairs: total,
                 counts: counts_label.into(),
                 filters: filter_stats,
                 ..Default::default()
@@ -268,7 +308,7 @@ impl Pruner {
 
     /// Hands back the corpus counts given to [`Pruner::with_counts`], for a second run.
     pub(crate) fn take_corpus(&mut self) -> Option<SentenceCounts> {
-        self.widen.corpus.take().map(|(c, _)| c)
+        self.widen.corpus.take().map(|c| c.counts)
     }
 
     /// The statistics so far (complete after [`Pruner::run`]).
@@ -345,13 +385,14 @@ impl Pruner {
             for (i, &c) in pair.counts.iter().enumerate() {
                 counts[w.count_map[i]] = c;
             }
-            if let Some((corpus, slots)) = &w.corpus {
-                let (c, ds, dt) = corpus.get(&pair.source, &pair.target).ok_or_else(|| {
-                    Error::input(&self.file, line, "pair was not counted in the corpus")
-                })?;
-                counts[slots[0]] = c;
-                counts[slots[1]] = ds;
-                counts[slots[2]] = dt;
+            if let Some(corpus) = &w.corpus {
+                let (c, ds, dt) =
+                    (corpus.counts.get(&pair.source, &pair.target)).ok_or_else(|| {
+                        Error::input(&self.file, line, "pair was not counted in the corpus")
+                    })?;
+                counts[corpus.cooc] = c;
+                counts[corpus.df_source] = ds;
+                counts[corpus.df_target] = dt;
             }
             pair.counts = counts;
         }

@@ -203,7 +203,6 @@ pub struct TsvReader<R> {
     header: Header,
     slots: Vec<Slot>,
     buf: String,
-    pending: Option<String>,
 }
 
 impl<R: BufRead> TsvReader<R> {
@@ -246,7 +245,6 @@ impl<R: BufRead> TsvReader<R> {
             header: Header { metadata, schema },
             slots,
             buf,
-            pending: None,
         })
     }
 
@@ -269,9 +267,7 @@ impl<R: BufRead> TsvReader<R> {
     pub fn read_into(&mut self, pair: &mut PhrasePair) -> Result<bool> {
         loop {
             self.line_no += 1;
-            if let Some(line) = self.pending.take() {
-                self.buf = line;
-            } else if !files::read_line(&mut self.input, &mut self.buf, &self.file, self.line_no)? {
+            if !files::read_line(&mut self.input, &mut self.buf, &self.file, self.line_no)? {
                 return Ok(false);
             }
             if self.buf.is_empty() {
@@ -281,6 +277,82 @@ impl<R: BufRead> TsvReader<R> {
                 .map(|()| true)
                 .map_err(|reason| Error::input(&self.file, self.line_no, reason));
         }
+    }
+}
+
+/// A record read by [`TsvReader::read_raw`]: its line as read, and its two phrases.
+#[derive(Clone, Copy, Debug)]
+pub struct RawRecord<'a> {
+    /// The whole line, without its line ending.
+    pub line: &'a str,
+    /// The source phrase.
+    pub source: &'a str,
+    /// The target phrase.
+    pub target: &'a str,
+    /// Its line number in the file.
+    pub line_no: u64,
+}
+
+impl<R: BufRead> TsvReader<R> {
+    /// Whether the columns are in canonical order (`source`, `target`, `alignment`, scores,
+    /// counts), the order [`TsvWriter`] writes: then a line read by [`TsvReader::read_raw`]
+    /// can be written back as it is.
+    pub fn canonical_columns(&self) -> bool {
+        let rank = |slot: &Slot| match *slot {
+            Slot::Source => (0, 0),
+            Slot::Target => (1, 0),
+            Slot::Alignment => (2, 0),
+            Slot::Score(k) => (3, k),
+            Slot::Count(k) => (4, k),
+        };
+        self.slots.windows(2).all(|w| rank(&w[0]) < rank(&w[1]))
+    }
+
+    /// Reads the next record without parsing its scores, counts and alignment (for passing
+    /// rows through unchanged, e.g. with columns appended by [`TsvWriter::write_extended`]);
+    /// the field count and both phrases are checked. `None` at end of input.
+    ///
+    /// # Examples
+    /// ```
+    /// let text = "source\ttarget\tp_t_given_s\nla nave\tthe ship\t0.5\n";
+    /// let mut reader = baler::table::TsvReader::new(text.as_bytes(), "example.tsv").unwrap();
+    /// let record = reader.read_raw().unwrap().unwrap();
+    /// assert_eq!((record.source, record.line), ("la nave", "la nave\tthe ship\t0.5"));
+    /// assert!(reader.read_raw().unwrap().is_none());
+    /// ```
+    pub fn read_raw(&mut self) -> Result<Option<RawRecord<'_>>> {
+        loop {
+            self.line_no += 1;
+            if !files::read_line(&mut self.input, &mut self.buf, &self.file, self.line_no)? {
+                return Ok(None);
+            }
+            if !self.buf.is_empty() {
+                break; // blank lines (e.g. a trailing one) carry no record
+            }
+        }
+        let line = self.buf.as_str();
+        let (mut source, mut target, mut n) = ("", "", 0);
+        let bad = |reason: String| Error::input(&self.file, self.line_no, reason);
+        for (i, field) in line.split('\t').enumerate() {
+            n += 1;
+            match self.slots.get(i) {
+                Some(Slot::Source) => source = check_phrase(field, "source").map_err(bad)?,
+                Some(Slot::Target) => target = check_phrase(field, "target").map_err(bad)?,
+                _ => {}
+            }
+        }
+        if n != self.slots.len() {
+            return Err(bad(format!(
+                "expected {} tab-separated fields, found {n}",
+                self.slots.len()
+            )));
+        }
+        Ok(Some(RawRecord {
+            line,
+            source,
+            target,
+            line_no: self.line_no,
+        }))
     }
 }
 
@@ -541,6 +613,21 @@ impl<W: Write> TsvWriter<W> {
         }
         line.push('\n');
         self.out.write_all(line.as_bytes())
+    }
+
+    /// Writes a record read with [`TsvReader::read_raw`] from a table in canonical column
+    /// order ([`TsvReader::canonical_columns`]), followed by `counts`: the count columns this
+    /// writer's schema has after the reader's.
+    pub fn write_extended(&mut self, line: &str, counts: &[u64]) -> std::io::Result<()> {
+        let out = &mut self.line;
+        out.clear();
+        out.push_str(line);
+        for &c in counts {
+            out.push('\t');
+            format_count(out, c);
+        }
+        out.push('\n');
+        self.out.write_all(out.as_bytes())
     }
 
     /// The underlying writer.
