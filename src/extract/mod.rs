@@ -55,6 +55,7 @@ pub mod corpus;
 mod counter;
 mod framed;
 pub mod index;
+mod partitioned;
 pub mod phrases;
 pub mod ranges;
 mod report;
@@ -128,20 +129,41 @@ pub fn extract(
     shard::check_settings(paths, &options.shard)?;
     crate::files::check_output(out, &paths.inputs())?;
     let mut output = Output::create(out)?;
-    if let Some(done) =
-        resident::extract_resident(paths, &options.shard, options.discount, &mut output, out)?
-    {
-        output.commit()?;
-        return Ok(ExtractSummary {
-            corpus: done.info.corpus,
-            pair_occurrences: done.info.pair_occurrences,
-            pairs: done.pairs,
-            sources: done.sources,
-            targets: done.targets,
-            sentence_count_passes: 1,
-            seconds: started.elapsed().as_secs_f64(),
-            step_seconds: done.step_seconds,
-        });
+    let summary = |done: resident::ResidentSummary| ExtractSummary {
+        corpus: done.info.corpus,
+        pair_occurrences: done.info.pair_occurrences,
+        pairs: done.pairs,
+        sources: done.sources,
+        targets: done.targets,
+        sentence_count_passes: done.passes,
+        seconds: started.elapsed().as_secs_f64(),
+        step_seconds: done.step_seconds,
+    };
+    let sample = partitioned::sample(paths, &options.shard)?;
+    let mut word_order_differs = false;
+    if sample.resident_fits(options.shard.memory) {
+        match resident::extract_resident(paths, &options.shard, options.discount, &mut output, out)?
+        {
+            Ok(done) => {
+                output.commit()?;
+                return Ok(summary(done));
+            }
+            Err(resident::Declined::WordOrder) => word_order_differs = true,
+            Err(resident::Declined::OverBudget) => {}
+        }
+    }
+    if !word_order_differs {
+        if let Some(done) = partitioned::extract_partitioned(
+            paths,
+            &options.shard,
+            options.discount,
+            &sample,
+            &mut output,
+            out,
+        )? {
+            output.commit()?;
+            return Ok(summary(done));
+        }
     }
     extract_spilling(paths, options, output, started)
 }
