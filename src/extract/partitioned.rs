@@ -40,7 +40,7 @@ use super::phrases::{write_inside, PhraseFinder, SpanPair};
 use super::report::Progress;
 use super::resident::{
     aggregate, alignment_links, alignment_ranks, count_sentences, word_table, write_table,
-    Extracted, PhraseTree, Ranks, ResidentSummary, Side, Writing, ROOT,
+    Extracted, PhraseTree, Ranks, ResidentSummary, Side, Vocabulary, Writing, ROOT,
 };
 use super::runs::RunInfo;
 use super::score::{Discount, FastMap};
@@ -49,7 +49,7 @@ use crate::error::{Error, Result};
 use crate::files::TempDir;
 
 /// Sentence pairs read by [`sample`].
-const SAMPLE_PAIRS: usize = 20_000;
+const SAMPLE_PAIRS: usize = 5_000;
 /// Bucket files per side in pass 1 (groups of consecutive buckets are processed together).
 const BUCKETS: usize = 64;
 /// Memory per phrase-pair occurrence while a source group is processed: the occurrence as
@@ -60,12 +60,16 @@ const GROUP_BYTES_PER_OCCURRENCE: u64 = 320;
 const TARGET_BYTES_PER_OCCURRENCE: u64 = 80;
 /// What the fully resident path holds per occurrence, its trees included.
 const RESIDENT_BYTES_PER_OCCURRENCE: u64 = 120;
+/// A corpus whose source file times this fits the budget takes the resident path without a
+/// sample (about 1 occurrence per source byte in natural and synthetic text, measured).
+pub(crate) const BYTES_PER_CORPUS_BYTE: u64 = 256;
 
 /// What [`sample`] learnt from the first sentence pairs.
 pub(crate) struct Sample {
-    /// Split words of each side in strictly increasing byte order: a phrase whose first word
-    /// `w` has `k` split words `<= w` goes to bucket `k`.
-    split_words: [Vec<Box<str>>; 2],
+    /// Split keys of each side (phrases of one or two words) in strictly increasing order: a
+    /// phrase with `k` split keys `<=` it goes to bucket `k`. Two words, so that the phrases
+    /// of one frequent first word can spread over several buckets.
+    split_keys: [Vec<Key>; 2],
     /// Phrase-pair occurrences expected in the whole corpus.
     estimated_occurrences: u64,
 }
@@ -79,22 +83,88 @@ impl Sample {
     }
 }
 
-fn bucket_of(split_words: &[Box<str>], word: &str) -> u8 {
-    split_words.partition_point(|s| &**s <= word) as u8
+/// A split key: the first one or two words of a phrase.
+type Key = Vec<Box<str>>;
+
+/// Compares phrases word by word, a phrase before its extensions: byte order of their text
+/// when no word holds a byte below the space after its first byte (checked after pass 1).
+fn compare_words<'a, 'b>(
+    a: impl IntoIterator<Item = &'a str>,
+    b: impl IntoIterator<Item = &'b str>,
+) -> Order {
+    let (mut a, mut b) = (a.into_iter(), b.into_iter());
+    loop {
+        match (a.next(), b.next()) {
+            (None, None) => return Order::Equal,
+            (None, Some(_)) => return Order::Less,
+            (Some(_), None) => return Order::Greater,
+            (Some(x), Some(y)) => match x.cmp(y) {
+                Order::Equal => {}
+                other => return other,
+            },
+        }
+    }
 }
 
-fn quantiles(mut words: Vec<Box<str>>) -> Vec<Box<str>> {
-    words.sort_unstable();
-    let mut split: Vec<Box<str>> = Vec::new();
+/// Where the phrases starting with one word go.
+#[derive(Clone, Copy)]
+struct WordBucket {
+    /// The bucket of the one-word phrase.
+    bucket: u8,
+    /// Whether some split key starts with this word and goes on (then longer phrases are
+    /// placed by [`bucket_of_phrase`]).
+    split: bool,
+}
+
+fn word_bucket(keys: &[Key], word: &str) -> WordBucket {
+    let bucket = keys.partition_point(|k| compare_words(k.iter().map(|w| &**w), [word]).is_le());
+    let split = keys.iter().any(|k| k.len() > 1 && &*k[0] == word);
+    WordBucket {
+        bucket: bucket as u8,
+        split,
+    }
+}
+
+fn bucket_of_phrase<'a>(keys: &[Key], phrase: impl Iterator<Item = &'a str> + Clone) -> u8 {
+    keys.partition_point(|k| compare_words(k.iter().map(|w| &**w), phrase.clone()).is_le()) as u8
+}
+
+fn quantiles(mut keys: Vec<Key>) -> Vec<Key> {
+    keys.sort_unstable_by(|a, b| compare_words(a.iter().map(|w| &**w), b.iter().map(|w| &**w)));
+    let mut split: Vec<Key> = Vec::new();
     for k in 1..BUCKETS {
-        let Some(w) = words.get(k * words.len() / BUCKETS) else {
+        let Some(key) = keys.get(k * keys.len() / BUCKETS) else {
             break;
         };
-        if split.last().is_none_or(|last| last < w) {
-            split.push(w.clone());
+        let after =
+            |last: &Key| compare_words(last.iter().map(|w| &**w), key.iter().map(|w| &**w)).is_lt();
+        if split.last().is_none_or(after) {
+            split.push(key.clone());
         }
     }
     split
+}
+
+/// The one- or two-word prefixes starting at every token of a sentence.
+fn prefixes(pair: &SentencePair, source: bool, keys: &mut Vec<Key>) {
+    let (n, word) = if source {
+        (
+            pair.source_len(),
+            SentencePair::source_phrase as fn(&SentencePair, usize, usize) -> &str,
+        )
+    } else {
+        (
+            pair.target_len(),
+            SentencePair::target_phrase as fn(&SentencePair, usize, usize) -> &str,
+        )
+    };
+    for k in 0..n {
+        keys.push(
+            (k..n.min(k + 2))
+                .map(|j| word(pair, j, j + 1).into())
+                .collect(),
+        );
+    }
 }
 
 /// Reads the first sentence pairs of the corpus: split words and the expected occurrences.
@@ -110,8 +180,8 @@ pub(crate) fn sample(paths: &CorpusPaths, options: &ShardOptions) -> Result<Samp
         pairs += 1;
         bytes += pair.source.len() as u64 + 1;
         let (ns, nt) = (pair.source_len(), pair.target_len());
-        source_words.extend((0..ns).map(|k| Box::<str>::from(pair.source_phrase(k, k + 1))));
-        target_words.extend((0..nt).map(|k| Box::<str>::from(pair.target_phrase(k, k + 1))));
+        prefixes(&pair, true, &mut source_words);
+        prefixes(&pair, false, &mut target_words);
         finder.find(ns, nt, &pair.links, options.limits, |_| occurrences += 1);
         if pairs == SAMPLE_PAIRS {
             complete = false;
@@ -125,7 +195,7 @@ pub(crate) fn sample(paths: &CorpusPaths, options: &ShardOptions) -> Result<Samp
         _ => occurrences,
     };
     Ok(Sample {
-        split_words: [quantiles(source_words), quantiles(target_words)],
+        split_keys: [quantiles(source_words), quantiles(target_words)],
         estimated_occurrences,
     })
 }
@@ -262,7 +332,7 @@ fn read_into_buckets(
         let writer = scope.spawn(|| write_buckets(rx, buckets));
         let read = (|| -> Result<()> {
             let mut alignment_ids: FxHashMap<Box<str>, u32> = FxHashMap::default();
-            let mut bucket_of_word: [Vec<u8>; 2] = [Vec::new(), Vec::new()];
+            let mut bucket_of_word: [Vec<WordBucket>; 2] = [Vec::new(), Vec::new()];
             let mut pair = SentencePair::default();
             let mut finder = PhraseFinder::default();
             let mut spans: Vec<SpanPair> = Vec::new();
@@ -278,7 +348,7 @@ fn read_into_buckets(
                     let words = &side.vocabulary.words;
                     let known = &mut bucket_of_word[k];
                     while known.len() < words.len() {
-                        known.push(bucket_of(&sample.split_words[k], &words[known.len()]));
+                        known.push(word_bucket(&sample.split_keys[k], &words[known.len()]));
                     }
                 }
                 sentences += 1;
@@ -319,9 +389,18 @@ fn read_into_buckets(
                             a
                         }
                     };
+                    let side = |k: usize, ids: &[u32], vocabulary: &Vocabulary| {
+                        let first = bucket_of_word[k][ids[0] as usize - 1];
+                        if first.split && ids.len() > 1 {
+                            let words = ids.iter().map(|&w| vocabulary.word(w));
+                            bucket_of_phrase(&sample.split_keys[k], words)
+                        } else {
+                            first.bucket
+                        }
+                    };
                     let bucket = [
-                        bucket_of_word[0][f[p.source_start] as usize - 1],
-                        bucket_of_word[1][e[p.target_start] as usize - 1],
+                        side(0, &f[p.source_start..p.source_end], &x.source.vocabulary),
+                        side(1, &e[p.target_start..p.target_end], &x.target.vocabulary),
                     ];
                     let span = [p.source_start, p.source_end, p.target_start, p.target_end]
                         .map(|v| v as u16);
@@ -598,8 +677,8 @@ pub(crate) fn extract_partitioned<W: Write>(
     };
     let dir = TempDir::new(options.temp_dir.as_deref(), "baler-extract-parts-")?;
     let mut buckets = [
-        Buckets::create(dir.path(), "source", sample.split_words[0].len() + 1)?,
-        Buckets::create(dir.path(), "target", sample.split_words[1].len() + 1)?,
+        Buckets::create(dir.path(), "source", sample.split_keys[0].len() + 1)?,
+        Buckets::create(dir.path(), "target", sample.split_keys[1].len() + 1)?,
     ];
     let Pass1 {
         mut x,
