@@ -360,10 +360,34 @@ fn contains(sentence: &[&str], phrase: &[&str]) -> bool {
 /// extractor's pairs per sentence pair.
 #[test]
 fn sentence_level_counts_are_exact() {
+    check_sentence_level_counts(&["-q"]);
+}
+
+/// The same direct counts when a budget far below the corpus's needs splits the job into
+/// source ranges processed one after another (the range-partitioned path).
+#[test]
+fn sentence_level_counts_are_exact_in_source_ranges() {
+    let stderr = check_sentence_level_counts(&["--memory", "64K", "--threads", "2"]);
+    assert!(counting_passes(&stderr) > 1, "{stderr}");
+}
+
+/// The number of counting passes (source ranges) in `baler extract`'s summary.
+fn counting_passes(stderr: &str) -> u64 {
+    stderr
+        .split("; ")
+        .find_map(|part| part.strip_suffix(" counting pass(es)"))
+        .and_then(|n| n.parse().ok())
+        .expect("summary names the counting passes")
+}
+
+/// Runs the extraction with `extra` and checks its counts; returns its standard error.
+fn check_sentence_level_counts(extra: &[&str]) -> String {
     let dir = tempfile::tempdir().unwrap();
     let paths = small_corpus(dir.path(), 120);
     let out = dir.path().join("t.tsv");
-    run_extract(&paths, &out, &["-q", "--max-length", "4"]);
+    let mut args = vec!["--max-length", "4"];
+    args.extend_from_slice(extra);
+    let o = run_extract(&paths, &out, &args);
     let table = read_table(&out);
     let read = |p: &Path| std::fs::read_to_string(p).unwrap();
     let src = read(&paths.source);
@@ -426,6 +450,7 @@ fn sentence_level_counts_are_exact() {
         assert_eq!(count(&table, r, CountColumn::DfSource), dfs, "{}", r.source);
         assert_eq!(count(&table, r, CountColumn::DfTarget), dft, "{}", r.target);
     }
+    String::from_utf8_lossy(&o.stderr).into_owned()
 }
 
 /// The output does not depend on the number of threads, on memory budgets small enough to
@@ -441,21 +466,36 @@ fn output_is_identical_across_threads_budgets_and_shards() {
     for (name, extra) in [
         ("two.tsv", vec!["--threads", "2"]),
         ("three.tsv", vec!["--threads", "3", "--memory", "1M"]),
+        ("ranges1.tsv", vec!["--threads", "1", "--memory", "200K"]),
+        ("ranges2.tsv", vec!["--threads", "2", "--memory", "300K"]),
     ] {
         let out = dir.path().join(name);
         let o = run_extract(&paths, &out, &extra);
         assert!(std::fs::read(&out).unwrap() == expected, "{name} differs");
-        if name == "three.tsv" {
-            // The 1M budget must really have split the sentence-level counting into chunks.
+        if name != "two.tsv" {
+            // The small budgets must really have split the job into source ranges.
             let stderr = String::from_utf8_lossy(&o.stderr);
-            let passes: u64 = stderr
-                .split("; ")
-                .find_map(|part| part.strip_suffix(" counting pass(es)"))
-                .and_then(|n| n.parse().ok())
-                .expect("summary names the counting passes");
-            assert!(passes > 1, "{stderr}");
+            assert!(counting_passes(&stderr) > 1, "{stderr}");
         }
     }
+    // With a discount, small budgets take the map/reduce path (chunked counting).
+    let discounted = dir.path().join("gt-resident.tsv");
+    run_extract(&paths, &discounted, &["-q", "--discount", "good-turing"]);
+    let out = dir.path().join("gt-spilled.tsv");
+    let o = run_extract(
+        &paths,
+        &out,
+        &[
+            "--discount",
+            "good-turing",
+            "--memory",
+            "1M",
+            "--threads",
+            "2",
+        ],
+    );
+    assert!(std::fs::read(&out).unwrap() == std::fs::read(&discounted).unwrap());
+    assert!(counting_passes(&String::from_utf8_lossy(&o.stderr)) > 1);
     // Map/reduce by hand: split the corpus into three shards.
     let read = |p: &Path| std::fs::read_to_string(p).unwrap();
     let files = [

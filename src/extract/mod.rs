@@ -19,13 +19,23 @@
 //! chunk. Beyond the budget: the word translation table (one entry per distinct word link)
 //! and the options of the one source being scored are held in memory.
 //!
-//! [`extract`] runs the job on one machine. When the corpus fits `--memory` it does so in one
-//! pass in memory (words as integer ids, phrases as nodes of a prefix tree, no intermediate
-//! files; sums parallel by source range, sentence counts parallel by sentence); otherwise, or
-//! when some word holds a control byte after its first byte (so that word order and text order
-//! differ), it runs the four steps above. Every count is an integer summed by key and every
-//! score is computed from the summed counts, so the output is byte-identical whatever the path,
-//! the number of threads or shards.
+//! [`extract`] runs the job on one machine, by one of three paths with the same output:
+//!
+//! * **resident** (`resident.rs`), when the corpus fits `--memory`: one pass in memory (words
+//!   as integer ids, phrases as nodes of a prefix tree, no intermediate files; sums parallel
+//!   by source range, sentence counts parallel by sentence);
+//! * **range-partitioned** (`partitioned.rs`), when it does not: one corpus pass writes every
+//!   phrase-pair occurrence as integers into bucket files by the byte order of its first
+//!   source word; target totals are counted bucket by bucket; then groups of buckets that fit
+//!   the budget each run the resident machinery and are written in order. Memory: the
+//!   sentences as ids and the word links are held throughout; everything else is bounded by
+//!   the group size;
+//! * **map/reduce** (the four steps above), with a discount (whose statistics span the whole
+//!   table) beyond the budget, or when some word holds a control byte after its first byte
+//!   (so that word order and text order differ).
+//!
+//! Every count is an integer summed by key and every score is computed from the summed
+//! counts, so the output is byte-identical whatever the path, the number of threads or shards.
 //!
 //! ```
 //! # fn main() -> baler::Result<()> {
@@ -56,6 +66,7 @@ pub mod corpus;
 mod counter;
 mod framed;
 pub mod index;
+mod partitioned;
 pub mod phrases;
 pub mod ranges;
 mod report;
@@ -128,20 +139,53 @@ pub fn extract(
     shard::check_settings(paths, &options.shard)?;
     crate::files::check_output(out, &paths.inputs())?;
     let mut output = Output::create(out)?;
-    if let Some(done) =
-        resident::extract_resident(paths, &options.shard, options.discount, &mut output, out)?
-    {
-        output.commit()?;
-        return Ok(ExtractSummary {
-            corpus: done.info.corpus,
-            pair_occurrences: done.info.pair_occurrences,
-            pairs: done.pairs,
-            sources: done.sources,
-            targets: done.targets,
-            sentence_count_passes: 1,
-            seconds: started.elapsed().as_secs_f64(),
-            step_seconds: done.step_seconds,
-        });
+    let summary = |done: resident::ResidentSummary| ExtractSummary {
+        corpus: done.info.corpus,
+        pair_occurrences: done.info.pair_occurrences,
+        pairs: done.pairs,
+        sources: done.sources,
+        targets: done.targets,
+        sentence_count_passes: done.passes,
+        seconds: started.elapsed().as_secs_f64(),
+        step_seconds: done.step_seconds,
+    };
+    // A corpus far smaller than the budget goes straight to the resident path; otherwise its
+    // first sentence pairs tell whether that path is expected to fit.
+    let memory = options.shard.memory;
+    let small = std::fs::metadata(&paths.source)
+        .is_ok_and(|m| m.len().saturating_mul(partitioned::BYTES_PER_CORPUS_BYTE) <= memory);
+    let mut sample = None;
+    if !small {
+        sample = Some(partitioned::sample(paths, &options.shard)?);
+    }
+    let mut word_order_differs = false;
+    if small || sample.as_ref().is_some_and(|s| s.resident_fits(memory)) {
+        match resident::extract_resident(paths, &options.shard, options.discount, &mut output, out)?
+        {
+            Ok(done) => {
+                output.commit()?;
+                return Ok(summary(done));
+            }
+            Err(resident::Declined::WordOrder) => word_order_differs = true,
+            Err(resident::Declined::OverBudget) => {}
+        }
+    }
+    if !word_order_differs {
+        let sample = match sample {
+            Some(sample) => sample,
+            None => partitioned::sample(paths, &options.shard)?,
+        };
+        if let Some(done) = partitioned::extract_partitioned(
+            paths,
+            &options.shard,
+            options.discount,
+            &sample,
+            &mut output,
+            out,
+        )? {
+            output.commit()?;
+            return Ok(summary(done));
+        }
     }
     extract_spilling(paths, options, output, started)
 }

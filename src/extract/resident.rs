@@ -43,18 +43,18 @@ use super::shard::ShardOptions;
 use crate::error::{Error, Result};
 use crate::table::{PhrasePair, TsvWriter};
 
-const NO_NODE: u32 = u32::MAX;
-const ROOT: u32 = 0;
+pub(super) const NO_NODE: u32 = u32::MAX;
+pub(super) const ROOT: u32 = 0;
 
 /// Words of one side, numbered from 1 in order of first appearance (0 is NULL).
 #[derive(Default)]
-struct Vocabulary {
+pub(super) struct Vocabulary {
     ids: FxHashMap<Box<str>, u32>,
-    words: Vec<Box<str>>,
+    pub(super) words: Vec<Box<str>>,
 }
 
 impl Vocabulary {
-    fn id(&mut self, word: &str) -> u32 {
+    pub(super) fn id(&mut self, word: &str) -> u32 {
         if let Some(&id) = self.ids.get(word) {
             return id;
         }
@@ -64,7 +64,7 @@ impl Vocabulary {
         id
     }
 
-    fn word(&self, id: u32) -> &str {
+    pub(super) fn word(&self, id: u32) -> &str {
         &self.words[id as usize - 1]
     }
 
@@ -72,14 +72,14 @@ impl Vocabulary {
     /// its extensions) orders them as their text joined by spaces. The two differ only where one
     /// phrase's word ends (space or end, which compare low) and the other's continues with a
     /// byte below the space.
-    fn orders_like_text(&self) -> bool {
+    pub(super) fn orders_like_text(&self) -> bool {
         self.words
             .iter()
             .all(|w| w.bytes().skip(1).all(|b| b >= b' '))
     }
 
     /// Each word's position in byte order, indexed by id.
-    fn byte_ranks(&self) -> Vec<u32> {
+    pub(super) fn byte_ranks(&self) -> Vec<u32> {
         let mut order: Vec<u32> = (1..=self.words.len() as u32).collect();
         order.sort_unstable_by(|&a, &b| self.word(a).cmp(self.word(b)));
         let mut rank = vec![0u32; self.words.len() + 1];
@@ -169,18 +169,18 @@ impl ChildMap {
 }
 
 /// Phrases of one side as a prefix tree over word ids; node 0 is the empty phrase.
-struct PhraseTree {
+pub(super) struct PhraseTree {
     /// The one-word phrases, by word id (most lookups start there).
     first: Vec<u32>,
     children: ChildMap,
     parent: Vec<u32>,
     word: Vec<u32>,
     /// Whether the node's phrase was extracted (is in the table).
-    extracted: Vec<bool>,
+    pub(super) extracted: Vec<bool>,
 }
 
 impl PhraseTree {
-    fn new() -> PhraseTree {
+    pub(super) fn new() -> PhraseTree {
         PhraseTree {
             first: Vec::new(),
             children: ChildMap::default(),
@@ -194,7 +194,7 @@ impl PhraseTree {
         (u64::from(node) << 32) | u64::from(word)
     }
 
-    fn child(&mut self, node: u32, word: u32) -> u32 {
+    pub(super) fn child(&mut self, node: u32, word: u32) -> u32 {
         let next = self.parent.len() as u32;
         let child = if node == ROOT {
             let w = word as usize;
@@ -228,12 +228,12 @@ impl PhraseTree {
         self.children.get(Self::key(node, word))
     }
 
-    fn len(&self) -> usize {
+    pub(super) fn len(&self) -> usize {
         self.parent.len()
     }
 
     /// Bytes held per node, for the memory estimate.
-    const NODE_BYTES: usize = 4 + 4 + 1 + 2 * 16;
+    pub(super) const NODE_BYTES: usize = 4 + 4 + 1 + 2 * 16;
 
     /// The phrase of `node`, words joined by single spaces, into `out`.
     fn text(&self, node: u32, vocabulary: &Vocabulary, words: &mut Vec<u32>, out: &mut String) {
@@ -253,7 +253,7 @@ impl PhraseTree {
     }
 
     /// The word ids of `node`'s phrase, first word first.
-    fn ids(&self, node: u32, out: &mut Vec<Option<u32>>) {
+    pub(super) fn ids(&self, node: u32, out: &mut Vec<Option<u32>>) {
         out.clear();
         let mut n = node;
         while n != ROOT {
@@ -265,7 +265,7 @@ impl PhraseTree {
 
     /// Numbers the extracted nodes in byte order of their text: returns each node's rank
     /// (`NO_NODE` for nodes not extracted) and the nodes in rank order.
-    fn ranks(&self, word_rank: &[u32]) -> (Vec<u32>, Vec<u32>) {
+    pub(super) fn ranks(&self, word_rank: &[u32]) -> (Vec<u32>, Vec<u32>) {
         let n = self.len();
         // Children grouped by parent, each group in byte order of its words.
         let mut order: Vec<u32> = (1..n as u32).collect();
@@ -350,29 +350,29 @@ impl PhraseTexts {
 
 /// Sentences of one side as word ids.
 #[derive(Default)]
-struct Sentences {
-    words: Vec<u32>,
-    ends: Vec<usize>,
+pub(super) struct Sentences {
+    pub(super) words: Vec<u32>,
+    pub(super) ends: Vec<usize>,
 }
 
 impl Sentences {
-    fn get(&self, k: usize) -> &[u32] {
+    pub(super) fn get(&self, k: usize) -> &[u32] {
         let start = if k == 0 { 0 } else { self.ends[k - 1] };
         &self.words[start..self.ends[k]]
     }
 }
 
 /// One side of the corpus as read: its words, sentences and phrases.
-struct Side {
-    vocabulary: Vocabulary,
-    sentences: Sentences,
-    tree: PhraseTree,
+pub(super) struct Side {
+    pub(super) vocabulary: Vocabulary,
+    pub(super) sentences: Sentences,
+    pub(super) tree: PhraseTree,
     /// The phrase node of every phrase-pair occurrence, in order.
-    occurrences: Vec<u32>,
+    pub(super) occurrences: Vec<u32>,
 }
 
 impl Side {
-    fn new() -> Side {
+    pub(super) fn new() -> Side {
         Side {
             vocabulary: Vocabulary::default(),
             sentences: Sentences::default(),
@@ -382,7 +382,7 @@ impl Side {
     }
 
     /// Appends the tokens of `text` (starting at the offsets `starts`) as a sentence.
-    fn push_sentence(&mut self, text: &str, starts: &[u32]) {
+    pub(super) fn push_sentence(&mut self, text: &str, starts: &[u32]) {
         for k in 0..starts.len() - 1 {
             let word = &text[starts[k] as usize..starts[k + 1] as usize - 1];
             let id = self.vocabulary.id(word);
@@ -391,24 +391,24 @@ impl Side {
         self.sentences.ends.push(self.sentences.words.len());
     }
 
-    fn bytes(&self) -> usize {
+    pub(super) fn bytes(&self) -> usize {
         self.sentences.words.len() * 4 + self.vocabulary.words.len() * 48
     }
 }
 
 /// One side's spans of a batch of sentences, for [`intern_spans`].
 #[derive(Default)]
-struct SpanBatch {
-    words: Vec<u32>,
+pub(super) struct SpanBatch {
+    pub(super) words: Vec<u32>,
     /// `sentence_ends[k]`: end of sentence `k` in `words`.
-    sentence_ends: Vec<usize>,
+    pub(super) sentence_ends: Vec<usize>,
     /// `(start, end)` token spans; `span_ends[k]`: end of sentence `k`'s spans.
-    spans: Vec<(u16, u16)>,
-    span_ends: Vec<usize>,
+    pub(super) spans: Vec<(u16, u16)>,
+    pub(super) span_ends: Vec<usize>,
 }
 
 impl SpanBatch {
-    fn push(&mut self, words: &[u32], spans: impl Iterator<Item = (u16, u16)>) {
+    pub(super) fn push(&mut self, words: &[u32], spans: impl Iterator<Item = (u16, u16)>) {
         self.words.extend_from_slice(words);
         self.sentence_ends.push(self.words.len());
         self.spans.extend(spans);
@@ -446,7 +446,7 @@ fn intern_spans(
 
 /// The node of `words[start..end]`, through the memo of this sentence's spans
 /// (`memo[start * max + length - 1]`).
-fn span_node(
+pub(super) fn span_node(
     tree: &mut PhraseTree,
     words: &[u32],
     start: usize,
@@ -469,16 +469,16 @@ fn span_node(
 }
 
 /// Everything [`read_and_extract`] gathers.
-struct Extracted {
-    source: Side,
-    target: Side,
+pub(super) struct Extracted {
+    pub(super) source: Side,
+    pub(super) target: Side,
     /// The internal alignment id of every phrase-pair occurrence.
-    occurrence_alignments: Vec<u32>,
+    pub(super) occurrence_alignments: Vec<u32>,
     /// Internal alignments as text, by id.
-    alignments: Vec<Box<str>>,
+    pub(super) alignments: Vec<Box<str>>,
     /// Word-link counts (source word, target word), 0 being NULL.
-    links: FastMap<(u32, u32), u64>,
-    stats: CorpusStats,
+    pub(super) links: FastMap<(u32, u32), u64>,
+    pub(super) stats: CorpusStats,
 }
 
 /// Sentence pairs per batch sent to the span threads.
@@ -617,31 +617,36 @@ fn read_spans(
 }
 
 /// Step 2's result: phrase and alignment numbers in table order.
-struct Ranks {
-    source_rank: Vec<u32>,
-    source_nodes: Vec<u32>,
-    target_rank: Vec<u32>,
-    target_nodes: Vec<u32>,
-    alignment_rank: Vec<u32>,
+pub(super) struct Ranks {
+    pub(super) source_rank: Vec<u32>,
+    pub(super) source_nodes: Vec<u32>,
+    pub(super) target_rank: Vec<u32>,
+    pub(super) target_nodes: Vec<u32>,
+    pub(super) alignment_rank: Vec<u32>,
 }
 
 /// Step 2.
 fn rank(x: &Extracted) -> Ranks {
     let (source_rank, source_nodes) = x.source.tree.ranks(&x.source.vocabulary.byte_ranks());
     let (target_rank, target_nodes) = x.target.tree.ranks(&x.target.vocabulary.byte_ranks());
-    let mut order: Vec<u32> = (0..x.alignments.len() as u32).collect();
-    order.sort_unstable_by(|&a, &b| x.alignments[a as usize].cmp(&x.alignments[b as usize]));
-    let mut alignment_rank = vec![0u32; order.len()];
-    for (r, &a) in order.iter().enumerate() {
-        alignment_rank[a as usize] = r as u32;
-    }
     Ranks {
         source_rank,
         source_nodes,
         target_rank,
         target_nodes,
-        alignment_rank,
+        alignment_rank: alignment_ranks(&x.alignments),
     }
+}
+
+/// Each alignment's position in byte order of its text, by id.
+pub(super) fn alignment_ranks(alignments: &[Box<str>]) -> Vec<u32> {
+    let mut order: Vec<u32> = (0..alignments.len() as u32).collect();
+    order.sort_unstable_by(|&a, &b| alignments[a as usize].cmp(&alignments[b as usize]));
+    let mut alignment_rank = vec![0u32; order.len()];
+    for (r, &a) in order.iter().enumerate() {
+        alignment_rank[a as usize] = r as u32;
+    }
+    alignment_rank
 }
 
 /// One distinct phrase pair.
@@ -661,14 +666,18 @@ struct Range {
 }
 
 /// Step 3's result.
-struct Table {
+pub(super) struct Table {
     ranges: Vec<Range>,
     source_totals: Vec<u64>,
     source_distinct: Vec<u32>,
-    target_totals: Vec<u64>,
-    target_distinct: Vec<u32>,
-    histogram: Vec<u64>,
-    pairs: u64,
+    pub(super) target_totals: Vec<u64>,
+    pub(super) target_distinct: Vec<u32>,
+    pub(super) histogram: Vec<u64>,
+    /// Distinct pairs of this table (rows written).
+    pub(super) pairs: u64,
+    /// Distinct pairs of the whole job, for the discount (more than `pairs` when this table
+    /// is one source range of it).
+    pub(super) scored_pairs: u64,
 }
 
 /// Boundaries splitting sources `0..n` into `parts` ranges of about equal weight.
@@ -691,7 +700,7 @@ fn split_by_weight(weights: &[u64], parts: usize) -> Vec<usize> {
 }
 
 /// Step 3. Consumes the occurrences: `[source node, target node, alignment id]`.
-fn aggregate(occurrences: [Vec<u32>; 3], ranks: &Ranks, threads: usize) -> Table {
+pub(super) fn aggregate(occurrences: [Vec<u32>; 3], ranks: &Ranks, threads: usize) -> Table {
     let sources = ranks.source_nodes.len();
     let targets = ranks.target_nodes.len();
     let mut per_source = vec![0u64; sources];
@@ -739,6 +748,7 @@ fn aggregate(occurrences: [Vec<u32>; 3], ranks: &Ranks, threads: usize) -> Table
         target_distinct: vec![0; targets],
         histogram: vec![0; GOOD_TURING_MAX_COUNT as usize + 2],
         pairs: 0,
+        scored_pairs: 0,
     };
     let top = table.histogram.len() - 1;
     for range in &ranges {
@@ -757,6 +767,7 @@ fn aggregate(occurrences: [Vec<u32>; 3], ranks: &Ranks, threads: usize) -> Table
         table.pairs += range.pairs.len() as u64;
     }
     table.ranges = ranges;
+    table.scored_pairs = table.pairs;
     table
 }
 
@@ -805,7 +816,7 @@ fn sum_range(mut keys: Vec<u128>, first: u32, end: u32, alignment_of_rank: &[u32
 
 /// Step 4: the sentence-level counts ([`Cooccurrence`]: pairs numbered as the ranges
 /// concatenated, sources and targets by rank), sentences split between the threads.
-fn count_sentences(
+pub(super) fn count_sentences(
     x: &Extracted,
     ranks: &Ranks,
     table: &Table,
@@ -864,9 +875,36 @@ fn find_phrases(side: &Side, rank: &[u32], k: usize, max: usize, found: &mut Vec
 /// Rows scored and formatted per block by each thread.
 const ROWS_PER_BLOCK: usize = 1 << 15;
 
+/// What [`write_table`] shares between calls when the table is written in source ranges.
+pub(super) struct Writing<'a> {
+    /// Whether to write the header (the first range does).
+    pub(super) header: bool,
+    /// The word translation table ([`word_table`]).
+    pub(super) words: &'a WordTable,
+    /// The alignments' links by id ([`alignment_links`]).
+    pub(super) links: &'a [Vec<(u16, u16)>],
+    /// Whether to make the text of every target once (fast when all rows are written in one
+    /// call; a source range's rows find their targets' text in the tree instead).
+    pub(super) cache_targets: bool,
+}
+
+/// The word translation table of the corpus's word links.
+pub(super) fn word_table(x: &Extracted) -> WordTable {
+    WordTable::from_ids(
+        x.links.clone(),
+        totals(&x.links, x.source.vocabulary.words.len(), |k| k.0),
+        totals(&x.links, x.target.vocabulary.words.len(), |k| k.1),
+    )
+}
+
+/// The links of every alignment, by id.
+pub(super) fn alignment_links(alignments: &[Box<str>]) -> Result<Vec<Vec<(u16, u16)>>> {
+    alignments.iter().map(|a| parse_alignment(a)).collect()
+}
+
 /// Step 5: the table to `out`.
 #[allow(clippy::too_many_arguments)]
-fn write_table<W: Write>(
+pub(super) fn write_table<W: Write>(
     x: &Extracted,
     ranks: &Ranks,
     table: &Table,
@@ -876,6 +914,7 @@ fn write_table<W: Write>(
     threads: usize,
     mut out: W,
     output_name: &std::path::Path,
+    writing: &Writing,
 ) -> Result<()> {
     let werr = |e| Error::io(output_name, "writing", e);
     let header = scored_header(info, discount, true);
@@ -884,24 +923,19 @@ fn write_table<W: Write>(
         .map_err(werr)?
         .into_inner()
         .len();
-    out.write_all(
-        &TsvWriter::new(Vec::new(), &header)
-            .map_err(werr)?
-            .into_inner(),
-    )
-    .map_err(werr)?;
-    let words = WordTable::from_ids(
-        x.links.clone(),
-        totals(&x.links, x.source.vocabulary.words.len(), |k| k.0),
-        totals(&x.links, x.target.vocabulary.words.len(), |k| k.1),
-    );
-    let scorer = Scorer::new(discount, &table.histogram, table.pairs);
-    let links = x
-        .alignments
-        .iter()
-        .map(|a| parse_alignment(a))
-        .collect::<Result<Vec<_>>>()?;
-    let target_texts = PhraseTexts::new(&x.target, &ranks.target_nodes);
+    if writing.header {
+        out.write_all(
+            &TsvWriter::new(Vec::new(), &header)
+                .map_err(werr)?
+                .into_inner(),
+        )
+        .map_err(werr)?;
+    }
+    let (words, links) = (writing.words, writing.links);
+    let scorer = Scorer::new(discount, &table.histogram, table.scored_pairs);
+    let target_texts = writing
+        .cache_targets
+        .then(|| PhraseTexts::new(&x.target, &ranks.target_nodes));
     // Blocks: (range, first source, last source, first pair index overall).
     let mut blocks = Vec::new();
     let mut pair_base = 0usize;
@@ -923,10 +957,10 @@ fn write_table<W: Write>(
         ranks,
         table,
         counts,
-        words: &words,
+        words,
         scorer: &scorer,
-        links: &links,
-        target_texts: &target_texts,
+        links,
+        target_texts: target_texts.as_ref(),
         header: &header,
         header_len,
     };
@@ -998,7 +1032,7 @@ struct RowContext<'a> {
     words: &'a WordTable,
     scorer: &'a Scorer,
     links: &'a [Vec<(u16, u16)>],
-    target_texts: &'a PhraseTexts,
+    target_texts: Option<&'a PhraseTexts>,
     header: &'a crate::table::Header,
     header_len: usize,
 }
@@ -1018,6 +1052,7 @@ impl RowContext<'_> {
             ..Default::default()
         };
         let mut f = Vec::new();
+        let mut e_ids = Vec::new();
         let mut scratch = Vec::new();
         for k in first..end {
             let s = range.first_source as usize + k;
@@ -1034,9 +1069,21 @@ impl RowContext<'_> {
             for p in range.offsets[k]..range.offsets[k + 1] {
                 let pair = range.pairs[p];
                 let t = pair.target as usize;
-                row.target.clear();
-                row.target.push_str(self.target_texts.text(t));
-                let e = self.target_texts.ids(t);
+                let e = match self.target_texts {
+                    Some(texts) => {
+                        row.target.clear();
+                        row.target.push_str(texts.text(t));
+                        texts.ids(t)
+                    }
+                    None => {
+                        let node = self.ranks.target_nodes[t];
+                        let side = &self.x.target;
+                        side.tree
+                            .text(node, &side.vocabulary, &mut scratch, &mut row.target);
+                        side.tree.ids(node, &mut e_ids);
+                        &e_ids
+                    }
+                };
                 let (ct, nt) = (self.table.target_totals[t], self.table.target_distinct[t]);
                 row.alignment
                     .clone_from(&self.links[pair.alignment as usize]);
@@ -1069,9 +1116,19 @@ pub(crate) struct ResidentSummary {
     pub(crate) sources: u64,
     pub(crate) targets: u64,
     pub(crate) step_seconds: [f64; 4],
+    /// Corpus passes of the sentence-level counting (one per source range processed).
+    pub(crate) passes: u64,
 }
 
-/// Runs the whole extraction in memory and writes the table to `out`; `None` (nothing
+/// Why [`extract_resident`] wrote nothing.
+pub(crate) enum Declined {
+    /// The corpus outgrew `--memory`.
+    OverBudget,
+    /// Some word holds a byte below the space after its first byte.
+    WordOrder,
+}
+
+/// Runs the whole extraction in memory and writes the table to `out`; declined (nothing
 /// written) when the corpus does not fit `options.memory` or its words do not order like
 /// their text.
 pub(crate) fn extract_resident<W: Write>(
@@ -1080,7 +1137,7 @@ pub(crate) fn extract_resident<W: Write>(
     discount: Discount,
     out: W,
     output_name: &std::path::Path,
-) -> Result<Option<ResidentSummary>> {
+) -> Result<std::result::Result<ResidentSummary, Declined>> {
     let threads = options.threads.max(1);
     let mut lap = std::time::Instant::now();
     let mut steps = [0.0; 4];
@@ -1089,10 +1146,10 @@ pub(crate) fn extract_resident<W: Write>(
         lap = std::time::Instant::now();
     };
     let Some(mut x) = read_and_extract(paths, options)? else {
-        return Ok(None);
+        return Ok(Err(Declined::OverBudget));
     };
     if !x.source.vocabulary.orders_like_text() || !x.target.vocabulary.orders_like_text() {
-        return Ok(None);
+        return Ok(Err(Declined::WordOrder));
     }
     next_lap(0);
     let ranks = rank(&x);
@@ -1107,6 +1164,8 @@ pub(crate) fn extract_resident<W: Write>(
     let max = options.limits.max_length;
     let counts = count_sentences(&x, &ranks, &table, max, threads);
     next_lap(2);
+    let words = word_table(&x);
+    let links = alignment_links(&x.alignments)?;
     let info = RunInfo {
         corpus: x.stats,
         max_length: max,
@@ -1125,13 +1184,20 @@ pub(crate) fn extract_resident<W: Write>(
         threads,
         out,
         output_name,
+        &Writing {
+            header: true,
+            words: &words,
+            links: &links,
+            cache_targets: true,
+        },
     )?;
     next_lap(3);
-    Ok(Some(ResidentSummary {
+    Ok(Ok(ResidentSummary {
         info,
         pairs: table.pairs,
         sources: ranks.source_nodes.len() as u64,
         targets: ranks.target_nodes.len() as u64,
         step_seconds: steps,
+        passes: 1,
     }))
 }

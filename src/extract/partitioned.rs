@@ -1,0 +1,782 @@
+//! Range-partitioned extraction: the in-memory machinery of [`super::resident`], one source
+//! range at a time, for corpora whose phrase pairs outgrow the memory budget.
+//!
+//! 1. [`sample`]: the first sentence pairs give split words (quantiles of the source and of
+//!    the target tokens, in byte order) and an estimate of the occurrences, which decides
+//!    between this path and the fully resident one;
+//! 2. pass 1 ([`read_into_buckets`]) reads the corpus once: words become ids, sentences are
+//!    kept as ids, word links are counted, and every phrase-pair occurrence is appended as
+//!    integers (word ids of both phrases, alignment id) to the *source bucket* of its first
+//!    source word, and its target's word ids to the *target bucket* of its first target
+//!    word. Buckets follow the byte order of the first word, so buckets in order are phrases
+//!    in order;
+//! 3. target totals ([`target_totals`]): consecutive target buckets, as many as fit the
+//!    budget, become a prefix tree whose nodes count their occurrences; the totals are
+//!    written in byte order of the targets to one file;
+//! 4. consecutive source buckets are grouped so that each group fits the budget left beside
+//!    what every group shares (sentences, word links); each group is then a small resident
+//!    job: its sources and its targets become prefix trees, the occurrences are summed by
+//!    source range in parallel, `count_target` is read from the totals file in one forward
+//!    scan (the group's targets sorted the same way), the sentence-level counts are found in
+//!    parallel over the sentences kept as ids (a target's `df_target` does not depend on
+//!    which other targets are tracked), and the rows are scored and written in order.
+//!
+//! Every count is an integer summed by key and every score computed from the summed counts,
+//! so the output is byte-identical to the resident and map/reduce paths at any budget and
+//! thread count. The discounts need statistics over the whole table (count histogram,
+//! distinct sources per target), which this path does not gather: with a discount the
+//! caller takes the map/reduce path.
+
+use std::cmp::Ordering as Order;
+use std::io::{BufReader, BufWriter, Read, Write};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::Ordering;
+use std::sync::mpsc;
+
+use rustc_hash::FxHashMap;
+
+use super::corpus::{CorpusPaths, CorpusReader, SentencePair};
+use super::phrases::{write_inside, PhraseFinder, SpanPair};
+use super::report::Progress;
+use super::resident::{
+    aggregate, alignment_links, alignment_ranks, count_sentences, word_table, write_table,
+    Extracted, PhraseTree, Ranks, ResidentSummary, Side, Vocabulary, Writing, ROOT,
+};
+use super::runs::RunInfo;
+use super::score::{Discount, FastMap};
+use super::shard::ShardOptions;
+use crate::error::{Error, Result};
+use crate::files::TempDir;
+
+/// Sentence pairs read by [`sample`].
+const SAMPLE_PAIRS: usize = 5_000;
+/// Bucket files per side in pass 1 (groups of consecutive buckets are processed together).
+const BUCKETS: usize = 64;
+/// Memory per phrase-pair occurrence while a source group is processed: the occurrence as
+/// read (12 bytes), as a sort key (16), as summed pairs with their sentence counters, and its
+/// share of the group's two prefix trees (most phrases of a large corpus occur once).
+const GROUP_BYTES_PER_OCCURRENCE: u64 = 320;
+/// Memory per target occurrence while target totals are counted (a tree node at worst).
+const TARGET_BYTES_PER_OCCURRENCE: u64 = 80;
+/// What the fully resident path holds per occurrence, its trees included.
+const RESIDENT_BYTES_PER_OCCURRENCE: u64 = 120;
+/// A corpus whose source file times this fits the budget takes the resident path without a
+/// sample (about 1 occurrence per source byte in natural and synthetic text, measured).
+pub(crate) const BYTES_PER_CORPUS_BYTE: u64 = 256;
+
+/// What [`sample`] learnt from the first sentence pairs.
+pub(crate) struct Sample {
+    /// Split keys of each side (phrases of one or two words) in strictly increasing order: a
+    /// phrase with `k` split keys `<=` it goes to bucket `k`. Two words, so that the phrases
+    /// of one frequent first word can spread over several buckets.
+    split_keys: [Vec<Key>; 2],
+    /// Phrase-pair occurrences expected in the whole corpus.
+    estimated_occurrences: u64,
+}
+
+impl Sample {
+    /// Whether the fully resident path is expected to fit `memory`.
+    pub(crate) fn resident_fits(&self, memory: u64) -> bool {
+        self.estimated_occurrences
+            .saturating_mul(RESIDENT_BYTES_PER_OCCURRENCE)
+            <= memory
+    }
+}
+
+/// A split key: the first one or two words of a phrase.
+type Key = Vec<Box<str>>;
+
+/// Compares phrases word by word, a phrase before its extensions: byte order of their text
+/// when no word holds a byte below the space after its first byte (checked after pass 1).
+fn compare_words<'a, 'b>(
+    a: impl IntoIterator<Item = &'a str>,
+    b: impl IntoIterator<Item = &'b str>,
+) -> Order {
+    let (mut a, mut b) = (a.into_iter(), b.into_iter());
+    loop {
+        match (a.next(), b.next()) {
+            (None, None) => return Order::Equal,
+            (None, Some(_)) => return Order::Less,
+            (Some(_), None) => return Order::Greater,
+            (Some(x), Some(y)) => match x.cmp(y) {
+                Order::Equal => {}
+                other => return other,
+            },
+        }
+    }
+}
+
+/// Where the phrases starting with one word go.
+#[derive(Clone, Copy)]
+struct WordBucket {
+    /// The bucket of the one-word phrase.
+    bucket: u8,
+    /// Whether some split key starts with this word and goes on (then longer phrases are
+    /// placed by [`bucket_of_phrase`]).
+    split: bool,
+}
+
+fn word_bucket(keys: &[Key], word: &str) -> WordBucket {
+    let bucket = keys.partition_point(|k| compare_words(k.iter().map(|w| &**w), [word]).is_le());
+    let split = keys.iter().any(|k| k.len() > 1 && &*k[0] == word);
+    WordBucket {
+        bucket: bucket as u8,
+        split,
+    }
+}
+
+fn bucket_of_phrase<'a>(keys: &[Key], phrase: impl Iterator<Item = &'a str> + Clone) -> u8 {
+    keys.partition_point(|k| compare_words(k.iter().map(|w| &**w), phrase.clone()).is_le()) as u8
+}
+
+fn quantiles(mut keys: Vec<Key>) -> Vec<Key> {
+    keys.sort_unstable_by(|a, b| compare_words(a.iter().map(|w| &**w), b.iter().map(|w| &**w)));
+    let mut split: Vec<Key> = Vec::new();
+    for k in 1..BUCKETS {
+        let Some(key) = keys.get(k * keys.len() / BUCKETS) else {
+            break;
+        };
+        let after =
+            |last: &Key| compare_words(last.iter().map(|w| &**w), key.iter().map(|w| &**w)).is_lt();
+        if split.last().is_none_or(after) {
+            split.push(key.clone());
+        }
+    }
+    split
+}
+
+/// The one- or two-word prefixes starting at every token of a sentence.
+fn prefixes(pair: &SentencePair, source: bool, keys: &mut Vec<Key>) {
+    let (n, word) = if source {
+        (
+            pair.source_len(),
+            SentencePair::source_phrase as fn(&SentencePair, usize, usize) -> &str,
+        )
+    } else {
+        (
+            pair.target_len(),
+            SentencePair::target_phrase as fn(&SentencePair, usize, usize) -> &str,
+        )
+    };
+    for k in 0..n {
+        keys.push(
+            (k..n.min(k + 2))
+                .map(|j| word(pair, j, j + 1).into())
+                .collect(),
+        );
+    }
+}
+
+/// Reads the first sentence pairs of the corpus: split words and the expected occurrences.
+pub(crate) fn sample(paths: &CorpusPaths, options: &ShardOptions) -> Result<Sample> {
+    let mut reader = CorpusReader::open(paths, options.corpus)?;
+    let total = reader.total_bytes();
+    let mut pair = SentencePair::default();
+    let mut finder = PhraseFinder::default();
+    let (mut source_words, mut target_words) = (Vec::new(), Vec::new());
+    let (mut occurrences, mut bytes, mut pairs) = (0u64, 0u64, 0usize);
+    let mut complete = true;
+    while reader.next_pair(&mut pair)? {
+        pairs += 1;
+        bytes += pair.source.len() as u64 + 1;
+        let (ns, nt) = (pair.source_len(), pair.target_len());
+        prefixes(&pair, true, &mut source_words);
+        prefixes(&pair, false, &mut target_words);
+        finder.find(ns, nt, &pair.links, options.limits, |_| occurrences += 1);
+        if pairs == SAMPLE_PAIRS {
+            complete = false;
+            break;
+        }
+    }
+    let estimated_occurrences = match total {
+        Some(total) if !complete && bytes > 0 => {
+            (occurrences as f64 * total as f64 / bytes as f64) as u64
+        }
+        _ => occurrences,
+    };
+    Ok(Sample {
+        split_keys: [quantiles(source_words), quantiles(target_words)],
+        estimated_occurrences,
+    })
+}
+
+/// One batch of sentence pairs for the writing thread of pass 1.
+#[derive(Default)]
+struct PartBatch {
+    /// Words of each sentence: source then target.
+    words: Vec<u32>,
+    /// Per sentence: end of its source words, end of its target words.
+    ends: Vec<(usize, usize)>,
+    /// Per sentence: end of its occurrences.
+    occurrence_ends: Vec<usize>,
+    /// Per occurrence: source bucket, source span, target bucket, target span, alignment.
+    occurrences: Vec<([u8; 2], [u16; 4], u32)>,
+}
+
+/// Sentence pairs per batch.
+const BATCH: usize = 1024;
+
+/// The bucket files of one side.
+struct Buckets {
+    paths: Vec<PathBuf>,
+    writers: Vec<BufWriter<std::fs::File>>,
+    /// Occurrences in each bucket.
+    counts: Vec<u64>,
+}
+
+impl Buckets {
+    fn create(dir: &Path, side: &str, n: usize) -> Result<Buckets> {
+        let mut b = Buckets {
+            paths: Vec::new(),
+            writers: Vec::new(),
+            counts: vec![0; n],
+        };
+        for k in 0..n {
+            let path = dir.join(format!("{side}-{k:03}.occ"));
+            let file = std::fs::File::create(&path).map_err(|e| Error::io(&path, "creating", e))?;
+            b.writers.push(BufWriter::with_capacity(128 << 10, file));
+            b.paths.push(path);
+        }
+        Ok(b)
+    }
+
+    /// Appends one record of little-endian integers.
+    fn push(&mut self, bucket: usize, record: &[u8]) -> Result<()> {
+        self.counts[bucket] += 1;
+        self.writers[bucket]
+            .write_all(record)
+            .map_err(|e| Error::io(&self.paths[bucket], "writing", e))
+    }
+
+    fn finish(&mut self) -> Result<()> {
+        for (w, path) in self.writers.iter_mut().zip(&self.paths) {
+            w.flush().map_err(|e| Error::io(path, "writing", e))?;
+        }
+        self.writers.clear();
+        Ok(())
+    }
+}
+
+fn put(record: &mut Vec<u8>, v: u32) {
+    record.extend_from_slice(&v.to_le_bytes());
+}
+
+/// The writing thread of pass 1: each occurrence to its source bucket as
+/// `[source length, target length, source ids, target ids, alignment]` and its target to its
+/// target bucket as `[target length, target ids]`.
+fn write_buckets(batches: mpsc::Receiver<PartBatch>, buckets: &mut [Buckets; 2]) -> Result<()> {
+    let mut record = Vec::with_capacity(64);
+    for batch in batches {
+        let (mut word_start, mut occurrence_start) = (0, 0);
+        for (&(source_end, target_end), &occurrence_end) in
+            batch.ends.iter().zip(&batch.occurrence_ends)
+        {
+            let f = &batch.words[word_start..source_end];
+            let e = &batch.words[source_end..target_end];
+            for &(bucket, [s0, s1, t0, t1], alignment) in
+                &batch.occurrences[occurrence_start..occurrence_end]
+            {
+                let source = &f[usize::from(s0)..usize::from(s1)];
+                let target = &e[usize::from(t0)..usize::from(t1)];
+                record.clear();
+                put(&mut record, source.len() as u32);
+                put(&mut record, target.len() as u32);
+                source
+                    .iter()
+                    .chain(target)
+                    .for_each(|&w| put(&mut record, w));
+                put(&mut record, alignment);
+                buckets[0].push(usize::from(bucket[0]), &record)?;
+                record.clear();
+                put(&mut record, target.len() as u32);
+                target.iter().for_each(|&w| put(&mut record, w));
+                buckets[1].push(usize::from(bucket[1]), &record)?;
+            }
+            (word_start, occurrence_start) = (target_end, occurrence_end);
+        }
+    }
+    buckets[0].finish()?;
+    buckets[1].finish()
+}
+
+/// Pass 1's result.
+struct Pass1 {
+    /// Sentences, vocabularies, alignments, word links (no trees, no occurrences).
+    x: Extracted,
+    pair_occurrences: u64,
+    /// Bytes held by `x` for the rest of the job.
+    shared_bytes: u64,
+}
+
+/// Pass 1: reads the corpus into the buckets.
+fn read_into_buckets(
+    paths: &CorpusPaths,
+    options: &ShardOptions,
+    sample: &Sample,
+    buckets: &mut [Buckets; 2],
+) -> Result<Pass1> {
+    let mut reader = CorpusReader::open(paths, options.corpus)?;
+    let progress = Progress::new("extract", reader.total_bytes(), options.progress);
+    let counter = reader.progress_counter();
+    let mut x = Extracted {
+        source: Side::new(),
+        target: Side::new(),
+        occurrence_alignments: Vec::new(),
+        alignments: Vec::new(),
+        links: FastMap::default(),
+        stats: Default::default(),
+    };
+    let (tx, rx) = mpsc::sync_channel::<PartBatch>(4);
+    let mut pair_occurrences = 0u64;
+    let (read, written) = std::thread::scope(|scope| {
+        let writer = scope.spawn(|| write_buckets(rx, buckets));
+        let read = (|| -> Result<()> {
+            let mut alignment_ids: FxHashMap<Box<str>, u32> = FxHashMap::default();
+            let mut bucket_of_word: [Vec<WordBucket>; 2] = [Vec::new(), Vec::new()];
+            let mut pair = SentencePair::default();
+            let mut finder = PhraseFinder::default();
+            let mut spans: Vec<SpanPair> = Vec::new();
+            let mut text = String::new();
+            let (mut source_aligned, mut target_aligned) = (Vec::new(), Vec::new());
+            let mut batch = PartBatch::default();
+            let mut sentences = 0u64;
+            while reader.next_pair(&mut pair)? {
+                let (ns, nt) = (pair.source_len(), pair.target_len());
+                x.source.push_sentence(&pair.source, &pair.source_starts);
+                x.target.push_sentence(&pair.target, &pair.target_starts);
+                for (k, side) in [&x.source, &x.target].into_iter().enumerate() {
+                    let words = &side.vocabulary.words;
+                    let known = &mut bucket_of_word[k];
+                    while known.len() < words.len() {
+                        known.push(word_bucket(&sample.split_keys[k], &words[known.len()]));
+                    }
+                }
+                sentences += 1;
+                let f = x.source.sentences.get(x.source.sentences.ends.len() - 1);
+                let e = x.target.sentences.get(x.target.sentences.ends.len() - 1);
+                source_aligned.clear();
+                source_aligned.resize(ns, false);
+                target_aligned.clear();
+                target_aligned.resize(nt, false);
+                for &(i, j) in &pair.links {
+                    let (i, j) = (usize::from(i), usize::from(j));
+                    source_aligned[i] = true;
+                    target_aligned[j] = true;
+                    *x.links.entry((f[i], e[j])).or_insert(0) += 1;
+                }
+                for i in (0..ns).filter(|&i| !source_aligned[i]) {
+                    *x.links.entry((f[i], 0)).or_insert(0) += 1;
+                }
+                for j in (0..nt).filter(|&j| !target_aligned[j]) {
+                    *x.links.entry((0, e[j])).or_insert(0) += 1;
+                }
+                spans.clear();
+                finder.find(ns, nt, &pair.links, options.limits, |p| spans.push(p));
+                pair_occurrences += spans.len() as u64;
+                batch.words.extend_from_slice(f);
+                let source_end = batch.words.len();
+                batch.words.extend_from_slice(e);
+                batch.ends.push((source_end, batch.words.len()));
+                for &p in &spans {
+                    text.clear();
+                    write_inside(&pair.links, p, &mut text);
+                    let a = match alignment_ids.get(text.as_str()) {
+                        Some(&a) => a,
+                        None => {
+                            let a = x.alignments.len() as u32;
+                            x.alignments.push(text.as_str().into());
+                            alignment_ids.insert(text.as_str().into(), a);
+                            a
+                        }
+                    };
+                    let side = |k: usize, ids: &[u32], vocabulary: &Vocabulary| {
+                        let first = bucket_of_word[k][ids[0] as usize - 1];
+                        if first.split && ids.len() > 1 {
+                            let words = ids.iter().map(|&w| vocabulary.word(w));
+                            bucket_of_phrase(&sample.split_keys[k], words)
+                        } else {
+                            first.bucket
+                        }
+                    };
+                    let bucket = [
+                        side(0, &f[p.source_start..p.source_end], &x.source.vocabulary),
+                        side(1, &e[p.target_start..p.target_end], &x.target.vocabulary),
+                    ];
+                    let span = [p.source_start, p.source_end, p.target_start, p.target_end]
+                        .map(|v| v as u16);
+                    batch.occurrences.push((bucket, span, a));
+                }
+                batch.occurrence_ends.push(batch.occurrences.len());
+                if batch.ends.len() == BATCH {
+                    if tx.send(std::mem::take(&mut batch)).is_err() {
+                        // The writing thread stopped: its error is reported.
+                        return Ok(());
+                    }
+                    progress.update(counter.load(Ordering::Relaxed), sentences);
+                }
+            }
+            let _ = tx.send(batch);
+            Ok(())
+        })();
+        drop(tx);
+        let written = writer.join().map_err(|_| Error::WorkerPanicked {
+            worker: "bucket writer",
+        })?;
+        Ok::<_, Error>((read, written))
+    })?;
+    progress.finish();
+    read?;
+    written?;
+    x.stats = reader.stats();
+    let alignment_bytes: usize = x.alignments.iter().map(|a| 2 * a.len() + 48).sum();
+    let shared_bytes =
+        (x.source.bytes() + x.target.bytes() + x.links.len() * 24 * 2 + alignment_bytes) as u64;
+    Ok(Pass1 {
+        x,
+        pair_occurrences,
+        shared_bytes,
+    })
+}
+
+/// Groups consecutive buckets so that each group's occurrences fit `available` bytes.
+fn groups(counts: &[u64], per_occurrence: u64, available: u64) -> Vec<std::ops::Range<usize>> {
+    let mut groups = Vec::new();
+    let (mut start, mut held) = (0, 0u64);
+    for (k, &n) in counts.iter().enumerate() {
+        let bytes = n * per_occurrence;
+        if k > start && held + bytes > available {
+            groups.push(start..k);
+            (start, held) = (k, 0);
+        }
+        held += bytes;
+    }
+    if start < counts.len() {
+        groups.push(start..counts.len());
+    }
+    groups
+}
+
+fn damaged(path: &Path, reason: &str) -> Error {
+    Error::DamagedTemporary {
+        what: "occurrence bucket",
+        reason: format!("{}: {reason}", path.display()),
+    }
+}
+
+/// The little-endian integers of a bucket file.
+fn read_values(path: &Path) -> Result<Vec<u32>> {
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
+    if bytes.len() % 4 != 0 {
+        return Err(damaged(path, "length is not a whole number of integers"));
+    }
+    Ok(bytes
+        .chunks_exact(4)
+        .map(|c| u32::from_le_bytes([c[0], c[1], c[2], c[3]]))
+        .collect())
+}
+
+/// The node of the phrase `words` in `tree`, added with its prefixes if new.
+fn intern(tree: &mut PhraseTree, words: &[u32]) -> u32 {
+    let node = words.iter().fold(ROOT, |node, &w| tree.child(node, w));
+    tree.extracted[node as usize] = true;
+    node
+}
+
+/// Checks a phrase length read back from a bucket.
+fn length(path: &Path, len: u32, max: usize, rest: usize) -> Result<usize> {
+    let len = len as usize;
+    if len == 0 || len > max || len > rest {
+        return Err(damaged(path, "a phrase length is out of range"));
+    }
+    Ok(len)
+}
+
+/// Compares two phrases (word ids) in byte order of their text, through each word's byte rank.
+fn compare(a: &[u32], b: &[u32], word_rank: &[u32]) -> Order {
+    for (&x, &y) in a.iter().zip(b) {
+        match word_rank[x as usize].cmp(&word_rank[y as usize]) {
+            Order::Equal => {}
+            other => return other,
+        }
+    }
+    a.len().cmp(&b.len())
+}
+
+/// Step 3: the occurrences of every target, in byte order of the targets, into `out` as
+/// `[length, ids, count low, count high]` records. Returns the number of targets.
+fn target_totals(
+    buckets: &Buckets,
+    groups: &[std::ops::Range<usize>],
+    max: usize,
+    word_rank: &[u32],
+    out: &Path,
+) -> Result<u64> {
+    let werr = |e| Error::io(out, "writing", e);
+    let file = std::fs::File::create(out).map_err(|e| Error::io(out, "creating", e))?;
+    let mut w = BufWriter::with_capacity(1 << 20, file);
+    let mut targets = 0u64;
+    let mut ids = Vec::new();
+    for group in groups {
+        let mut tree = PhraseTree::new();
+        let mut counts: Vec<u64> = Vec::new();
+        for path in &buckets.paths[group.clone()] {
+            let values = read_values(path)?;
+            let mut k = 0;
+            while k < values.len() {
+                let len = length(path, values[k], max, values.len() - k - 1)?;
+                let node = intern(&mut tree, &values[k + 1..k + 1 + len]) as usize;
+                if counts.len() <= node {
+                    counts.resize(tree.len().max(node + 1), 0);
+                }
+                counts[node] += 1;
+                k += 1 + len;
+            }
+        }
+        let (_, by_rank) = tree.ranks(word_rank);
+        for &node in &by_rank {
+            tree.ids(node, &mut ids);
+            w.write_all(&(ids.len() as u32).to_le_bytes())
+                .map_err(werr)?;
+            for id in &ids {
+                w.write_all(&id.expect("a word").to_le_bytes())
+                    .map_err(werr)?;
+            }
+            w.write_all(&counts[node as usize].to_le_bytes())
+                .map_err(werr)?;
+        }
+        targets += by_rank.len() as u64;
+    }
+    w.flush().map_err(werr)?;
+    Ok(targets)
+}
+
+/// Reads [`target_totals`]' file forward.
+struct TotalsReader {
+    path: PathBuf,
+    input: BufReader<std::fs::File>,
+    ids: Vec<u32>,
+    count: u64,
+}
+
+impl TotalsReader {
+    fn open(path: &Path) -> Result<TotalsReader> {
+        let file = std::fs::File::open(path).map_err(|e| Error::io(path, "opening", e))?;
+        Ok(TotalsReader {
+            path: path.to_path_buf(),
+            input: BufReader::with_capacity(1 << 20, file),
+            ids: Vec::new(),
+            count: 0,
+        })
+    }
+
+    fn u32(&mut self) -> Result<u32> {
+        let mut b = [0u8; 4];
+        self.input
+            .read_exact(&mut b)
+            .map_err(|_| damaged(&self.path, "ends before a target the table holds"))?;
+        Ok(u32::from_le_bytes(b))
+    }
+
+    fn next(&mut self, max: usize) -> Result<()> {
+        let len = self.u32()? as usize;
+        if len == 0 || len > max {
+            return Err(damaged(&self.path, "a phrase length is out of range"));
+        }
+        self.ids.clear();
+        for _ in 0..len {
+            let w = self.u32()?;
+            self.ids.push(w);
+        }
+        self.count = u64::from(self.u32()?) | (u64::from(self.u32()?) << 32);
+        Ok(())
+    }
+
+    /// The total of `target`, reading forward (targets must be asked in byte order).
+    fn total(&mut self, target: &[u32], max: usize, word_rank: &[u32]) -> Result<u64> {
+        loop {
+            match compare(&self.ids, target, word_rank) {
+                Order::Equal => return Ok(self.count),
+                Order::Greater => {
+                    return Err(damaged(&self.path, "a target of the table is missing"))
+                }
+                _ => self.next(max)?,
+            }
+        }
+    }
+}
+
+/// Reads a source group's buckets: its sources' and targets' prefix trees and its
+/// occurrences `[source node, target node, alignment id]`.
+fn load_group(
+    paths: &[PathBuf],
+    expected: u64,
+    max: usize,
+    alignments: usize,
+) -> Result<(PhraseTree, PhraseTree, [Vec<u32>; 3])> {
+    let (mut sources, mut targets) = (PhraseTree::new(), PhraseTree::new());
+    let n = expected as usize;
+    let mut occ = [
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+    ];
+    for path in paths {
+        let values = read_values(path)?;
+        let mut k = 0;
+        while k < values.len() {
+            if values.len() - k < 2 {
+                return Err(damaged(path, "cut inside a record"));
+            }
+            let ls = length(path, values[k], max, values.len() - k)?;
+            let lt = length(path, values[k + 1], max, values.len() - k)?;
+            if values.len() - k < 3 + ls + lt {
+                return Err(damaged(path, "cut inside a record"));
+            }
+            let s = intern(&mut sources, &values[k + 2..k + 2 + ls]);
+            let t = intern(&mut targets, &values[k + 2 + ls..k + 2 + ls + lt]);
+            let a = values[k + 2 + ls + lt];
+            if a as usize >= alignments {
+                return Err(damaged(path, "an alignment number is out of range"));
+            }
+            occ[0].push(s);
+            occ[1].push(t);
+            occ[2].push(a);
+            k += 3 + ls + lt;
+        }
+    }
+    if occ[0].len() as u64 != expected {
+        return Err(Error::DamagedTemporary {
+            what: "occurrence bucket",
+            reason: format!("{} occurrences read back, {expected} written", occ[0].len()),
+        });
+    }
+    Ok((sources, targets, occ))
+}
+
+/// Runs the extraction range by range and writes the table to `out`; `None` (nothing
+/// written) when a discount is asked for or some word holds a byte below the space after its
+/// first byte (word order and text order differ): the caller takes the map/reduce path.
+pub(crate) fn extract_partitioned<W: Write>(
+    paths: &CorpusPaths,
+    options: &ShardOptions,
+    discount: Discount,
+    sample: &Sample,
+    mut out: W,
+    output_name: &Path,
+) -> Result<Option<ResidentSummary>> {
+    if discount != Discount::None {
+        return Ok(None);
+    }
+    let threads = options.threads.max(1);
+    let max = options.limits.max_length;
+    let mut lap = std::time::Instant::now();
+    let mut steps = [0.0; 4];
+    let mut next_lap = |k: usize| {
+        steps[k] += lap.elapsed().as_secs_f64();
+        lap = std::time::Instant::now();
+    };
+    let dir = TempDir::new(options.temp_dir.as_deref(), "baler-extract-parts-")?;
+    let mut buckets = [
+        Buckets::create(dir.path(), "source", sample.split_keys[0].len() + 1)?,
+        Buckets::create(dir.path(), "target", sample.split_keys[1].len() + 1)?,
+    ];
+    let Pass1 {
+        mut x,
+        pair_occurrences,
+        shared_bytes,
+    } = read_into_buckets(paths, options, sample, &mut buckets)?;
+    if !x.source.vocabulary.orders_like_text() || !x.target.vocabulary.orders_like_text() {
+        return Ok(None);
+    }
+    let source_word_ranks = x.source.vocabulary.byte_ranks();
+    let target_word_ranks = x.target.vocabulary.byte_ranks();
+    let available = options
+        .memory
+        .saturating_sub(shared_bytes)
+        .max(options.memory / 4);
+    next_lap(0);
+    let totals_path = dir.path().join("target-totals");
+    let target_groups = groups(&buckets[1].counts, TARGET_BYTES_PER_OCCURRENCE, available);
+    let targets = target_totals(
+        &buckets[1],
+        &target_groups,
+        max,
+        &target_word_ranks,
+        &totals_path,
+    )?;
+    let source_groups = groups(&buckets[0].counts, GROUP_BYTES_PER_OCCURRENCE, available);
+    let words = word_table(&x);
+    let links = alignment_links(&x.alignments)?;
+    let alignment_rank = alignment_ranks(&x.alignments);
+    let info = RunInfo {
+        corpus: x.stats,
+        max_length: max,
+        max_sentence_length: options.corpus.max_sentence_length,
+        unaligned_edges: options.limits.unaligned_edges,
+        pair_occurrences,
+        shards: Vec::new(),
+    };
+    let (mut pairs, mut sources) = (0u64, 0u64);
+    let mut ids = Vec::new();
+    next_lap(1);
+    for (k, group) in source_groups.iter().enumerate() {
+        let (source_tree, target_tree, occurrences) = load_group(
+            &buckets[0].paths[group.clone()],
+            buckets[0].counts[group.clone()].iter().sum(),
+            max,
+            x.alignments.len(),
+        )?;
+        let (source_rank, source_nodes) = source_tree.ranks(&source_word_ranks);
+        let (target_rank, target_nodes) = target_tree.ranks(&target_word_ranks);
+        x.source.tree = source_tree;
+        x.target.tree = target_tree;
+        let ranks = Ranks {
+            source_rank,
+            source_nodes,
+            target_rank,
+            target_nodes,
+            alignment_rank: alignment_rank.clone(),
+        };
+        let mut table = aggregate(occurrences, &ranks, threads);
+        // `count_target` sums over every source range: from the totals, in target order.
+        let mut totals = TotalsReader::open(&totals_path)?;
+        let mut target = Vec::new();
+        for (t, &node) in ranks.target_nodes.iter().enumerate() {
+            x.target.tree.ids(node, &mut ids);
+            target.clear();
+            target.extend(ids.iter().map(|w| w.expect("a word")));
+            table.target_totals[t] = totals.total(&target, max, &target_word_ranks)?;
+        }
+        next_lap(1);
+        let counts = count_sentences(&x, &ranks, &table, max, threads);
+        next_lap(2);
+        write_table(
+            &x,
+            &ranks,
+            &table,
+            &counts,
+            &info,
+            discount,
+            threads,
+            &mut out,
+            output_name,
+            &Writing {
+                header: k == 0,
+                words: &words,
+                links: &links,
+                cache_targets: true,
+            },
+        )?;
+        next_lap(3);
+        pairs += table.pairs;
+        sources += ranks.source_nodes.len() as u64;
+    }
+    Ok(Some(ResidentSummary {
+        info,
+        pairs,
+        sources,
+        targets,
+        step_seconds: steps,
+        passes: source_groups.len() as u64,
+    }))
+}
