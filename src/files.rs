@@ -463,16 +463,36 @@ pub fn remove_on_interrupt(message: &'static str) -> Result<()> {
         // Holding the lock until exit keeps other threads from registering new files.
         let pending = PENDING.lock().unwrap_or_else(|e| e.into_inner());
         for (_, path, is_dir) in pending.iter() {
-            let _ = if *is_dir {
-                std::fs::remove_dir_all(path)
+            if *is_dir {
+                remove_busy_dir(path);
             } else {
-                std::fs::remove_file(path)
-            };
+                let _ = std::fs::remove_file(path);
+            }
         }
         eprintln!("{message}");
         std::process::exit(130);
     })
     .map_err(|e| Error::io("-", "installing the interrupt handler", io::Error::other(e)))
+}
+
+/// Removes a temporary directory that worker threads may still be filling: it is first
+/// renamed, so that files they create by its old path fail instead of landing in it while it
+/// is being emptied, then removed (retried a few times, for files created in between).
+fn remove_busy_dir(path: &Path) {
+    let mut doomed = path.as_os_str().to_owned();
+    doomed.push(".removing");
+    let doomed = PathBuf::from(doomed);
+    let target = if std::fs::rename(path, &doomed).is_ok() {
+        doomed.as_path()
+    } else {
+        path
+    };
+    for _ in 0..20 {
+        if std::fs::remove_dir_all(target).is_ok() || !target.exists() {
+            return;
+        }
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    }
 }
 
 /// Checks, before any work starts, that `output` can be written and is none of `inputs`.
