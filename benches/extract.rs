@@ -12,7 +12,8 @@ use std::time::Duration;
 use baler::extract::corpus::{CorpusOptions, CorpusReader, SentencePair};
 use baler::extract::phrases::{PhraseFinder, PhraseLimits};
 use baler::extract::synthetic::SyntheticCorpus;
-use baler::extract::{extract, ExtractOptions};
+use baler::extract::ExtractOptions;
+use baler::pipeline::extract_file;
 use criterion::{black_box, BenchmarkId, Criterion, Throughput};
 
 fn sentence_pairs(n: u64) -> (tempfile::TempDir, Vec<SentencePair>) {
@@ -99,7 +100,7 @@ fn pipeline(c: &mut Criterion) {
                 options.shard.threads = threads;
                 options.shard.memory = 512 << 20;
                 let out = dir.path().join("table.tsv.zst");
-                b.iter(|| extract(&paths, &options, &out).unwrap())
+                b.iter(|| extract_file(&paths, &options, &out).unwrap())
             },
         );
     }

@@ -89,7 +89,7 @@ fn coverage_pass(c: &mut Criterion) {
     };
     let mut options = baler::extract::ExtractOptions::default();
     options.shard.threads = 1;
-    baler::extract::extract(&paths, &options, &extracted).unwrap();
+    baler::pipeline::extract_file(&paths, &options, &extracted).unwrap();
     let packed = dir.path().join("toolshed.bale");
     let reader = baler::files::open_input(&extracted).unwrap();
     baler::pack::pack_tsv(reader, "toolshed.tsv", &packed, &Default::default()).unwrap();

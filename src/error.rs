@@ -74,6 +74,8 @@ pub enum Error {
     ConsumerStopped,
     /// An internal invariant does not hold: a bug in baler.
     Internal(&'static str),
+    /// Drawing a plot failed (the plotting library's message).
+    Plot(String),
     /// A worker thread of the run panicked: a bug in baler.
     WorkerPanicked {
         /// Which worker, e.g. "packer".
@@ -183,6 +185,7 @@ impl fmt::Display for Error {
                 write!(f, "a temporary {what} of this run is damaged: {reason}")
             }
             Error::Internal(what) => write!(f, "internal error (please report it): {what}"),
+            Error::Plot(reason) => write!(f, "drawing the plot failed: {reason}"),
             Error::ConsumerStopped => f.write_str("the next stage stopped taking records"),
             Error::WorkerPanicked { worker } => {
                 write!(

@@ -238,7 +238,7 @@ fn demo_pairs() -> &'static (baler::table::Header, Vec<PhrasePair>) {
         let mut options = baler::extract::ExtractOptions::default();
         options.shard.threads = 1;
         options.shard.progress = false;
-        baler::extract::extract(&paths, &options, &out).unwrap();
+        baler::pipeline::extract_file(&paths, &options, &out).unwrap();
         let mut reader = TsvReader::new(baler::files::open_input(&out).unwrap(), "demo").unwrap();
         let header = reader.header().clone();
         let mut pairs = Vec::new();

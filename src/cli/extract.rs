@@ -298,7 +298,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
                 shard: shard_options(&args.corpus, &args.phrases, &args.resources)?,
                 discount: args.scoring.discount.discount(),
             };
-            let s = baler::extract::extract(&args.corpus.paths(), &options, &output)?;
+            let s = baler::pipeline::extract_file(&args.corpus.paths(), &options, &output)?;
             say(
                 args.resources.quiet,
                 format!(

@@ -61,7 +61,7 @@ const COLORS: [RGBColor; 6] = [
 /// Draws panels side by side as SVG.
 pub fn plot_panels(panels: &[Panel]) -> Result<String> {
     let mut svg = String::new();
-    let failed = |e: String| Error::Unsupported(format!("drawing the sweep plot failed: {e}"));
+    let failed = Error::Plot;
     {
         let n = panels.len().max(1) as u32;
         let root = SVGBackend::with_string(&mut svg, (PANEL.0 * n, PANEL.1)).into_drawing_area();

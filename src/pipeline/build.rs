@@ -4,7 +4,7 @@ use std::path::Path;
 
 use super::{prune_and_pack, Packing};
 use crate::error::{Error, Result};
-use crate::extract::{self, ExtractSummary};
+use crate::extract::ExtractSummary;
 use crate::files::{Output, TempDir};
 use crate::measure::{self, CompareOptions, Comparison, MeasuredTable};
 use crate::pack::PackReport;
@@ -77,7 +77,7 @@ pub fn build(recipe: &Recipe, progress: bool) -> Result<BuildReport> {
         .extracted
         .clone()
         .unwrap_or_else(|| work.path().join("extracted.tsv"));
-    let summary = extract::extract(&recipe.corpus, &extract_options, &extracted)?;
+    let summary = super::extract_file(&recipe.corpus, &extract_options, &extracted)?;
     let mut pack = Packing {
         settings: recipe.pack.clone(),
         resources: recipe.pack_resources.clone(),

@@ -4,6 +4,8 @@
 //! and know nothing of each other; the runners here open the inputs, check the outputs before
 //! any work starts ([`crate::files::check_output`]), connect the stages and commit the outputs:
 //!
+//! * [`extract_file`]: a word-aligned corpus into a scored table (the one-machine path
+//!   chosen by the corpus's size against `--memory`).
 //! * [`prune_file`]: a table in any order, TSV or packed, into TSV or a packed table.
 //! * [`prune_and_pack`]: a source-grouped table pruned straight into a packed table, with no
 //!   intermediate file (what `build` and `sweep` do).
@@ -16,10 +18,12 @@
 //! is reported, not the pruner's failure to hand it more pairs.
 
 mod build;
+mod extract;
 mod prune;
 mod sweep;
 
 pub use build::{build, BuildReport};
+pub use extract::extract_file;
 pub use prune::{prune_and_pack, prune_file};
 pub use sweep::sweep;
 
