@@ -39,8 +39,8 @@ use super::corpus::{CorpusPaths, CorpusReader, SentencePair};
 use super::phrases::{write_inside, PhraseFinder, SpanPair};
 use super::report::Progress;
 use super::resident::{
-    aggregate, alignment_links, alignment_ranks, count_sentences, word_table, write_table,
-    Extracted, PhraseTree, Ranks, ResidentSummary, Side, Vocabulary, Writing, ROOT,
+    aggregate, alignment_links, alignment_ranks, count_sentences, count_word_links, word_table,
+    write_table, Extracted, PhraseTree, Ranks, ResidentSummary, Side, Vocabulary, Writing, ROOT,
 };
 use super::runs::RunInfo;
 use super::score::{Discount, FastMap};
@@ -337,7 +337,7 @@ fn read_into_buckets(
             let mut finder = PhraseFinder::default();
             let mut spans: Vec<SpanPair> = Vec::new();
             let mut text = String::new();
-            let (mut source_aligned, mut target_aligned) = (Vec::new(), Vec::new());
+            let mut aligned = (Vec::new(), Vec::new());
             let mut batch = PartBatch::default();
             let mut sentences = 0u64;
             while reader.next_pair(&mut pair)? {
@@ -354,22 +354,7 @@ fn read_into_buckets(
                 sentences += 1;
                 let f = x.source.sentences.get(x.source.sentences.ends.len() - 1);
                 let e = x.target.sentences.get(x.target.sentences.ends.len() - 1);
-                source_aligned.clear();
-                source_aligned.resize(ns, false);
-                target_aligned.clear();
-                target_aligned.resize(nt, false);
-                for &(i, j) in &pair.links {
-                    let (i, j) = (usize::from(i), usize::from(j));
-                    source_aligned[i] = true;
-                    target_aligned[j] = true;
-                    *x.links.entry((f[i], e[j])).or_insert(0) += 1;
-                }
-                for i in (0..ns).filter(|&i| !source_aligned[i]) {
-                    *x.links.entry((f[i], 0)).or_insert(0) += 1;
-                }
-                for j in (0..nt).filter(|&j| !target_aligned[j]) {
-                    *x.links.entry((0, e[j])).or_insert(0) += 1;
-                }
+                count_word_links(&mut x.links, &pair.links, (f, e), &mut aligned);
                 spans.clear();
                 finder.find(ns, nt, &pair.links, options.limits, |p| spans.push(p));
                 pair_occurrences += spans.len() as u64;

@@ -481,6 +481,33 @@ pub(super) struct Extracted {
     pub(super) stats: CorpusStats,
 }
 
+/// Counts a sentence pair's word links into `links`, and a NULL link (word 0) for every
+/// unaligned word on either side; `aligned` is scratch space reused between calls.
+pub(super) fn count_word_links(
+    links: &mut FastMap<(u32, u32), u64>,
+    pair_links: &[(u16, u16)],
+    (f, e): (&[u32], &[u32]),
+    aligned: &mut (Vec<bool>, Vec<bool>),
+) {
+    let (source_aligned, target_aligned) = aligned;
+    source_aligned.clear();
+    source_aligned.resize(f.len(), false);
+    target_aligned.clear();
+    target_aligned.resize(e.len(), false);
+    for &(i, j) in pair_links {
+        let (i, j) = (usize::from(i), usize::from(j));
+        source_aligned[i] = true;
+        target_aligned[j] = true;
+        *links.entry((f[i], e[j])).or_insert(0) += 1;
+    }
+    for i in (0..f.len()).filter(|&i| !source_aligned[i]) {
+        *links.entry((f[i], 0)).or_insert(0) += 1;
+    }
+    for j in (0..e.len()).filter(|&j| !target_aligned[j]) {
+        *links.entry((0, e[j])).or_insert(0) += 1;
+    }
+}
+
 /// Sentence pairs per batch sent to the span threads.
 const BATCH: usize = 1024;
 
@@ -546,7 +573,7 @@ fn read_spans(
     let mut finder = PhraseFinder::default();
     let mut spans: Vec<SpanPair> = Vec::new();
     let mut text = String::new();
-    let (mut source_aligned, mut target_aligned) = (Vec::new(), Vec::new());
+    let mut aligned = (Vec::new(), Vec::new());
     let (mut source_batch, mut target_batch) = (SpanBatch::default(), SpanBatch::default());
     let budget = options.memory as usize;
     while reader.next_pair(&mut pair)? {
@@ -556,22 +583,7 @@ fn read_spans(
         let f = x.source.sentences.get(x.source.sentences.ends.len() - 1);
         let e = x.target.sentences.get(x.target.sentences.ends.len() - 1);
         // Word links, and NULL links for unaligned words.
-        source_aligned.clear();
-        source_aligned.resize(ns, false);
-        target_aligned.clear();
-        target_aligned.resize(nt, false);
-        for &(i, j) in &pair.links {
-            let (i, j) = (usize::from(i), usize::from(j));
-            source_aligned[i] = true;
-            target_aligned[j] = true;
-            *x.links.entry((f[i], e[j])).or_insert(0) += 1;
-        }
-        for i in (0..ns).filter(|&i| !source_aligned[i]) {
-            *x.links.entry((f[i], 0)).or_insert(0) += 1;
-        }
-        for j in (0..nt).filter(|&j| !target_aligned[j]) {
-            *x.links.entry((0, e[j])).or_insert(0) += 1;
-        }
+        count_word_links(&mut x.links, &pair.links, (f, e), &mut aligned);
         // Phrase pairs: spans to the phrase threads, alignments numbered here.
         spans.clear();
         finder.find(ns, nt, &pair.links, options.limits, |p| spans.push(p));
