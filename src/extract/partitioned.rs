@@ -40,10 +40,10 @@ use super::phrases::{write_inside, PhraseFinder, SpanPair};
 use super::report::Progress;
 use super::resident::{
     aggregate, alignment_links, alignment_ranks, count_sentences, count_word_links, word_table,
-    write_table, Extracted, PhraseTree, Ranks, ResidentSummary, Side, Vocabulary, Writing, ROOT,
+    write_table, Extracted, PhraseTree, Ranks, ResidentSummary, Vocabulary, Writing, ROOT,
 };
 use super::runs::RunInfo;
-use super::score::{Discount, FastMap};
+use super::score::Discount;
 use super::shard::ShardOptions;
 use crate::error::{Error, Result};
 use crate::files::TempDir;
@@ -318,14 +318,7 @@ fn read_into_buckets(
     let mut reader = CorpusReader::open(paths, options.corpus)?;
     let progress = Progress::new("extract", reader.total_bytes(), options.progress);
     let counter = reader.progress_counter();
-    let mut x = Extracted {
-        source: Side::new(),
-        target: Side::new(),
-        occurrence_alignments: Vec::new(),
-        alignments: Vec::new(),
-        links: FastMap::default(),
-        stats: Default::default(),
-    };
+    let mut x = Extracted::new();
     let (tx, rx) = mpsc::sync_channel::<PartBatch>(4);
     let mut pair_occurrences = 0u64;
     let (read, written) = std::thread::scope(|scope| {

@@ -508,6 +508,20 @@ pub(super) fn count_word_links(
     }
 }
 
+impl Extracted {
+    /// Nothing read yet.
+    pub(super) fn new() -> Extracted {
+        Extracted {
+            source: Side::new(),
+            target: Side::new(),
+            occurrence_alignments: Vec::new(),
+            alignments: Vec::new(),
+            links: FastMap::default(),
+            stats: CorpusStats::default(),
+        }
+    }
+}
+
 /// Sentence pairs per batch sent to the span threads.
 const BATCH: usize = 1024;
 
@@ -519,14 +533,7 @@ fn read_and_extract(paths: &CorpusPaths, options: &ShardOptions) -> Result<Optio
     let mut reader = CorpusReader::open(paths, options.corpus)?;
     let progress = Progress::new("extract", reader.total_bytes(), options.progress);
     let counter = reader.progress_counter();
-    let mut x = Extracted {
-        source: Side::new(),
-        target: Side::new(),
-        occurrence_alignments: Vec::new(),
-        alignments: Vec::new(),
-        links: FastMap::default(),
-        stats: CorpusStats::default(),
-    };
+    let mut x = Extracted::new();
     let (source_nodes, target_nodes) = (AtomicUsize::new(0), AtomicUsize::new(0));
     let (source_tx, source_rx) = mpsc::sync_channel::<SpanBatch>(4);
     let (target_tx, target_rx) = mpsc::sync_channel::<SpanBatch>(4);
