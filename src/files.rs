@@ -577,6 +577,12 @@ fn wrap(path: &Path, buffered: BufWriter<File>) -> Result<Sink> {
             .map_err(|e| Error::io(path, "creating", e))?;
         enc.include_checksum(true)
             .map_err(|e| Error::io(path, "creating", e))?;
+        // Compression runs on one worker thread of zstd's own, beside the thread that formats
+        // the rows (on a table's output it was the one step left on a single thread). The
+        // worker count is fixed, not taken from `--threads`, so the file's bytes never depend on
+        // it.
+        enc.multithread(1)
+            .map_err(|e| Error::io(path, "creating", e))?;
         Sink::Zstd(enc)
     } else {
         Sink::Plain(buffered)

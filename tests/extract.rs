@@ -453,6 +453,33 @@ fn check_sentence_level_counts(extra: &[&str]) -> String {
     String::from_utf8_lossy(&o.stderr).into_owned()
 }
 
+/// A compressed output's bytes, not only its text, do not depend on the number of threads or
+/// on the budget (zstd compresses on a worker thread of its own, whose count is fixed).
+#[test]
+fn compressed_output_is_identical_across_threads() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), 2000);
+    let reference = dir.path().join("one.tsv.zst");
+    run_extract(&paths, &reference, &["-q", "--threads", "1"]);
+    let expected = std::fs::read(&reference).unwrap();
+    for (name, extra) in [
+        ("two.tsv.zst", vec!["-q", "--threads", "2"]),
+        (
+            "ranges.tsv.zst",
+            vec!["-q", "--threads", "2", "--memory", "300K"],
+        ),
+    ] {
+        let out = dir.path().join(name);
+        run_extract(&paths, &out, &extra);
+        assert!(std::fs::read(&out).unwrap() == expected, "{name} differs");
+    }
+    // And it is the plain output, compressed.
+    let plain = dir.path().join("plain.tsv");
+    run_extract(&paths, &plain, &["-q"]);
+    let text = zstd::decode_all(&expected[..]).unwrap();
+    assert!(text == std::fs::read(&plain).unwrap());
+}
+
 /// The output does not depend on the number of threads, on memory budgets small enough to
 /// force spills and chunked counting, or on running the map and reduce steps by hand over
 /// shards.

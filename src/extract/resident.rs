@@ -1015,7 +1015,9 @@ pub(super) fn write_table<W: Write>(
         drop(rx);
         written
     })?;
-    out.flush().map_err(werr)?;
+    // No flush here: the caller finishes the output once every range is written (a flush per
+    // range would end a compressed output's block early, so its bytes would depend on the
+    // number of ranges, that is on the memory budget).
     Ok(())
 }
 
