@@ -28,7 +28,7 @@
 //! caller takes the map/reduce path.
 
 use std::cmp::Ordering as Order;
-use std::io::{BufReader, BufWriter, Read, Write};
+use std::io::{BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::Ordering;
 use std::sync::mpsc;
@@ -469,17 +469,6 @@ fn length(path: &Path, len: u32, max: usize, rest: usize) -> Result<usize> {
     Ok(len)
 }
 
-/// Compares two phrases (word ids) in byte order of their text, through each word's byte rank.
-fn compare(a: &[u32], b: &[u32], word_rank: &[u32]) -> Order {
-    for (&x, &y) in a.iter().zip(b) {
-        match word_rank[x as usize].cmp(&word_rank[y as usize]) {
-            Order::Equal => {}
-            other => return other,
-        }
-    }
-    a.len().cmp(&b.len())
-}
-
 /// Step 3: the occurrences of every target, in byte order of the targets, into `out` as
 /// `[length, ids, count low, count high]` records. Returns the number of targets.
 fn target_totals(
@@ -515,8 +504,9 @@ fn target_totals(
             tree.ids(node, &mut ids);
             w.write_all(&(ids.len() as u32).to_le_bytes())
                 .map_err(werr)?;
+            // Words as big-endian ranks: the bytes of two targets compare as the targets do.
             for id in &ids {
-                w.write_all(&id.expect("a word").to_le_bytes())
+                w.write_all(&word_rank[id.expect("a word") as usize].to_be_bytes())
                     .map_err(werr)?;
             }
             w.write_all(&counts[node as usize].to_le_bytes())
@@ -528,56 +518,84 @@ fn target_totals(
     Ok(targets)
 }
 
-/// Reads [`target_totals`]' file forward.
+/// Reads [`target_totals`]' file forward, a large buffer at a time: every source range reads
+/// the whole file (its targets are spread over all of it), so this is a scan of many records
+/// per target asked for, compared as bytes.
 struct TotalsReader {
     path: PathBuf,
-    input: BufReader<std::fs::File>,
-    ids: Vec<u32>,
-    count: u64,
+    file: std::fs::File,
+    buf: Vec<u8>,
+    /// `buf[pos..end]` is read and not yet consumed.
+    pos: usize,
+    end: usize,
 }
 
 impl TotalsReader {
+    const BUFFER: usize = 1 << 20;
+
     fn open(path: &Path) -> Result<TotalsReader> {
         let file = std::fs::File::open(path).map_err(|e| Error::io(path, "opening", e))?;
         Ok(TotalsReader {
             path: path.to_path_buf(),
-            input: BufReader::with_capacity(1 << 20, file),
-            ids: Vec::new(),
-            count: 0,
+            file,
+            buf: vec![0; Self::BUFFER],
+            pos: 0,
+            end: 0,
         })
     }
 
-    fn u32(&mut self) -> Result<u32> {
-        let mut b = [0u8; 4];
-        self.input
-            .read_exact(&mut b)
-            .map_err(|_| damaged(&self.path, "ends before a target the table holds"))?;
-        Ok(u32::from_le_bytes(b))
+    /// Makes `n` bytes available at `pos`; false if the file ends first.
+    fn fill(&mut self, n: usize) -> Result<bool> {
+        if self.end - self.pos >= n {
+            return Ok(true);
+        }
+        self.buf.copy_within(self.pos..self.end, 0);
+        self.end -= self.pos;
+        self.pos = 0;
+        if self.buf.len() < n {
+            self.buf.resize(n, 0);
+        }
+        while self.end < n {
+            let got = self
+                .file
+                .read(&mut self.buf[self.end..])
+                .map_err(|e| Error::io(&self.path, "reading", e))?;
+            if got == 0 {
+                return Ok(false);
+            }
+            self.end += got;
+        }
+        Ok(true)
     }
 
-    fn next(&mut self, max: usize) -> Result<()> {
-        let len = self.u32()? as usize;
-        if len == 0 || len > max {
-            return Err(damaged(&self.path, "a phrase length is out of range"));
-        }
-        self.ids.clear();
-        for _ in 0..len {
-            let w = self.u32()?;
-            self.ids.push(w);
-        }
-        self.count = u64::from(self.u32()?) | (u64::from(self.u32()?) << 32);
-        Ok(())
-    }
-
-    /// The total of `target`, reading forward (targets must be asked in byte order).
-    fn total(&mut self, target: &[u32], max: usize, word_rank: &[u32]) -> Result<u64> {
+    /// The total of the target whose words' big-endian ranks are `key`, reading forward
+    /// (targets must be asked in byte order).
+    fn total(&mut self, key: &[u8], max: usize) -> Result<u64> {
+        let missing = |path: &Path| damaged(path, "ends before a target the table holds");
         loop {
-            match compare(&self.ids, target, word_rank) {
-                Order::Equal => return Ok(self.count),
+            if !self.fill(4)? {
+                return Err(missing(&self.path));
+            }
+            let at = self.pos;
+            let len = u32::from_le_bytes(self.buf[at..at + 4].try_into().expect("4 bytes"));
+            let len = len as usize;
+            if len == 0 || len > max {
+                return Err(damaged(&self.path, "a phrase length is out of range"));
+            }
+            let record = 4 + 4 * len + 8;
+            if !self.fill(record)? {
+                return Err(missing(&self.path));
+            }
+            let at = self.pos;
+            match self.buf[at + 4..at + 4 + 4 * len].cmp(key) {
+                Order::Equal => {
+                    let count = &self.buf[at + 4 + 4 * len..at + record];
+                    return Ok(u64::from_le_bytes(count.try_into().expect("8 bytes")));
+                }
                 Order::Greater => {
                     return Err(damaged(&self.path, "a target of the table is missing"))
                 }
-                _ => self.next(max)?,
+                Order::Less => self.pos += record,
             }
         }
     }
@@ -598,8 +616,11 @@ fn load_group(
         Vec::with_capacity(n),
         Vec::with_capacity(n),
     ];
+    let mut starts = Vec::new();
     for path in paths {
         let values = read_values(path)?;
+        // Check every record and note where each starts; then the two trees are built at once.
+        starts.clear();
         let mut k = 0;
         while k < values.len() {
             if values.len() - k < 2 {
@@ -610,17 +631,28 @@ fn load_group(
             if values.len() - k < 3 + ls + lt {
                 return Err(damaged(path, "cut inside a record"));
             }
-            let s = intern(&mut sources, &values[k + 2..k + 2 + ls]);
-            let t = intern(&mut targets, &values[k + 2 + ls..k + 2 + ls + lt]);
-            let a = values[k + 2 + ls + lt];
-            if a as usize >= alignments {
+            if values[k + 2 + ls + lt] as usize >= alignments {
                 return Err(damaged(path, "an alignment number is out of range"));
             }
-            occ[0].push(s);
-            occ[1].push(t);
-            occ[2].push(a);
+            starts.push(k);
             k += 3 + ls + lt;
         }
+        let [occ_s, occ_t, occ_a] = &mut occ;
+        let (values, starts) = (&values, &starts);
+        let targets = &mut targets;
+        std::thread::scope(|scope| {
+            scope.spawn(move || {
+                for &k in starts {
+                    let (ls, lt) = (values[k] as usize, values[k + 1] as usize);
+                    occ_t.push(intern(targets, &values[k + 2 + ls..k + 2 + ls + lt]));
+                }
+            });
+            for &k in starts {
+                let (ls, lt) = (values[k] as usize, values[k + 1] as usize);
+                occ_s.push(intern(&mut sources, &values[k + 2..k + 2 + ls]));
+                occ_a.push(values[k + 2 + ls + lt]);
+            }
+        });
     }
     if occ[0].len() as u64 != expected {
         return Err(Error::DamagedTemporary {
@@ -718,12 +750,16 @@ pub(crate) fn extract_partitioned<W: Write>(
         let mut table = aggregate(occurrences, &ranks, threads);
         // `count_target` sums over every source range: from the totals, in target order.
         let mut totals = TotalsReader::open(&totals_path)?;
-        let mut target = Vec::new();
+        let mut key = Vec::new();
         for (t, &node) in ranks.target_nodes.iter().enumerate() {
             x.target.tree.ids(node, &mut ids);
-            target.clear();
-            target.extend(ids.iter().map(|w| w.expect("a word")));
-            table.target_totals[t] = totals.total(&target, max, &target_word_ranks)?;
+            key.clear();
+            for w in &ids {
+                key.extend_from_slice(
+                    &target_word_ranks[w.expect("a word") as usize].to_be_bytes(),
+                );
+            }
+            table.target_totals[t] = totals.total(&key, max)?;
         }
         next_lap(1);
         let counts = count_sentences(&x, &ranks, &table, max, threads);
