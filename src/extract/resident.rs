@@ -1106,12 +1106,11 @@ impl RowContext<'_> {
                     }
                 };
                 let (ct, nt) = (self.table.target_totals[t], self.table.target_distinct[t]);
-                row.alignment
-                    .clone_from(&self.links[pair.alignment as usize]);
+                let links = &self.links[pair.alignment as usize];
                 let (p_t_given_s, p_s_given_t) =
                     self.scorer
                         .probabilities(pair.count, cs, ct, u64::from(ns), u64::from(nt));
-                let (lex_t, lex_s) = self.words.lexical_weights_ids(&f, e, &row.alignment);
+                let (lex_t, lex_s) = self.words.lexical_weights_ids(&f, e, links);
                 row.scores
                     .copy_from_slice(&[p_t_given_s, p_s_given_t, lex_t, lex_s]);
                 let pair_index = first_pair + p - range.offsets[first];
@@ -1123,7 +1122,7 @@ impl RowContext<'_> {
                     u64::from(df_source),
                     u64::from(self.counts.df_target(t)),
                 ]);
-                writer.write_pair(&row)?;
+                writer.write_pair_aligned(&row, &self.x.alignments[pair.alignment as usize])?;
             }
         }
         Ok(writer.into_inner())

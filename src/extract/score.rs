@@ -304,6 +304,52 @@ impl WordTable {
         e: &[Option<u32>],
         links: &[(u16, u16)],
     ) -> (f64, f64) {
+        /// Phrases up to this long keep their sums on the stack.
+        const SHORT: usize = 16;
+        if f.len() > SHORT || e.len() > SHORT {
+            return self.lexical_weights_long(f, e, links);
+        }
+        // One pass over the links: each link's joint count is looked up once and serves both
+        // directions. Each word's sum takes its links in link order, as the definition's
+        // per-word sums do, so the results are the same to the bit.
+        let (mut e_sum, mut e_n) = ([0.0f64; SHORT], [0u32; SHORT]);
+        let (mut f_sum, mut f_n) = ([0.0f64; SHORT], [0u32; SHORT]);
+        for &(i, j) in links {
+            let (i, j) = (usize::from(i), usize::from(j));
+            let (fi, ej) = (f[i], e[j]);
+            let joint = self.joint(fi, ej);
+            e_sum[j] += Self::ratio(joint, fi.map_or(0, |f| self.source_totals[f as usize]));
+            e_n[j] += 1;
+            f_sum[i] += Self::ratio(joint, ej.map_or(0, |e| self.target_totals[e as usize]));
+            f_n[i] += 1;
+        }
+        let mut t_given_s = 1.0;
+        for (j, &ej) in e.iter().enumerate() {
+            t_given_s *= if e_n[j] == 0 {
+                self.t_given_s_ids(Some(0), ej)
+            } else {
+                e_sum[j] / f64::from(e_n[j])
+            };
+        }
+        let mut s_given_t = 1.0;
+        for (i, &fi) in f.iter().enumerate() {
+            s_given_t *= if f_n[i] == 0 {
+                self.s_given_t_ids(fi, Some(0))
+            } else {
+                f_sum[i] / f64::from(f_n[i])
+            };
+        }
+        (t_given_s, s_given_t)
+    }
+
+    /// [`WordTable::lexical_weights_ids`] straight from the definition, for phrases of any
+    /// length.
+    fn lexical_weights_long(
+        &self,
+        f: &[Option<u32>],
+        e: &[Option<u32>],
+        links: &[(u16, u16)],
+    ) -> (f64, f64) {
         let mut t_given_s = 1.0;
         for (j, &ej) in e.iter().enumerate() {
             let (mut sum, mut n) = (0.0, 0u32);
@@ -1011,6 +1057,55 @@ impl Scorer {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The one-pass lexical weights equal the per-word definition (`lexical_weights_long`) to
+    /// the bit, with unaligned words on both sides, words linked many times and unknown words.
+    #[test]
+    fn one_pass_lexical_weights_equal_the_definition() {
+        let mut joint = FastMap::default();
+        let mut state = 12345u64;
+        let mut next = |m: u64| {
+            state = state
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            (state >> 33) % m
+        };
+        for f in 0..6u32 {
+            for e in 0..6u32 {
+                if next(3) > 0 {
+                    joint.insert((f, e), 1 + next(50));
+                }
+            }
+        }
+        let totals = |side: usize| -> Vec<u64> {
+            (0..6u32)
+                .map(|w| {
+                    joint
+                        .iter()
+                        .filter(|(k, _)| if side == 0 { k.0 == w } else { k.1 == w })
+                        .map(|(_, &n)| n)
+                        .sum::<u64>()
+                })
+                .collect()
+        };
+        let (st, tt) = (totals(0), totals(1));
+        let table = WordTable::from_ids(joint.clone(), st, tt);
+        for _ in 0..500 {
+            let word = |next: &mut dyn FnMut(u64) -> u64| match next(7) {
+                6 => None,
+                w => Some(w as u32),
+            };
+            let f: Vec<Option<u32>> = (0..1 + next(7)).map(|_| word(&mut next)).collect();
+            let e: Vec<Option<u32>> = (0..1 + next(7)).map(|_| word(&mut next)).collect();
+            let links: Vec<(u16, u16)> = (0..next(10))
+                .map(|_| (next(f.len() as u64) as u16, next(e.len() as u64) as u16))
+                .collect();
+            let fast = table.lexical_weights_ids(&f, &e, &links);
+            let slow = table.lexical_weights_long(&f, &e, &links);
+            assert_eq!(fast.0.to_bits(), slow.0.to_bits(), "{f:?} {e:?} {links:?}");
+            assert_eq!(fast.1.to_bits(), slow.1.to_bits(), "{f:?} {e:?} {links:?}");
+        }
+    }
 
     #[test]
     fn good_turing_discounts_only_where_defined() {

@@ -592,6 +592,21 @@ impl<W: Write> TsvWriter<W> {
 
     /// Writes one record; its columns must match the schema given to [`TsvWriter::new`].
     pub fn write_pair(&mut self, pair: &PhrasePair) -> std::io::Result<()> {
+        self.write_row(pair, None)
+    }
+
+    /// Writes one record whose alignment column is `alignment`, already in the column's form
+    /// (`i-j` links joined by spaces, as [`write_alignment`] writes them); `pair.alignment` is
+    /// not read. For a writer that holds each distinct alignment's text once.
+    pub fn write_pair_aligned(
+        &mut self,
+        pair: &PhrasePair,
+        alignment: &str,
+    ) -> std::io::Result<()> {
+        self.write_row(pair, Some(alignment))
+    }
+
+    fn write_row(&mut self, pair: &PhrasePair, alignment: Option<&str>) -> std::io::Result<()> {
         debug_assert_eq!(pair.scores.len(), self.schema.scores.len());
         debug_assert_eq!(pair.counts.len(), self.schema.counts.len());
         let line = &mut self.line;
@@ -601,7 +616,10 @@ impl<W: Write> TsvWriter<W> {
         line.push_str(&pair.target);
         if self.schema.alignment {
             line.push('\t');
-            write_alignment(line, &pair.alignment);
+            match alignment {
+                Some(text) => line.push_str(text),
+                None => write_alignment(line, &pair.alignment),
+            }
         }
         for &s in &pair.scores {
             line.push('\t');
