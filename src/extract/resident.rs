@@ -955,7 +955,6 @@ pub(super) fn write_table<W: Write>(
     let target_texts = writing
         .cache_targets
         .then(|| PhraseTexts::new(&x.target, &ranks.target_nodes));
-    // Blocks: (range, first source, last source, first pair index overall).
     let mut blocks = Vec::new();
     let mut pair_base = 0usize;
     for (r, range) in table.ranges.iter().enumerate() {
@@ -966,7 +965,12 @@ pub(super) fn write_table<W: Write>(
             while end < n && range.offsets[end] - range.offsets[k] < ROWS_PER_BLOCK {
                 end += 1;
             }
-            blocks.push((r, k, end, pair_base + range.offsets[k]));
+            blocks.push(RowBlock {
+                range: r,
+                first: k,
+                end,
+                first_pair: pair_base + range.offsets[k],
+            });
             k = end;
         }
         pair_base += range.pairs.len();
@@ -1045,6 +1049,16 @@ fn parse_alignment(text: &str) -> Result<Vec<(u16, u16)>> {
         .collect()
 }
 
+/// The rows of sources `first..end` of range `range`, scored and formatted by one thread.
+#[derive(Clone, Copy)]
+struct RowBlock {
+    range: usize,
+    first: usize,
+    end: usize,
+    /// The number, over all ranges, of the block's first pair (its counts' index).
+    first_pair: usize,
+}
+
 struct RowContext<'a> {
     x: &'a Extracted,
     ranks: &'a Ranks,
@@ -1059,11 +1073,14 @@ struct RowContext<'a> {
 }
 
 impl RowContext<'_> {
-    fn format_block(
-        &self,
-        (r, first, end, first_pair): (usize, usize, usize, usize),
-    ) -> std::io::Result<Vec<u8>> {
-        let range = &self.table.ranges[r];
+    fn format_block(&self, block: RowBlock) -> std::io::Result<Vec<u8>> {
+        let RowBlock {
+            range,
+            first,
+            end,
+            first_pair,
+        } = block;
+        let range = &self.table.ranges[range];
         let rows = range.offsets[end] - range.offsets[first];
         let mut writer = TsvWriter::new(Vec::with_capacity(rows * 160), self.header)?;
         writer.get_mut().drain(..self.header_len);
