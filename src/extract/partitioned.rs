@@ -33,14 +33,13 @@ use std::path::{Path, PathBuf};
 use std::sync::atomic::Ordering;
 use std::sync::mpsc;
 
-use rustc_hash::FxHashMap;
-
 use super::corpus::{CorpusPaths, CorpusReader, SentencePair};
 use super::phrases::{write_inside, PhraseFinder, SpanPair};
 use super::report::Progress;
 use super::resident::{
     aggregate, alignment_links, alignment_ranks, count_sentences, count_word_links, word_table,
-    write_table, Extracted, PhraseTree, Ranks, ResidentSummary, Vocabulary, Writing, ROOT,
+    write_table, AlignmentNumbers, Extracted, PhraseTree, Ranks, ResidentSummary, Vocabulary,
+    Writing, ROOT,
 };
 use super::runs::RunInfo;
 use super::score::Discount;
@@ -324,7 +323,7 @@ fn read_into_buckets(
     let (read, written) = std::thread::scope(|scope| {
         let writer = scope.spawn(|| write_buckets(rx, buckets));
         let read = (|| -> Result<()> {
-            let mut alignment_ids: FxHashMap<Box<str>, u32> = FxHashMap::default();
+            let mut alignment_ids = AlignmentNumbers::default();
             let mut bucket_of_word: [Vec<WordBucket>; 2] = [Vec::new(), Vec::new()];
             let mut pair = SentencePair::default();
             let mut finder = PhraseFinder::default();
@@ -358,15 +357,7 @@ fn read_into_buckets(
                 for &p in &spans {
                     text.clear();
                     write_inside(&pair.links, p, &mut text);
-                    let a = match alignment_ids.get(text.as_str()) {
-                        Some(&a) => a,
-                        None => {
-                            let a = x.alignments.len() as u32;
-                            x.alignments.push(text.as_str().into());
-                            alignment_ids.insert(text.as_str().into(), a);
-                            a
-                        }
-                    };
+                    let (a, _) = alignment_ids.number(&text, &mut x.alignments);
                     let side = |k: usize, ids: &[u32], vocabulary: &Vocabulary| {
                         let first = bucket_of_word[k][ids[0] as usize - 1];
                         if first.split && ids.len() > 1 {

@@ -481,6 +481,26 @@ pub(super) struct Extracted {
     pub(super) stats: CorpusStats,
 }
 
+/// Numbers the distinct internal alignments by their text, in order of first sight.
+#[derive(Default)]
+pub(super) struct AlignmentNumbers {
+    ids: FxHashMap<Box<str>, u32>,
+}
+
+impl AlignmentNumbers {
+    /// The number of the alignment `text`, added to `alignments` (by number) if new; whether
+    /// it was new.
+    pub(super) fn number(&mut self, text: &str, alignments: &mut Vec<Box<str>>) -> (u32, bool) {
+        if let Some(&a) = self.ids.get(text) {
+            return (a, false);
+        }
+        let a = alignments.len() as u32;
+        alignments.push(text.into());
+        self.ids.insert(text.into(), a);
+        (a, true)
+    }
+}
+
 /// Counts a sentence pair's word links into `links`, and a NULL link (word 0) for every
 /// unaligned word on either side; `aligned` is scratch space reused between calls.
 pub(super) fn count_word_links(
@@ -574,7 +594,7 @@ fn read_spans(
     nodes: impl Fn() -> usize,
     progress: impl Fn(u64),
 ) -> Result<bool> {
-    let mut alignment_ids: FxHashMap<Box<str>, u32> = FxHashMap::default();
+    let mut alignment_ids = AlignmentNumbers::default();
     let mut alignment_bytes = 0usize;
     let mut pair = SentencePair::default();
     let mut finder = PhraseFinder::default();
@@ -600,16 +620,10 @@ fn read_spans(
         for &p in &spans {
             text.clear();
             write_inside(&pair.links, p, &mut text);
-            let a = match alignment_ids.get(text.as_str()) {
-                Some(&a) => a,
-                None => {
-                    let a = x.alignments.len() as u32;
-                    x.alignments.push(text.as_str().into());
-                    alignment_ids.insert(text.as_str().into(), a);
-                    alignment_bytes += 2 * text.len() + 48;
-                    a
-                }
-            };
+            let (a, new) = alignment_ids.number(&text, &mut x.alignments);
+            if new {
+                alignment_bytes += 2 * text.len() + 48;
+            }
             x.occurrence_alignments.push(a);
         }
         if source_batch.sentence_ends.len() == BATCH {
