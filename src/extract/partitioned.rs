@@ -37,9 +37,9 @@ use super::corpus::{CorpusPaths, CorpusReader, SentencePair};
 use super::phrases::{write_inside, PhraseFinder, SpanPair};
 use super::report::Progress;
 use super::resident::{
-    aggregate, alignment_links, alignment_ranks, count_sentences, count_word_links, word_table,
-    write_table, AlignmentNumbers, Extracted, PhraseTree, Ranks, ResidentSummary, Vocabulary,
-    Writing, ROOT,
+    aggregate, alignment_links, alignment_ranks, count_sentences, count_word_links, rank_both,
+    word_table, write_table, AlignmentNumbers, Extracted, PhraseTree, Ranks, ResidentSummary,
+    Vocabulary, Writing, ROOT,
 };
 use super::runs::RunInfo;
 use super::score::Discount;
@@ -727,8 +727,10 @@ pub(crate) fn extract_partitioned<W: Write>(
             max,
             x.alignments.len(),
         )?;
-        let (source_rank, source_nodes) = source_tree.ranks(&source_word_ranks);
-        let (target_rank, target_nodes) = target_tree.ranks(&target_word_ranks);
+        let ((source_rank, source_nodes), (target_rank, target_nodes)) = rank_both(
+            (&source_tree, &source_word_ranks),
+            (&target_tree, &target_word_ranks),
+        );
         x.source.tree = source_tree;
         x.target.tree = target_tree;
         let ranks = Ranks {

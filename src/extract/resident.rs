@@ -660,8 +660,10 @@ pub(super) struct Ranks {
 
 /// Step 2.
 fn rank(x: &Extracted) -> Ranks {
-    let (source_rank, source_nodes) = x.source.tree.ranks(&x.source.vocabulary.byte_ranks());
-    let (target_rank, target_nodes) = x.target.tree.ranks(&x.target.vocabulary.byte_ranks());
+    let ((source_rank, source_nodes), (target_rank, target_nodes)) = rank_both(
+        (&x.source.tree, &x.source.vocabulary.byte_ranks()),
+        (&x.target.tree, &x.target.vocabulary.byte_ranks()),
+    );
     Ranks {
         source_rank,
         source_nodes,
@@ -669,6 +671,22 @@ fn rank(x: &Extracted) -> Ranks {
         target_nodes,
         alignment_rank: alignment_ranks(&x.alignments),
     }
+}
+
+/// What [`PhraseTree::ranks`] gives: each node's rank, and the extracted nodes by rank.
+pub(super) type TreeRanks = (Vec<u32>, Vec<u32>);
+
+/// [`PhraseTree::ranks`] of a source and a target tree (each with its words' byte ranks), the
+/// two on two threads.
+pub(super) fn rank_both(
+    source: (&PhraseTree, &[u32]),
+    target: (&PhraseTree, &[u32]),
+) -> (TreeRanks, TreeRanks) {
+    std::thread::scope(|scope| {
+        let targets = scope.spawn(|| target.0.ranks(target.1));
+        let sources = source.0.ranks(source.1);
+        (sources, targets.join().expect("ranking thread panicked"))
+    })
 }
 
 /// Each alignment's position in byte order of its text, by id.
