@@ -121,6 +121,12 @@ impl Dir {
     fn new() -> Dir {
         Dir(tempfile::tempdir().unwrap())
     }
+    /// A fresh folder holding [`HARBOUR`] as `t.tsv`, and that file's path.
+    fn with_harbour() -> (Dir, String) {
+        let dir = Dir::new();
+        let input = dir.write("t.tsv", HARBOUR);
+        (dir, input)
+    }
     fn write(&self, name: &str, text: &str) -> String {
         s(&write(self.0.path(), name, text)).to_string()
     }
@@ -264,8 +270,7 @@ puerto\tharbor\t0.1\t0.9\t2\t20\t31\t21\n";
 
 #[test]
 fn filters_run_in_command_line_order() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     // significance first: "the rock" (1 of 1000, p = 42/1000) goes, then the lighthouse is best
     let a = prune_rows(&dir, &input, &["--significance", "10", "--top-k", "1"]);
     // top-k first keeps "the rock", which the significance test then removes
@@ -281,8 +286,7 @@ fn filters_run_in_command_line_order() {
 fn top_k_ties_go_to_the_target_first_in_byte_order() {
     // hand-worked: puerto's options rank port = harbour = the port (0.3) > harbor (0.1); with
     // k = 2 the tie at 0.3 is broken by byte order: "harbour" < "port" < "the port"
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     let got = prune_rows(&dir, &input, &["--top-k", "2", "--by", "p_t_given_s"]);
     assert_eq!(
         got,
@@ -293,32 +297,27 @@ fn top_k_ties_go_to_the_target_first_in_byte_order() {
             ("puerto", "harbour")
         ])
     );
-    // log-linear: ln p + ln lex: port ln .12, harbour ln .18, the port ln .06, harbor ln .09
-    let got = prune_rows(
-        &dir,
-        &input,
-        &["--top-k", "2", "--by", "p_t_given_s=1,lex_t_given_s=1"],
-    );
-    assert_eq!(
-        &got[2..],
-        &pairs(&[("puerto", "port"), ("puerto", "harbour")])[..]
-    );
-    // weights matter: with lex weighted 3, harbor (ln .1 + 3 ln .9) beats port (ln .3 + 3 ln .4)
-    let got = prune_rows(
-        &dir,
-        &input,
-        &["--top-k", "2", "--by", "p_t_given_s=1,lex_t_given_s=3"],
-    );
-    assert_eq!(
-        &got[2..],
-        &pairs(&[("puerto", "harbour"), ("puerto", "harbor")])[..]
-    );
+    for (by, kept) in [
+        // log-linear: ln p + ln lex: port ln .12, harbour ln .18, the port ln .06, harbor ln .09
+        (
+            "p_t_given_s=1,lex_t_given_s=1",
+            [("puerto", "port"), ("puerto", "harbour")],
+        ),
+        // weights matter: with lex weighted 3, harbor (ln .1 + 3 ln .9) beats port
+        // (ln .3 + 3 ln .4)
+        (
+            "p_t_given_s=1,lex_t_given_s=3",
+            [("puerto", "harbour"), ("puerto", "harbor")],
+        ),
+    ] {
+        let got = prune_rows(&dir, &input, &["--top-k", "2", "--by", by]);
+        assert_eq!(&got[2..], &pairs(&kept)[..], "--by {by}");
+    }
 }
 
 #[test]
 fn rankings_pair_with_top_k_filters_in_order() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     // first --top-k 3 by lex (drops "the port"), then --top-k 1 by p: harbour (tie with port,
     // byte order) for puerto
     let got = prune_rows(
@@ -372,8 +371,7 @@ fn compressed_input_and_output() {
 
 #[test]
 fn thresholds_are_inclusive_bounds_on_scores_and_counts() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     let got = prune_rows(
         &dir,
         &input,
@@ -404,8 +402,7 @@ fn thresholds_are_inclusive_bounds_on_scores_and_counts() {
 
 #[test]
 fn renormalize_only_when_asked() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     let out = dir.path("out.tsv");
     let run = baler(&[
         "prune",
@@ -518,8 +515,7 @@ fn unsorted_input_is_sorted_first_with_the_same_result() {
 
 #[test]
 fn stdin_input_and_stdout_output() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (_dir, input) = Dir::with_harbour();
     let run = crate::util::bin()
         .args(["prune", "-", "-o", "-", "-q", "--top-k", "1"])
         .stdin(std::fs::File::open(&input).unwrap())
@@ -688,8 +684,7 @@ fn sentence_counts_from_the_corpus() {
 
 #[test]
 fn packed_output_and_input_round_trip() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     let packed = dir.path("t.bale");
     let run = baler(&["prune", &input, "-o", &packed, "-q", "--significance", "10"]);
     assert!(
