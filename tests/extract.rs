@@ -9,7 +9,7 @@ use baler::extract::synthetic::SyntheticCorpus;
 use baler::table::{CountColumn, TsvReader};
 use proptest::prelude::*;
 
-use crate::util::{bin as baler, repo, write};
+use crate::util::{bin as baler, corpus_options, repo, write};
 
 fn fast_pairs(ns: usize, nt: usize, links: &[(u16, u16)], limits: PhraseLimits) -> Vec<SpanPair> {
     let mut found = Vec::new();
@@ -270,12 +270,7 @@ fn extract_files(
     baler()
         .arg("extract")
         .args(args)
-        .arg("--source")
-        .arg(source)
-        .arg("--target")
-        .arg(target)
-        .arg("--alignment")
-        .arg(alignment)
+        .args(corpus_options(source, target, alignment))
         .arg("-o")
         .arg(out)
         .output()

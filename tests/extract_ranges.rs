@@ -10,7 +10,7 @@ use std::process::Output;
 use baler::extract::corpus::CorpusPaths;
 use baler::extract::synthetic::SyntheticCorpus;
 
-use crate::util::{baler_ok, command, entries, s, write};
+use crate::util::{baler_ok, command, corpus_options, entries, s, write};
 
 fn corpus(dir: &Path, n: u64) -> CorpusPaths {
     SyntheticCorpus {
@@ -23,15 +23,12 @@ fn corpus(dir: &Path, n: u64) -> CorpusPaths {
     .unwrap()
 }
 
+/// [`corpus_options`] naming the files of `paths`, as owned strings.
 fn corpus_args(paths: &CorpusPaths) -> Vec<String> {
-    vec![
-        "--source".into(),
-        s(&paths.source).into(),
-        "--target".into(),
-        s(&paths.target).into(),
-        "--alignment".into(),
-        s(paths.alignment.as_ref().unwrap()).into(),
-    ]
+    let alignment = paths.alignment.as_ref().unwrap();
+    corpus_options(&paths.source, &paths.target, alignment)
+        .map(String::from)
+        .to_vec()
 }
 
 /// Runs `baler extract shard -q --source S --target T --alignment A --lines LINES EXTRA... -o
@@ -39,19 +36,9 @@ fn corpus_args(paths: &CorpusPaths) -> Vec<String> {
 fn shard_lines(files: [&Path; 3], lines: &str, extra: &[&str], out: &Path) -> Output {
     let [source, target, alignment] = files;
     let args = [
-        &[
-            "extract",
-            "shard",
-            "-q",
-            "--source",
-            s(source),
-            "--target",
-            s(target),
-            "--alignment",
-            s(alignment),
-            "--lines",
-            lines,
-        ][..],
+        &["extract", "shard", "-q"][..],
+        &corpus_options(source, target, alignment),
+        &["--lines", lines],
         extra,
         &["-o", s(out)],
     ]

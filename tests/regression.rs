@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 use std::process::{Child, Stdio};
 use std::time::{Duration, Instant};
 
-use crate::util::{baler, baler_ok, command, entries, repo, s, stderr, write};
+use crate::util::{baler, baler_ok, command, corpus_options, entries, repo, s, stderr, write};
 
 /// A small table whose sources are out of byte order.
 const UNSORTED: &str = "source\ttarget\tp_t_given_s\n\
@@ -35,6 +35,11 @@ fn synthetic_table(name: &str, pairs: u32) -> (tempfile::TempDir, PathBuf) {
     let path = dir.path().join(name);
     baler_ok(&["synth", "--pairs", &pairs.to_string(), "-o", s(&path)]);
     (dir, path)
+}
+
+/// Runs `baler COMMAND INPUT -o OUT -q OPTIONS...`, asserting success.
+fn run_quiet(command: &str, input: &Path, out: &Path, options: &[&str]) {
+    baler_ok(&[&[command, s(input), "-o", s(out), "-q"][..], options].concat());
 }
 
 /// A fresh temporary folder holding [`COUNTED`] as `c.tsv`, and that file's path.
@@ -231,19 +236,19 @@ fn defect_03_closed_pipe_is_success_and_full_disk_an_error() {
 fn defect_06_pruned_with_records_everything_prune_did() {
     let (dir, input) = counted_table();
     let out = dir.path().join("p.tsv");
-    baler_ok(&[
+    run_quiet(
         "prune",
-        s(&input),
-        "-o",
-        s(&out),
-        "-q",
-        "--significance",
-        "3",
-        "--phrase-counts",
-        "--annotate",
-        "--renormalize",
-        "p_t_given_s",
-    ]);
+        &input,
+        &out,
+        &[
+            "--significance",
+            "3",
+            "--phrase-counts",
+            "--annotate",
+            "--renormalize",
+            "p_t_given_s",
+        ],
+    );
     let text = std::fs::read_to_string(&out).unwrap();
     let line = text
         .lines()
@@ -307,17 +312,12 @@ fn provenance(report: &serde_json::Value, key: &str) -> Option<String> {
 fn defect_07_prune_keeps_the_input_tables_packing_and_provenance() {
     let (dir, tsv) = counted_table();
     let f32 = dir.path().join("f32.bale");
-    baler_ok(&[
+    run_quiet(
         "pack",
-        s(&tsv),
-        "-o",
-        s(&f32),
-        "-q",
-        "--bits",
-        "f32",
-        "--block-sources",
-        "4",
-    ]);
+        &tsv,
+        &f32,
+        &["--bits", "f32", "--block-sources", "4"],
+    );
     let pruned = dir.path().join("pruned.bale");
     baler_ok(&["prune", s(&f32), "-o", s(&pruned), "-q", "--top-k", "1"]);
     let report = inspect_json(&pruned);
@@ -332,17 +332,7 @@ fn defect_07_prune_keeps_the_input_tables_packing_and_provenance() {
     assert_eq!(provenance(&report, "previous.bits").as_deref(), Some("f32"));
     // the pack settings are accepted where a .bale is written, and win
     let six = dir.path().join("six.bale");
-    baler_ok(&[
-        "prune",
-        s(&f32),
-        "-o",
-        s(&six),
-        "-q",
-        "--top-k",
-        "1",
-        "--bits",
-        "6",
-    ]);
+    run_quiet("prune", &f32, &six, &["--top-k", "1", "--bits", "6"]);
     let report = inspect_json(&six);
     for q in report["meta"]["quantization"].as_array().unwrap() {
         assert_eq!(
@@ -463,15 +453,7 @@ fn defect_12_pack_repacks_a_packed_table() {
     let first = dir.path().join("a.bale");
     let second = dir.path().join("b.bale");
     baler_ok(&["pack", s(&tsv), "-o", s(&first), "-q", "--bits", "f32"]);
-    baler_ok(&[
-        "pack",
-        s(&first),
-        "-o",
-        s(&second),
-        "-q",
-        "--block-sources",
-        "2",
-    ]);
+    run_quiet("pack", &first, &second, &["--block-sources", "2"]);
     assert_eq!(
         baler_ok(&["dump", s(&first)]),
         baler_ok(&["dump", s(&second)])
@@ -642,20 +624,12 @@ fn defect_09_extract_refuses_an_output_that_is_an_input() {
     let [src, tgt, align] = harbour_corpus(dir.path());
     let other_name = dir.path().join("links.txt");
     std::fs::hard_link(&align, &other_name).unwrap();
-    let corpus = [
-        "--source",
-        s(&src),
-        "--target",
-        s(&tgt),
-        "--alignment",
-        s(&align),
-        "-q",
-    ];
+    let corpus = [&corpus_options(&src, &tgt, &align)[..], &["-q"]].concat();
     for (step, output) in [(None, &other_name), (Some("shard"), &src)] {
         let before = std::fs::read(output).unwrap();
         let mut args = vec!["extract"];
         args.extend(step);
-        args.extend(corpus);
+        args.extend(&corpus);
         args.extend(["-o", s(output)]);
         let out = baler(&args, None);
         assert_eq!(out.status.code(), Some(2), "{args:?}");
@@ -665,7 +639,7 @@ fn defect_09_extract_refuses_an_output_that_is_an_input() {
     // the reduce steps: a merged table written over its own count run
     let run = dir.path().join("h.run");
     let mut args = vec!["extract", "shard"];
-    args.extend(corpus);
+    args.extend(&corpus);
     args.extend(["-o", s(&run)]);
     baler_ok(&args);
     let before = std::fs::read(&run).unwrap();
@@ -776,14 +750,7 @@ fn sentence_counts_of_extract_and_prune_agree() {
         "c.align",
         "0-0 1-1\n0-0 1-1\n\n0-0 1-1 2-2 3-3 4-4\n0-0 1-1\n",
     );
-    let corpus = [
-        "--source",
-        s(&src),
-        "--target",
-        s(&tgt),
-        "--alignment",
-        s(&align),
-    ];
+    let corpus = corpus_options(&src, &tgt, &align);
     let (full, run, merged, pruned) = (
         dir.path().join("full.tsv"),
         dir.path().join("c.run"),
@@ -835,14 +802,7 @@ fn sentence_counts_of_extract_and_prune_agree() {
 fn extract_takes_the_shared_resource_flags() {
     let dir = tempdir();
     let [src, tgt, align] = harbour_corpus(dir.path());
-    let corpus = [
-        "--source",
-        s(&src),
-        "--target",
-        s(&tgt),
-        "--alignment",
-        s(&align),
-    ];
+    let corpus = corpus_options(&src, &tgt, &align);
     let mut outputs = Vec::new();
     for threads in ["0", "1"] {
         let out = dir.path().join(format!("t{threads}.tsv"));
