@@ -115,6 +115,12 @@ fn baler(args: &[&str]) -> std::process::Output {
     crate::util::baler_in(args, None)
 }
 
+/// Runs `baler prune INPUT -o OUT OPTIONS...`, standard input closed; returns the process
+/// output (success not asserted).
+fn prune(input: &str, out: &str, options: &[&str]) -> std::process::Output {
+    baler(&[&["prune", input, "-o", out][..], options].concat())
+}
+
 struct Dir(tempfile::TempDir);
 
 impl Dir {
@@ -141,9 +147,7 @@ impl Dir {
 /// Runs `baler prune INPUT -o out.tsv ARGS...`, asserts success, returns (source, target) rows.
 fn prune_rows(dir: &Dir, input: &str, args: &[&str]) -> Vec<(String, String)> {
     let out = dir.path("out.tsv");
-    let mut all = vec!["prune", input, "-o", &out, "-q"];
-    all.extend_from_slice(args);
-    let run = baler(&all);
+    let run = prune(input, &out, &[&["-q"][..], args].concat());
     assert!(
         run.status.success(),
         "{}",
@@ -216,17 +220,17 @@ fn annotation_and_stats_report_what_was_removed() {
     let input = dir.write("t.tsv", &small_count_table(10_000_000));
     let stats = dir.path("stats.json");
     let out = dir.path("out.tsv");
-    let run = baler(&[
-        "prune",
+    let run = prune(
         &input,
-        "-o",
         &out,
-        "--significance",
-        "alpha+epsilon",
-        "--annotate",
-        "--stats",
-        &stats,
-    ]);
+        &[
+            "--significance",
+            "alpha+epsilon",
+            "--annotate",
+            "--stats",
+            &stats,
+        ],
+    );
     assert!(run.status.success());
     let text = dir.read("out.tsv");
     assert!(text.contains("source\ttarget\tneg_ln_p\tcooc\tdf_source\tdf_target\n"));
@@ -339,9 +343,11 @@ fn rankings_pair_with_top_k_filters_in_order() {
         pairs(&[("el faro", "the rock"), ("puerto", "harbour")])
     );
     let out = dir.path("x.tsv");
-    let run = baler(&[
-        "prune", &input, "-o", &out, "--top-k", "1", "--by", "count", "--by", "cooc",
-    ]);
+    let run = prune(
+        &input,
+        &out,
+        &["--top-k", "1", "--by", "count", "--by", "cooc"],
+    );
     assert_eq!(run.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&run.stderr).contains("2 rankings for 1 --top-k"));
 }
@@ -358,7 +364,7 @@ fn compressed_input_and_output() {
     enc.write_all(HARBOUR.as_bytes()).unwrap();
     enc.finish().unwrap();
     let out = dir.path("out.tsv.zst");
-    let run = baler(&["prune", &gz, "-o", &out, "-q", "--min", "count=40"]);
+    let run = prune(&gz, &out, &["-q", "--min", "count=40"]);
     assert!(
         run.status.success(),
         "{}",
@@ -388,14 +394,7 @@ fn thresholds_are_inclusive_bounds_on_scores_and_counts() {
     );
     let got = prune_rows(&dir, &input, &["--min", "count=40"]);
     assert_eq!(got, pairs(&[("el faro", "the lighthouse")]));
-    let run = baler(&[
-        "prune",
-        &input,
-        "-o",
-        &dir.path("x.tsv"),
-        "--min",
-        "p_s_given_t=0.1",
-    ]);
+    let run = prune(&input, &dir.path("x.tsv"), &["--min", "p_s_given_t=0.1"]);
     assert_eq!(run.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&run.stderr).contains("no column \"p_s_given_t\""));
 }
@@ -404,17 +403,11 @@ fn thresholds_are_inclusive_bounds_on_scores_and_counts() {
 fn renormalize_only_when_asked() {
     let (dir, input) = Dir::with_harbour();
     let out = dir.path("out.tsv");
-    let run = baler(&[
-        "prune",
+    let run = prune(
         &input,
-        "-o",
         &out,
-        "-q",
-        "--top-k",
-        "1",
-        "--renormalize",
-        "p_t_given_s",
-    ]);
+        &["-q", "--top-k", "1", "--renormalize", "p_t_given_s"],
+    );
     assert!(run.status.success());
     let text = dir.read("out.tsv");
     assert!(
@@ -539,7 +532,7 @@ fn impossible_counts_are_an_error_naming_file_and_line() {
     );
     let input = dir.write("bad.tsv", &bad);
     let out = dir.path("out.tsv");
-    let run = baler(&["prune", &input, "-o", &out, "--significance", "10"]);
+    let run = prune(&input, &out, &["--significance", "10"]);
     assert_eq!(run.status.code(), Some(2));
     let err = String::from_utf8_lossy(&run.stderr);
     assert!(
@@ -558,23 +551,18 @@ fn missing_sentence_counts_need_the_corpus_or_an_explicit_fallback() {
         el\tthe\t20\t20\t20\n";
     let input = dir.write("t.tsv", table);
     let out = dir.path("out.tsv");
-    let run = baler(&["prune", &input, "-o", &out, "--significance", "3"]);
+    let run = prune(&input, &out, &["--significance", "3"]);
     assert_eq!(run.status.code(), Some(2));
     let err = String::from_utf8_lossy(&run.stderr);
     assert!(
         err.contains("--phrase-counts") && err.contains("--source/--target"),
         "{err}"
     );
-    let run = baler(&[
-        "prune",
+    let run = prune(
         &input,
-        "-o",
         &out,
-        "--significance",
-        "3",
-        "--phrase-counts",
-        "--annotate",
-    ]);
+        &["--significance", "3", "--phrase-counts", "--annotate"],
+    );
     assert!(run.status.success());
     let err = String::from_utf8_lossy(&run.stderr);
     assert!(
@@ -617,18 +605,11 @@ fn sentence_counts_from_the_corpus() {
          el puerto\tthe port\t1\n",
     );
     let out = dir.path("out.tsv");
-    let run = baler(&[
-        "prune",
+    let run = prune(
         &table,
-        "-o",
         &out,
-        "-q",
-        "--annotate",
-        "--source",
-        &source,
-        "--target",
-        &target,
-    ]);
+        &["-q", "--annotate", "--source", &source, "--target", &target],
+    );
     assert!(
         run.status.success(),
         "{}",
@@ -667,17 +648,11 @@ fn sentence_counts_from_the_corpus() {
     }
     // mismatched corpus sides are an error naming the shorter one
     let short = dir.write("short.txt", "the lighthouse\n");
-    let run = baler(&[
-        "prune",
+    let run = prune(
         &table,
-        "-o",
         &out,
-        "--annotate",
-        "--source",
-        &source,
-        "--target",
-        &short,
-    ]);
+        &["--annotate", "--source", &source, "--target", &short],
+    );
     assert_eq!(run.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&run.stderr).contains("short.txt:2: ends after 1 lines"));
 }
@@ -686,7 +661,7 @@ fn sentence_counts_from_the_corpus() {
 fn packed_output_and_input_round_trip() {
     let (dir, input) = Dir::with_harbour();
     let packed = dir.path("t.bale");
-    let run = baler(&["prune", &input, "-o", &packed, "-q", "--significance", "10"]);
+    let run = prune(&input, &packed, &["-q", "--significance", "10"]);
     assert!(
         run.status.success(),
         "{}",
