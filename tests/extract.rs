@@ -9,7 +9,7 @@ use baler::extract::synthetic::SyntheticCorpus;
 use baler::table::{CountColumn, TsvReader};
 use proptest::prelude::*;
 
-use crate::util::{bin as baler, repo, write};
+use crate::util::{bin as baler, corpus_options, repo, write};
 
 fn fast_pairs(ns: usize, nt: usize, links: &[(u16, u16)], limits: PhraseLimits) -> Vec<SpanPair> {
     let mut found = Vec::new();
@@ -229,17 +229,7 @@ fn lexical_weights_match_hand_computation() {
     );
     let ali = write(dir.path(), "a", "0-2 1-1 3-2\n0-0 1-3 2-2\n0-1 1-2\n");
     let out = dir.path().join("table.tsv");
-    let status = baler()
-        .args(["extract", "-q", "--source"])
-        .arg(&src)
-        .arg("--target")
-        .arg(&tgt)
-        .arg("--alignment")
-        .arg(&ali)
-        .arg("-o")
-        .arg(&out)
-        .status()
-        .unwrap();
+    let status = extract_files(&["-q"], &src, &tgt, &ali, &out).status;
     assert!(status.success());
     let table = read_table(&out);
     let row = table
@@ -268,19 +258,33 @@ fn lexical_weights_match_hand_computation() {
     assert_eq!(score(&table, row, "lex_s_given_t"), 1.0);
 }
 
-fn run_extract(paths: &CorpusPaths, out: &Path, extra: &[&str]) -> std::process::Output {
-    let o = baler()
-        .args(["extract", "--source"])
-        .arg(&paths.source)
-        .arg("--target")
-        .arg(&paths.target)
-        .arg("--alignment")
-        .arg(paths.alignment.as_ref().unwrap())
+/// Runs `baler extract ARGS... --source SOURCE --target TARGET --alignment ALIGNMENT -o OUT`
+/// (`args` may start with a step such as `shard`); returns its output, success not asserted.
+fn extract_files(
+    args: &[&str],
+    source: &Path,
+    target: &Path,
+    alignment: &Path,
+    out: &Path,
+) -> std::process::Output {
+    baler()
+        .arg("extract")
+        .args(args)
+        .args(corpus_options(source, target, alignment))
         .arg("-o")
         .arg(out)
-        .args(extra)
         .output()
-        .unwrap();
+        .unwrap()
+}
+
+fn run_extract(paths: &CorpusPaths, out: &Path, extra: &[&str]) -> std::process::Output {
+    let o = extract_files(
+        extra,
+        &paths.source,
+        &paths.target,
+        paths.alignment.as_ref().unwrap(),
+        out,
+    );
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     o
 }
@@ -294,6 +298,18 @@ fn small_corpus(dir: &Path, n: u64) -> CorpusPaths {
     }
     .write(dir, "harbour", "")
     .unwrap()
+}
+
+/// A fresh temporary folder holding [`small_corpus`] of 2000 sentence pairs and its extraction
+/// with one thread into `name` (compressed when `name` ends in `.zst`): the corpus and the
+/// bytes of that extraction, the reference other runs are compared with.
+fn corpus_and_one_thread_extraction(name: &str) -> (tempfile::TempDir, CorpusPaths, Vec<u8>) {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), 2000);
+    let reference = dir.path().join(name);
+    run_extract(&paths, &reference, &["-q", "--threads", "1"]);
+    let expected = std::fs::read(&reference).unwrap();
+    (dir, paths, expected)
 }
 
 /// Relative frequencies: p(t|s) sums to 1 over each source's options, p(s|t) over each
@@ -457,11 +473,7 @@ fn check_sentence_level_counts(extra: &[&str]) -> String {
 /// on the budget (zstd compresses on a worker thread of its own, whose count is fixed).
 #[test]
 fn compressed_output_is_identical_across_threads() {
-    let dir = tempfile::tempdir().unwrap();
-    let paths = small_corpus(dir.path(), 2000);
-    let reference = dir.path().join("one.tsv.zst");
-    run_extract(&paths, &reference, &["-q", "--threads", "1"]);
-    let expected = std::fs::read(&reference).unwrap();
+    let (dir, paths, expected) = corpus_and_one_thread_extraction("one.tsv.zst");
     for (name, extra) in [
         ("two.tsv.zst", vec!["-q", "--threads", "2"]),
         (
@@ -485,11 +497,7 @@ fn compressed_output_is_identical_across_threads() {
 /// shards.
 #[test]
 fn output_is_identical_across_threads_budgets_and_shards() {
-    let dir = tempfile::tempdir().unwrap();
-    let paths = small_corpus(dir.path(), 2000);
-    let reference = dir.path().join("one.tsv");
-    run_extract(&paths, &reference, &["-q", "--threads", "1"]);
-    let expected = std::fs::read(&reference).unwrap();
+    let (dir, paths, expected) = corpus_and_one_thread_extraction("one.tsv");
     for (name, extra) in [
         ("two.tsv", vec!["--threads", "2"]),
         ("three.tsv", vec!["--threads", "3", "--memory", "1M"]),
@@ -544,17 +552,7 @@ fn output_is_identical_across_threads_budgets_and_shards() {
         let t = write(dir.path(), &format!("t{k}"), &part(&files[1]));
         let a = write(dir.path(), &format!("a{k}"), &part(&files[2]));
         let run = dir.path().join(format!("shard{k}.run"));
-        let o = baler()
-            .args(["extract", "shard", "-q", "--source"])
-            .arg(&s)
-            .arg("--target")
-            .arg(&t)
-            .arg("--alignment")
-            .arg(&a)
-            .arg("-o")
-            .arg(&run)
-            .output()
-            .unwrap();
+        let o = extract_files(&["shard", "-q"], &s, &t, &a, &run);
         assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
         runs.push(run);
         shards.push((s, t));
@@ -621,18 +619,7 @@ fn expect_error(dir: &Path, src: &str, tgt: &str, ali: &str, extra: &[&str], nee
     let t = write(dir, "err.tgt", tgt);
     let a = write(dir, "err.align", ali);
     let out = dir.join("err.tsv");
-    let o = baler()
-        .args(["extract", "-q", "--source"])
-        .arg(&s)
-        .arg("--target")
-        .arg(&t)
-        .arg("--alignment")
-        .arg(&a)
-        .arg("-o")
-        .arg(&out)
-        .args(extra)
-        .output()
-        .unwrap();
+    let o = extract_files(&[&["-q"][..], extra].concat(), &s, &t, &a, &out);
     let stderr = String::from_utf8_lossy(&o.stderr);
     assert_eq!(o.status.code(), Some(2), "{stderr}");
     for n in needles {
@@ -689,17 +676,7 @@ fn skipped_sentence_pairs_are_counted_and_reversed_links_read() {
     let t = write(d, "t", "the pier\nthe quay\nw x y z\nthe crane\n");
     let a = write(d, "a", "0-0 1-1\n\n0-0\n1-1 0-0\n");
     let out = d.join("t.tsv");
-    let o = baler()
-        .args(["extract", "--max-sentence-length", "3", "--source"])
-        .arg(&s)
-        .arg("--target")
-        .arg(&t)
-        .arg("--alignment")
-        .arg(&a)
-        .arg("-o")
-        .arg(&out)
-        .output()
-        .unwrap();
+    let o = extract_files(&["--max-sentence-length", "3"], &s, &t, &a, &out);
     assert!(o.status.success());
     let stderr = String::from_utf8_lossy(&o.stderr);
     assert!(
@@ -714,24 +691,13 @@ fn skipped_sentence_pairs_are_counted_and_reversed_links_read() {
     let a2 = write(d, "a2", "1-1 0-0\n\n0-0\n0-1 1-0\n");
     let s2 = write(d, "s2", "el muelle\n\na b c d\ngrúa la\n");
     let out2 = d.join("t2.tsv");
-    let o = baler()
-        .args([
-            "extract",
-            "-q",
-            "--links-target-first",
-            "--max-sentence-length",
-            "3",
-            "--source",
-        ])
-        .arg(&s2)
-        .arg("--target")
-        .arg(&t)
-        .arg("--alignment")
-        .arg(&a2)
-        .arg("-o")
-        .arg(&out2)
-        .output()
-        .unwrap();
+    let o = extract_files(
+        &["-q", "--links-target-first", "--max-sentence-length", "3"],
+        &s2,
+        &t,
+        &a2,
+        &out2,
+    );
     assert!(o.status.success());
     let table2 = read_table(&out2);
     assert!(table2.rows.iter().any(|r| r.source == "grúa la"
@@ -780,18 +746,13 @@ fn shipped_demo_table_is_the_extraction_of_the_demo_corpus() {
     let root = repo("demo-data");
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("toolshed.tsv");
-    let run = baler()
-        .args(["extract", "--source"])
-        .arg(root.join("toolshed.en"))
-        .arg("--target")
-        .arg(root.join("toolshed.es"))
-        .arg("--alignment")
-        .arg(root.join("toolshed.align"))
-        .arg("-o")
-        .arg(&out)
-        .arg("--quiet")
-        .output()
-        .unwrap();
+    let run = extract_files(
+        &["--quiet"],
+        &root.join("toolshed.en"),
+        &root.join("toolshed.es"),
+        &root.join("toolshed.align"),
+        &out,
+    );
     assert!(
         run.status.success(),
         "{}",
@@ -851,23 +812,36 @@ fn extract_step(args: &[&str], paths: &[&Path]) -> std::process::Output {
 /// `extract shard` over `paths` into `dir/a.run`, asserted to succeed.
 fn shard_run(dir: &Path, paths: &CorpusPaths) -> PathBuf {
     let run = dir.join("a.run");
-    let mut args = vec!["shard", "-q", "--source"]
-        .into_iter()
-        .map(String::from)
-        .collect::<Vec<_>>();
-    args.extend([
-        paths.source.display().to_string(),
-        "--target".into(),
-        paths.target.display().to_string(),
-        "--alignment".into(),
-        paths.alignment.as_ref().unwrap().display().to_string(),
-        "-o".into(),
-        run.display().to_string(),
-    ]);
-    let args: Vec<&str> = args.iter().map(String::as_str).collect();
-    let o = extract_step(&args, &[]);
+    let o = extract_files(
+        &["shard", "-q"],
+        &paths.source,
+        &paths.target,
+        paths.alignment.as_ref().unwrap(),
+        &run,
+    );
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     run
+}
+
+/// A fresh temporary folder holding [`small_corpus`] of `n` sentence pairs and its
+/// [`shard_run`] `a.run`: the corpus and the run's path.
+fn sharded_small_corpus(n: u64) -> (tempfile::TempDir, CorpusPaths, PathBuf) {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = small_corpus(dir.path(), n);
+    let run = shard_run(dir.path(), &paths);
+    (dir, paths, run)
+}
+
+/// Asserts that the step whose output is `o` failed with an error containing `needle` and
+/// left nothing at its output path `out`.
+fn assert_refused_without_output(o: &std::process::Output, needle: &str, out: &Path) {
+    assert!(!o.status.success());
+    assert!(
+        String::from_utf8_lossy(&o.stderr).contains(needle),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(!out.exists());
 }
 
 /// The merged table, its index and the tally of one shard: `merge run -o dir/m.tsv --index
@@ -909,30 +883,20 @@ fn merge_and_tally(dir: &Path, paths: &CorpusPaths, run: &Path) -> Reduced {
 /// the identity of its corpus shard, and a shard given twice is refused.
 #[test]
 fn defect5_merge_refuses_a_repeated_run() {
-    let dir = tempfile::tempdir().unwrap();
-    let paths = small_corpus(dir.path(), 50);
-    let run = shard_run(dir.path(), &paths);
+    let (dir, _paths, run) = sharded_small_corpus(50);
     let merged = dir.path().join("m.tsv");
     let o = extract_step(
         &["merge", "-q", "-o", merged.to_str().unwrap()],
         &[&run, &run],
     );
-    assert!(!o.status.success());
-    assert!(
-        String::from_utf8_lossy(&o.stderr).contains("repeats corpus shard"),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
-    assert!(!merged.exists());
+    assert_refused_without_output(&o, "repeats corpus shard", &merged);
 }
 
 /// Defect 5 of the reliability review: `attach` accepted the same tally twice (rows with
 /// count 2 and cooc 0). A tally records its shard's identity, and a repeat is refused.
 #[test]
 fn defect5_attach_refuses_a_repeated_tally() {
-    let dir = tempfile::tempdir().unwrap();
-    let paths = small_corpus(dir.path(), 50);
-    let run = shard_run(dir.path(), &paths);
+    let (dir, paths, run) = sharded_small_corpus(50);
     let Reduced { table, tally, .. } = merge_and_tally(dir.path(), &paths, &run);
     let out = dir.path().join("final.tsv");
     let o = extract_step(
@@ -945,13 +909,7 @@ fn defect5_attach_refuses_a_repeated_tally() {
         ],
         &[&tally, &tally],
     );
-    assert!(!o.status.success());
-    assert!(
-        String::from_utf8_lossy(&o.stderr).contains("counts the same corpus shard"),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
-    assert!(!out.exists());
+    assert_refused_without_output(&o, "counts the same corpus shard", &out);
 }
 
 /// Defect 4 of the reliability review: `extract tally --index <damaged index>` panicked or
@@ -959,13 +917,11 @@ fn defect5_attach_refuses_a_repeated_tally() {
 /// checksum verified on read: each damaged copy is a clear error (exit 2), never a panic.
 #[test]
 fn defect4_damaged_intermediates_are_errors() {
-    let dir = tempfile::tempdir().unwrap();
-    let paths = small_corpus(dir.path(), 200);
+    let (dir, paths, run) = sharded_small_corpus(200);
     let (s, t) = (
         paths.source.to_str().unwrap(),
         paths.target.to_str().unwrap(),
     );
-    let run = shard_run(dir.path(), &paths);
     let Reduced {
         table,
         index,

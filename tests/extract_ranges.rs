@@ -5,11 +5,12 @@
 //! checked against worked examples and reference implementations in tests/extract.rs).
 
 use std::path::{Path, PathBuf};
+use std::process::Output;
 
 use baler::extract::corpus::CorpusPaths;
 use baler::extract::synthetic::SyntheticCorpus;
 
-use crate::util::{baler_ok, command, entries, s, write};
+use crate::util::{baler_ok, command, corpus_options, entries, s, write};
 
 fn corpus(dir: &Path, n: u64) -> CorpusPaths {
     SyntheticCorpus {
@@ -22,15 +23,27 @@ fn corpus(dir: &Path, n: u64) -> CorpusPaths {
     .unwrap()
 }
 
+/// [`corpus_options`] naming the files of `paths`, as owned strings.
 fn corpus_args(paths: &CorpusPaths) -> Vec<String> {
-    vec![
-        "--source".into(),
-        s(&paths.source).into(),
-        "--target".into(),
-        s(&paths.target).into(),
-        "--alignment".into(),
-        s(paths.alignment.as_ref().unwrap()).into(),
+    let alignment = paths.alignment.as_ref().unwrap();
+    corpus_options(&paths.source, &paths.target, alignment)
+        .map(String::from)
+        .to_vec()
+}
+
+/// Runs `baler extract shard -q --source S --target T --alignment A --lines LINES EXTRA... -o
+/// OUT` over the files `[S, T, A]`; returns the process output, success not asserted.
+fn shard_lines(files: [&Path; 3], lines: &str, extra: &[&str], out: &Path) -> Output {
+    let [source, target, alignment] = files;
+    let args = [
+        &["extract", "shard", "-q"][..],
+        &corpus_options(source, target, alignment),
+        &["--lines", lines],
+        extra,
+        &["-o", s(out)],
     ]
+    .concat();
+    command(&args).output().unwrap()
 }
 
 fn run(args: &[String]) -> String {
@@ -163,45 +176,38 @@ fn ranges_concatenated_are_the_one_machine_table() {
     }
 }
 
-#[test]
-fn a_partition_reports_the_corpus_file_and_its_own_line() {
-    let dir = tempfile::tempdir().unwrap();
-    let paths = corpus(dir.path(), 60);
-    let alignment = paths.alignment.clone().unwrap();
-    let text = std::fs::read_to_string(&alignment).unwrap();
+/// Writes `dir/quay.bad.align`, a copy of the alignment file `alignment` whose line `number`
+/// (from 1) is replaced by `bad`; returns its path.
+fn alignment_with_bad_line(dir: &Path, alignment: &Path, number: usize, bad: &str) -> PathBuf {
+    let text = std::fs::read_to_string(alignment).unwrap();
     let broken: String = text
         .lines()
         .enumerate()
         .map(|(i, l)| {
-            if i + 1 == 42 {
-                "0-0 4x2\n".to_string()
+            if i + 1 == number {
+                format!("{bad}\n")
             } else {
                 format!("{l}\n")
             }
         })
         .collect();
-    let bad = write(dir.path(), "quay.bad.align", &broken);
+    write(dir, "quay.bad.align", &broken)
+}
+
+#[test]
+fn a_partition_reports_the_corpus_file_and_its_own_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let paths = corpus(dir.path(), 60);
+    let alignment = paths.alignment.clone().unwrap();
+    let bad = alignment_with_bad_line(dir.path(), &alignment, 42, "0-0 4x2");
     let keys = write(dir.path(), "keys", "m\n");
     let shard = |lines: &str| {
-        command(&[
-            "extract",
-            "shard",
-            "-q",
-            "--source",
-            s(&paths.source),
-            "--target",
-            s(&paths.target),
-            "--alignment",
-            s(&bad),
-            "--lines",
+        shard_lines(
+            [&paths.source, &paths.target, &bad],
             lines,
-            "--split-keys",
-            s(&keys),
-            "-o",
-            s(&dir.path().join("part")),
-        ])
-        .output()
-        .unwrap()
+            &["--split-keys", s(&keys)],
+            &dir.path().join("part"),
+        )
     };
     // The partition holding line 42 names the file and line 42, not its 12th line.
     let o = shard("31-45");
@@ -232,23 +238,12 @@ fn a_partition_reports_the_corpus_file_and_its_own_line() {
             .map(|l| format!("{l}\n"))
             .collect::<String>(),
     );
-    let o = command(&[
-        "extract",
-        "shard",
-        "-q",
-        "--source",
-        s(&paths.source),
-        "--target",
-        s(&short),
-        "--alignment",
-        s(&alignment),
-        "--lines",
+    let o = shard_lines(
+        [&paths.source, &short, &alignment],
         "31-",
-        "-o",
-        s(&dir.path().join("short.run")),
-    ])
-    .output()
-    .unwrap();
+        &[],
+        &dir.path().join("short.run"),
+    );
     assert_eq!(o.status.code(), Some(2));
     let stderr = String::from_utf8_lossy(&o.stderr);
     assert!(stderr.contains(":60: line counts differ"), "{stderr}");
@@ -338,15 +333,7 @@ fn start_bytes_skip_the_reading_not_the_line_numbers() {
         alignment.as_path(),
     ];
     // The same partition read by seeking and by passing over the lines: the same run.
-    let shard = |out: &str, extra: &[&str]| {
-        let mut args: Vec<String> = vec!["extract".into(), "shard".into(), "-q".into()];
-        args.extend(corpus_args(&paths));
-        args.extend(["--lines".into(), "41-80".into()]);
-        args.extend(extra.iter().map(|e| e.to_string()));
-        args.extend(["-o".into(), s(&dir.path().join(out)).into()]);
-        let refs: Vec<&str> = args.iter().map(String::as_str).collect();
-        command(&refs).output().unwrap()
-    };
+    let shard = |out: &str, extra: &[&str]| shard_lines(all, "41-80", extra, &dir.path().join(out));
     assert!(shard("passed.run", &[]).status.success());
     let seek = offsets(&all, 41);
     let o = shard("sought.run", &["--start-bytes", &seek]);
@@ -399,36 +386,14 @@ fn start_bytes_skip_the_reading_not_the_line_numbers() {
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("alignment file's offset"));
     // Errors keep the files' own line numbers when seeking.
-    let text = std::fs::read_to_string(&alignment).unwrap();
-    let broken: String = text
-        .lines()
-        .enumerate()
-        .map(|(i, l)| match i + 1 {
-            57 => "1-1 x\n".to_string(),
-            _ => format!("{l}\n"),
-        })
-        .collect();
-    let bad = write(dir.path(), "quay.bad.align", &broken);
+    let bad = alignment_with_bad_line(dir.path(), &alignment, 57, "1-1 x");
     let bad_seek = offsets(&[&paths.source, &paths.target, &bad], 41);
-    let o = command(&[
-        "extract",
-        "shard",
-        "-q",
-        "--source",
-        s(&paths.source),
-        "--target",
-        s(&paths.target),
-        "--alignment",
-        s(&bad),
-        "--lines",
+    let o = shard_lines(
+        [&paths.source, &paths.target, &bad],
         "41-80",
-        "--start-bytes",
-        &bad_seek,
-        "-o",
-        s(&dir.path().join("bad2.run")),
-    ])
-    .output()
-    .unwrap();
+        &["--start-bytes", &bad_seek],
+        &dir.path().join("bad2.run"),
+    );
     assert_eq!(o.status.code(), Some(2));
     let stderr = String::from_utf8_lossy(&o.stderr);
     assert!(

@@ -115,11 +115,23 @@ fn baler(args: &[&str]) -> std::process::Output {
     crate::util::baler_in(args, None)
 }
 
+/// Runs `baler prune INPUT -o OUT OPTIONS...`, standard input closed; returns the process
+/// output (success not asserted).
+fn prune(input: &str, out: &str, options: &[&str]) -> std::process::Output {
+    baler(&[&["prune", input, "-o", out][..], options].concat())
+}
+
 struct Dir(tempfile::TempDir);
 
 impl Dir {
     fn new() -> Dir {
         Dir(tempfile::tempdir().unwrap())
+    }
+    /// A fresh folder holding [`HARBOUR`] as `t.tsv`, and that file's path.
+    fn with_harbour() -> (Dir, String) {
+        let dir = Dir::new();
+        let input = dir.write("t.tsv", HARBOUR);
+        (dir, input)
     }
     fn write(&self, name: &str, text: &str) -> String {
         s(&write(self.0.path(), name, text)).to_string()
@@ -135,9 +147,7 @@ impl Dir {
 /// Runs `baler prune INPUT -o out.tsv ARGS...`, asserts success, returns (source, target) rows.
 fn prune_rows(dir: &Dir, input: &str, args: &[&str]) -> Vec<(String, String)> {
     let out = dir.path("out.tsv");
-    let mut all = vec!["prune", input, "-o", &out, "-q"];
-    all.extend_from_slice(args);
-    let run = baler(&all);
+    let run = prune(input, &out, &[&["-q"][..], args].concat());
     assert!(
         run.status.success(),
         "{}",
@@ -210,17 +220,17 @@ fn annotation_and_stats_report_what_was_removed() {
     let input = dir.write("t.tsv", &small_count_table(10_000_000));
     let stats = dir.path("stats.json");
     let out = dir.path("out.tsv");
-    let run = baler(&[
-        "prune",
+    let run = prune(
         &input,
-        "-o",
         &out,
-        "--significance",
-        "alpha+epsilon",
-        "--annotate",
-        "--stats",
-        &stats,
-    ]);
+        &[
+            "--significance",
+            "alpha+epsilon",
+            "--annotate",
+            "--stats",
+            &stats,
+        ],
+    );
     assert!(run.status.success());
     let text = dir.read("out.tsv");
     assert!(text.contains("source\ttarget\tneg_ln_p\tcooc\tdf_source\tdf_target\n"));
@@ -264,8 +274,7 @@ puerto\tharbor\t0.1\t0.9\t2\t20\t31\t21\n";
 
 #[test]
 fn filters_run_in_command_line_order() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     // significance first: "the rock" (1 of 1000, p = 42/1000) goes, then the lighthouse is best
     let a = prune_rows(&dir, &input, &["--significance", "10", "--top-k", "1"]);
     // top-k first keeps "the rock", which the significance test then removes
@@ -281,8 +290,7 @@ fn filters_run_in_command_line_order() {
 fn top_k_ties_go_to_the_target_first_in_byte_order() {
     // hand-worked: puerto's options rank port = harbour = the port (0.3) > harbor (0.1); with
     // k = 2 the tie at 0.3 is broken by byte order: "harbour" < "port" < "the port"
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     let got = prune_rows(&dir, &input, &["--top-k", "2", "--by", "p_t_given_s"]);
     assert_eq!(
         got,
@@ -293,32 +301,27 @@ fn top_k_ties_go_to_the_target_first_in_byte_order() {
             ("puerto", "harbour")
         ])
     );
-    // log-linear: ln p + ln lex: port ln .12, harbour ln .18, the port ln .06, harbor ln .09
-    let got = prune_rows(
-        &dir,
-        &input,
-        &["--top-k", "2", "--by", "p_t_given_s=1,lex_t_given_s=1"],
-    );
-    assert_eq!(
-        &got[2..],
-        &pairs(&[("puerto", "port"), ("puerto", "harbour")])[..]
-    );
-    // weights matter: with lex weighted 3, harbor (ln .1 + 3 ln .9) beats port (ln .3 + 3 ln .4)
-    let got = prune_rows(
-        &dir,
-        &input,
-        &["--top-k", "2", "--by", "p_t_given_s=1,lex_t_given_s=3"],
-    );
-    assert_eq!(
-        &got[2..],
-        &pairs(&[("puerto", "harbour"), ("puerto", "harbor")])[..]
-    );
+    for (by, kept) in [
+        // log-linear: ln p + ln lex: port ln .12, harbour ln .18, the port ln .06, harbor ln .09
+        (
+            "p_t_given_s=1,lex_t_given_s=1",
+            [("puerto", "port"), ("puerto", "harbour")],
+        ),
+        // weights matter: with lex weighted 3, harbor (ln .1 + 3 ln .9) beats port
+        // (ln .3 + 3 ln .4)
+        (
+            "p_t_given_s=1,lex_t_given_s=3",
+            [("puerto", "harbour"), ("puerto", "harbor")],
+        ),
+    ] {
+        let got = prune_rows(&dir, &input, &["--top-k", "2", "--by", by]);
+        assert_eq!(&got[2..], &pairs(&kept)[..], "--by {by}");
+    }
 }
 
 #[test]
 fn rankings_pair_with_top_k_filters_in_order() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     // first --top-k 3 by lex (drops "the port"), then --top-k 1 by p: harbour (tie with port,
     // byte order) for puerto
     let got = prune_rows(
@@ -340,9 +343,11 @@ fn rankings_pair_with_top_k_filters_in_order() {
         pairs(&[("el faro", "the rock"), ("puerto", "harbour")])
     );
     let out = dir.path("x.tsv");
-    let run = baler(&[
-        "prune", &input, "-o", &out, "--top-k", "1", "--by", "count", "--by", "cooc",
-    ]);
+    let run = prune(
+        &input,
+        &out,
+        &["--top-k", "1", "--by", "count", "--by", "cooc"],
+    );
     assert_eq!(run.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&run.stderr).contains("2 rankings for 1 --top-k"));
 }
@@ -359,7 +364,7 @@ fn compressed_input_and_output() {
     enc.write_all(HARBOUR.as_bytes()).unwrap();
     enc.finish().unwrap();
     let out = dir.path("out.tsv.zst");
-    let run = baler(&["prune", &gz, "-o", &out, "-q", "--min", "count=40"]);
+    let run = prune(&gz, &out, &["-q", "--min", "count=40"]);
     assert!(
         run.status.success(),
         "{}",
@@ -372,8 +377,7 @@ fn compressed_input_and_output() {
 
 #[test]
 fn thresholds_are_inclusive_bounds_on_scores_and_counts() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     let got = prune_rows(
         &dir,
         &input,
@@ -390,34 +394,20 @@ fn thresholds_are_inclusive_bounds_on_scores_and_counts() {
     );
     let got = prune_rows(&dir, &input, &["--min", "count=40"]);
     assert_eq!(got, pairs(&[("el faro", "the lighthouse")]));
-    let run = baler(&[
-        "prune",
-        &input,
-        "-o",
-        &dir.path("x.tsv"),
-        "--min",
-        "p_s_given_t=0.1",
-    ]);
+    let run = prune(&input, &dir.path("x.tsv"), &["--min", "p_s_given_t=0.1"]);
     assert_eq!(run.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&run.stderr).contains("no column \"p_s_given_t\""));
 }
 
 #[test]
 fn renormalize_only_when_asked() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     let out = dir.path("out.tsv");
-    let run = baler(&[
-        "prune",
+    let run = prune(
         &input,
-        "-o",
         &out,
-        "-q",
-        "--top-k",
-        "1",
-        "--renormalize",
-        "p_t_given_s",
-    ]);
+        &["-q", "--top-k", "1", "--renormalize", "p_t_given_s"],
+    );
     assert!(run.status.success());
     let text = dir.read("out.tsv");
     assert!(
@@ -518,8 +508,7 @@ fn unsorted_input_is_sorted_first_with_the_same_result() {
 
 #[test]
 fn stdin_input_and_stdout_output() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (_dir, input) = Dir::with_harbour();
     let run = crate::util::bin()
         .args(["prune", "-", "-o", "-", "-q", "--top-k", "1"])
         .stdin(std::fs::File::open(&input).unwrap())
@@ -543,7 +532,7 @@ fn impossible_counts_are_an_error_naming_file_and_line() {
     );
     let input = dir.write("bad.tsv", &bad);
     let out = dir.path("out.tsv");
-    let run = baler(&["prune", &input, "-o", &out, "--significance", "10"]);
+    let run = prune(&input, &out, &["--significance", "10"]);
     assert_eq!(run.status.code(), Some(2));
     let err = String::from_utf8_lossy(&run.stderr);
     assert!(
@@ -562,23 +551,18 @@ fn missing_sentence_counts_need_the_corpus_or_an_explicit_fallback() {
         el\tthe\t20\t20\t20\n";
     let input = dir.write("t.tsv", table);
     let out = dir.path("out.tsv");
-    let run = baler(&["prune", &input, "-o", &out, "--significance", "3"]);
+    let run = prune(&input, &out, &["--significance", "3"]);
     assert_eq!(run.status.code(), Some(2));
     let err = String::from_utf8_lossy(&run.stderr);
     assert!(
         err.contains("--phrase-counts") && err.contains("--source/--target"),
         "{err}"
     );
-    let run = baler(&[
-        "prune",
+    let run = prune(
         &input,
-        "-o",
         &out,
-        "--significance",
-        "3",
-        "--phrase-counts",
-        "--annotate",
-    ]);
+        &["--significance", "3", "--phrase-counts", "--annotate"],
+    );
     assert!(run.status.success());
     let err = String::from_utf8_lossy(&run.stderr);
     assert!(
@@ -621,18 +605,11 @@ fn sentence_counts_from_the_corpus() {
          el puerto\tthe port\t1\n",
     );
     let out = dir.path("out.tsv");
-    let run = baler(&[
-        "prune",
+    let run = prune(
         &table,
-        "-o",
         &out,
-        "-q",
-        "--annotate",
-        "--source",
-        &source,
-        "--target",
-        &target,
-    ]);
+        &["-q", "--annotate", "--source", &source, "--target", &target],
+    );
     assert!(
         run.status.success(),
         "{}",
@@ -671,27 +648,20 @@ fn sentence_counts_from_the_corpus() {
     }
     // mismatched corpus sides are an error naming the shorter one
     let short = dir.write("short.txt", "the lighthouse\n");
-    let run = baler(&[
-        "prune",
+    let run = prune(
         &table,
-        "-o",
         &out,
-        "--annotate",
-        "--source",
-        &source,
-        "--target",
-        &short,
-    ]);
+        &["--annotate", "--source", &source, "--target", &short],
+    );
     assert_eq!(run.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&run.stderr).contains("short.txt:2: ends after 1 lines"));
 }
 
 #[test]
 fn packed_output_and_input_round_trip() {
-    let dir = Dir::new();
-    let input = dir.write("t.tsv", HARBOUR);
+    let (dir, input) = Dir::with_harbour();
     let packed = dir.path("t.bale");
-    let run = baler(&["prune", &input, "-o", &packed, "-q", "--significance", "10"]);
+    let run = prune(&input, &packed, &["-q", "--significance", "10"]);
     assert!(
         run.status.success(),
         "{}",

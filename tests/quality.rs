@@ -482,6 +482,26 @@ fn decoder_setup(rows: &[&str]) -> Setup {
     }
 }
 
+impl Setup {
+    /// Runs `baler translate TABLE --lm LM OPTIONS...` on the set-up's table and model, with
+    /// `input` on standard input; returns the process output.
+    fn translate(&self, options: &[&str], input: &str) -> std::process::Output {
+        let args = [
+            &["translate", s(&self.table), "--lm", s(&self.lm)][..],
+            options,
+        ]
+        .concat();
+        baler(&args, Some(input))
+    }
+
+    /// [`Setup::translate`], asserting success; returns the translations (standard output).
+    fn translated(&self, options: &[&str], input: &str) -> String {
+        let out = self.translate(options, input);
+        assert!(out.status.success());
+        String::from_utf8(out.stdout).unwrap()
+    }
+}
+
 const ROWS: &[&str] = &[
     "le\tthe\t0.7\t0.6",
     "le\ta\t0.2\t0.3",
@@ -581,19 +601,9 @@ fn explained_score_equals_an_independent_rescoring() {
          phrases = -0.3\njump = 0.25\ncopied = -2\n",
     )
     .unwrap();
-    let out = baler(
-        &[
-            "translate",
-            s(&setup.table),
-            "--lm",
-            s(&setup.lm),
-            "--weights",
-            s(&weights_file),
-            "--explain",
-            "--threads",
-            "2",
-        ],
-        Some(&input),
+    let out = setup.translate(
+        &["--weights", s(&weights_file), "--explain", "--threads", "2"],
+        &input,
     );
     assert!(
         out.status.success(),
@@ -726,20 +736,8 @@ fn wide_beam_finds_the_exhaustive_optimum() {
 #[test]
 fn a_single_path_table_gives_that_path() {
     let setup = decoder_setup(&["la\tthe\t1\t1", "marée\ttide\t1\t1", "monte\trises\t1\t1"]);
-    let out = baler(
-        &[
-            "translate",
-            s(&setup.table),
-            "--lm",
-            s(&setup.lm),
-            "--distortion-limit",
-            "0",
-        ],
-        Some("la marée monte\nmonte la\n"),
-    );
-    assert!(out.status.success());
     assert_eq!(
-        String::from_utf8(out.stdout).unwrap(),
+        setup.translated(&["--distortion-limit", "0"], "la marée monte\nmonte la\n"),
         "the tide rises\nrises the\n"
     );
 }
@@ -747,19 +745,8 @@ fn a_single_path_table_gives_that_path() {
 #[test]
 fn greedy_baseline_takes_the_longest_match_and_best_option() {
     let setup = decoder_setup(ROWS);
-    let out = baler(
-        &[
-            "translate",
-            s(&setup.table),
-            "--lm",
-            s(&setup.lm),
-            "--greedy",
-        ],
-        Some("le bac part tôt\nle navire au quai\n"),
-    );
-    assert!(out.status.success());
     assert_eq!(
-        String::from_utf8(out.stdout).unwrap(),
+        setup.translated(&["--greedy"], "le bac part tôt\nle navire au quai\n"),
         "the ferry early opens\nthe navire at the pier\n"
     );
 }
@@ -828,10 +815,8 @@ fn keep_test_phrases_keeps_only_sources_in_the_text() {
 /// it with `baler evaluate` (whose BLEU and chrF are checked against sacrebleu above).
 #[test]
 fn build_recipes_report_bleu_and_chrf() {
-    let dir = tempfile::tempdir().unwrap();
+    let (dir, lm) = demo_lm_in_tempdir();
     let data = |n: &str| crate::util::repo(&format!("demo-data/{n}"));
-    let lm = dir.path().join("es.balm");
-    baler_ok(&["lm", "build", s(&data("toolshed.es")), "-o", s(&lm), "-q"]);
     let head = format!(
         "[corpus]\nsource = \"{}\"\ntarget = \"{}\"\nalignment = \"{}\"\n\
          [[filter]]\nsignificance = \"alpha+epsilon\"\n\
@@ -921,6 +906,38 @@ fn read_csv(path: &Path) -> (HashMap<String, usize>, Vec<Vec<String>>) {
     (index, lines.collect())
 }
 
+/// A fresh temporary folder holding `es.balm`, the language model `baler lm build` makes of
+/// `demo-data/toolshed.es`, and that model's path.
+fn demo_lm_in_tempdir() -> (tempfile::TempDir, PathBuf) {
+    let dir = tempfile::tempdir().unwrap();
+    let lm = dir.path().join("es.balm");
+    let text = crate::util::repo("demo-data/toolshed.es");
+    baler_ok(&["lm", "build", s(&text), "-o", s(&lm), "-q"]);
+    (dir, lm)
+}
+
+/// Asserts that each CSV row's `bleu` and `chrf` are within 0.01 of decoding its `table` by
+/// hand with `lm` and scoring it ([`translate_and_evaluate`]); returns those BLEUs in row
+/// order.
+fn assert_quality_columns_match_hand_decoding(
+    dir: &Path,
+    lm: &Path,
+    col: &HashMap<String, usize>,
+    rows: &[Vec<String>],
+) -> Vec<f64> {
+    let mut bleus = Vec::new();
+    for row in rows {
+        let table = PathBuf::from(&row[col["table"]]);
+        let (bleu, chrf) = translate_and_evaluate(dir, &table, lm);
+        let got: f64 = row[col["bleu"]].parse().unwrap();
+        assert!((got - bleu).abs() < 0.01, "{row:?}: {got} vs {bleu}");
+        let got: f64 = row[col["chrf"]].parse().unwrap();
+        assert!((got - chrf).abs() < 0.01, "{row:?}: {got} vs {chrf}");
+        bleus.push(bleu);
+    }
+    bleus
+}
+
 /// Decodes the demo test set with `table` (`baler translate`) and scores it with `baler
 /// evaluate`, whose BLEU and chrF are checked against sacrebleu above.
 fn translate_and_evaluate(dir: &Path, table: &Path, lm: &Path) -> (f64, f64) {
@@ -944,10 +961,8 @@ fn translate_and_evaluate(dir: &Path, table: &Path, lm: &Path) -> (f64, f64) {
 /// reference; `--plot` refuses, before any work, a figure the sweep will not measure.
 #[test]
 fn sweep_adds_bleu_and_chrf_columns() {
-    let dir = tempfile::tempdir().unwrap();
+    let (dir, lm) = demo_lm_in_tempdir();
     let data = |n: &str| crate::util::repo(&format!("demo-data/{n}"));
-    let lm = dir.path().join("es.balm");
-    baler_ok(&["lm", "build", s(&data("toolshed.es")), "-o", s(&lm), "-q"]);
     let out = dir.path().join("sweep");
     let (table, test, reference) = (
         data("toolshed.tsv"),
@@ -970,16 +985,7 @@ fn sweep_adds_bleu_and_chrf_columns() {
     assert!(text.contains("ΔBLEU"), "{text}");
     let (col, rows) = read_csv(&out.join("sweep.csv"));
     assert_eq!(rows.len(), 2);
-    let mut bleus = Vec::new();
-    for row in &rows {
-        let table = PathBuf::from(&row[col["table"]]);
-        let (bleu, chrf) = translate_and_evaluate(dir.path(), &table, &lm);
-        let got: f64 = row[col["bleu"]].parse().unwrap();
-        assert!((got - bleu).abs() < 0.01, "{row:?}: {got} vs {bleu}");
-        let got: f64 = row[col["chrf"]].parse().unwrap();
-        assert!((got - chrf).abs() < 0.01, "{row:?}: {got} vs {chrf}");
-        bleus.push(bleu);
-    }
+    let bleus = assert_quality_columns_match_hand_decoding(dir.path(), &lm, &col, &rows);
     let (base_bleu, _) = translate_and_evaluate(dir.path(), &out.join("base.bale"), &lm);
     for (row, bleu) in rows.iter().zip(&bleus) {
         let delta: f64 = row[col["bleu_delta"]].parse().unwrap();
@@ -1014,10 +1020,8 @@ fn sweep_adds_bleu_and_chrf_columns() {
 /// `compare --lm --csv` carries BLEU and chrF per table and the difference from the base.
 #[test]
 fn compare_csv_has_quality_columns() {
-    let dir = tempfile::tempdir().unwrap();
+    let (dir, lm) = demo_lm_in_tempdir();
     let data = |n: &str| crate::util::repo(&format!("demo-data/{n}"));
-    let lm = dir.path().join("es.balm");
-    baler_ok(&["lm", "build", s(&data("toolshed.es")), "-o", s(&lm), "-q"]);
     let base = dir.path().join("base.bale");
     let pruned = dir.path().join("pruned.bale");
     baler_ok(&["pack", s(&data("toolshed.tsv")), "-o", s(&base), "-q"]);
@@ -1045,16 +1049,7 @@ fn compare_csv_has_quality_columns() {
     ]);
     std::fs::write(&csv, text).unwrap();
     let (col, rows) = read_csv(&csv);
-    let mut measured = Vec::new();
-    for row in &rows {
-        let table = PathBuf::from(&row[col["table"]]);
-        let (bleu, chrf) = translate_and_evaluate(dir.path(), &table, &lm);
-        let got: f64 = row[col["bleu"]].parse().unwrap();
-        assert!((got - bleu).abs() < 0.01, "{row:?}: {got} vs {bleu}");
-        let got: f64 = row[col["chrf"]].parse().unwrap();
-        assert!((got - chrf).abs() < 0.01, "{row:?}: {got} vs {chrf}");
-        measured.push(bleu);
-    }
+    let measured = assert_quality_columns_match_hand_decoding(dir.path(), &lm, &col, &rows);
     assert_eq!(rows[0][col["bleu_delta"]], "", "the base has no difference");
     let delta: f64 = rows[1][col["bleu_delta"]].parse().unwrap();
     assert!((delta - (measured[1] - measured[0])).abs() < 0.01);

@@ -3,11 +3,11 @@
 //! `BALER_UNDER_TEST=/path/to/old/baler cargo test regression` shows them failing there.
 
 use std::io::{Read, Write};
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::process::{Child, Stdio};
 use std::time::{Duration, Instant};
 
-use crate::util::{baler, baler_ok, command, entries, repo, s, stderr, write};
+use crate::util::{baler, baler_ok, command, corpus_options, entries, repo, s, stderr, write};
 
 /// A small table whose sources are out of byte order.
 const UNSORTED: &str = "source\ttarget\tp_t_given_s\n\
@@ -26,6 +26,27 @@ const COUNTED: &str = "# sentence_pairs=1000\n\
 
 fn tempdir() -> tempfile::TempDir {
     tempfile::tempdir().unwrap()
+}
+
+/// A fresh temporary folder holding a `baler synth` table of `pairs` phrase pairs as `name`,
+/// and that file's path.
+fn synthetic_table(name: &str, pairs: u32) -> (tempfile::TempDir, PathBuf) {
+    let dir = tempdir();
+    let path = dir.path().join(name);
+    baler_ok(&["synth", "--pairs", &pairs.to_string(), "-o", s(&path)]);
+    (dir, path)
+}
+
+/// Runs `baler COMMAND INPUT -o OUT -q OPTIONS...`, asserting success.
+fn run_quiet(command: &str, input: &Path, out: &Path, options: &[&str]) {
+    baler_ok(&[&[command, s(input), "-o", s(out), "-q"][..], options].concat());
+}
+
+/// A fresh temporary folder holding [`COUNTED`] as `c.tsv`, and that file's path.
+fn counted_table() -> (tempfile::TempDir, PathBuf) {
+    let dir = tempdir();
+    let path = write(dir.path(), "c.tsv", COUNTED);
+    (dir, path)
 }
 
 /// Waits for `child` up to `limit`; `None` (and the child killed) when it is still running.
@@ -95,16 +116,21 @@ fn interrupt(args: &[&str], signal: &str, ready: impl Fn() -> bool) -> (Option<i
     (status.code(), err)
 }
 
-#[test]
-fn defect_02_interrupted_runs_remove_partial_outputs_and_temporary_files() {
-    let dir = tempdir();
-    let big = dir.path().join("big.tsv");
-    baler_ok(&["synth", "--pairs", "400000", "-o", s(&big)]);
-    // pack: interrupted while its temporary files exist
-    let temp = dir.path().join("temp");
-    let out_dir = dir.path().join("out");
+/// Makes the empty folders `dir/temp` (for `--temp-dir`) and `dir/out` (for the output) an
+/// interrupted run must leave empty; returns their paths.
+fn empty_temp_and_out_dirs(dir: &Path) -> (PathBuf, PathBuf) {
+    let temp = dir.join("temp");
+    let out_dir = dir.join("out");
     std::fs::create_dir_all(&temp).unwrap();
     std::fs::create_dir_all(&out_dir).unwrap();
+    (temp, out_dir)
+}
+
+#[test]
+fn defect_02_interrupted_runs_remove_partial_outputs_and_temporary_files() {
+    let (dir, big) = synthetic_table("big.tsv", 400_000);
+    // pack: interrupted while its temporary files exist
+    let (temp, out_dir) = empty_temp_and_out_dirs(dir.path());
     let packed = out_dir.join("big.bale");
     let (code, err) = interrupt(
         &[
@@ -208,22 +234,21 @@ fn defect_03_closed_pipe_is_success_and_full_disk_an_error() {
 
 #[test]
 fn defect_06_pruned_with_records_everything_prune_did() {
-    let dir = tempdir();
-    let input = write(dir.path(), "c.tsv", COUNTED);
+    let (dir, input) = counted_table();
     let out = dir.path().join("p.tsv");
-    baler_ok(&[
+    run_quiet(
         "prune",
-        s(&input),
-        "-o",
-        s(&out),
-        "-q",
-        "--significance",
-        "3",
-        "--phrase-counts",
-        "--annotate",
-        "--renormalize",
-        "p_t_given_s",
-    ]);
+        &input,
+        &out,
+        &[
+            "--significance",
+            "3",
+            "--phrase-counts",
+            "--annotate",
+            "--renormalize",
+            "p_t_given_s",
+        ],
+    );
     let text = std::fs::read_to_string(&out).unwrap();
     let line = text
         .lines()
@@ -241,19 +266,7 @@ fn defect_06_pruned_with_records_everything_prune_did() {
         "plain.tsv",
         "source\ttarget\tp_t_given_s\nel faro\tthe lighthouse\t1\n",
     );
-    baler_ok(&[
-        "prune",
-        s(&plain),
-        "-o",
-        s(&out),
-        "-q",
-        "--annotate",
-        "--source",
-        s(&src),
-        "--target",
-        s(&tgt),
-    ]);
-    let text = std::fs::read_to_string(&out).unwrap();
+    let text = prune_annotated_with_corpus(&plain, &src, &tgt, &out);
     assert!(
         text.contains(&format!(
             "# pruned_with=--source {} --target {} --annotate\n",
@@ -262,6 +275,24 @@ fn defect_06_pruned_with_records_everything_prune_did() {
         )),
         "{text}"
     );
+}
+
+/// Runs `baler prune TABLE -o OUT -q --annotate --source SRC --target TGT` (phrase counts taken
+/// from the corpus `src`/`tgt`) and returns the table it wrote to `out`.
+fn prune_annotated_with_corpus(table: &Path, src: &Path, tgt: &Path, out: &Path) -> String {
+    baler_ok(&[
+        "prune",
+        s(table),
+        "-o",
+        s(out),
+        "-q",
+        "--annotate",
+        "--source",
+        s(src),
+        "--target",
+        s(tgt),
+    ]);
+    std::fs::read_to_string(out).unwrap()
 }
 
 fn inspect_json(table: &Path) -> serde_json::Value {
@@ -279,20 +310,14 @@ fn provenance(report: &serde_json::Value, key: &str) -> Option<String> {
 
 #[test]
 fn defect_07_prune_keeps_the_input_tables_packing_and_provenance() {
-    let dir = tempdir();
-    let tsv = write(dir.path(), "c.tsv", COUNTED);
+    let (dir, tsv) = counted_table();
     let f32 = dir.path().join("f32.bale");
-    baler_ok(&[
+    run_quiet(
         "pack",
-        s(&tsv),
-        "-o",
-        s(&f32),
-        "-q",
-        "--bits",
-        "f32",
-        "--block-sources",
-        "4",
-    ]);
+        &tsv,
+        &f32,
+        &["--bits", "f32", "--block-sources", "4"],
+    );
     let pruned = dir.path().join("pruned.bale");
     baler_ok(&["prune", s(&f32), "-o", s(&pruned), "-q", "--top-k", "1"]);
     let report = inspect_json(&pruned);
@@ -307,17 +332,7 @@ fn defect_07_prune_keeps_the_input_tables_packing_and_provenance() {
     assert_eq!(provenance(&report, "previous.bits").as_deref(), Some("f32"));
     // the pack settings are accepted where a .bale is written, and win
     let six = dir.path().join("six.bale");
-    baler_ok(&[
-        "prune",
-        s(&f32),
-        "-o",
-        s(&six),
-        "-q",
-        "--top-k",
-        "1",
-        "--bits",
-        "6",
-    ]);
+    run_quiet("prune", &f32, &six, &["--top-k", "1", "--bits", "6"]);
     let report = inspect_json(&six);
     for q in report["meta"]["quantization"].as_array().unwrap() {
         assert_eq!(
@@ -347,19 +362,7 @@ fn defect_08_a_leading_byte_order_mark_is_skipped() {
         "\u{feff}the lighthouse\nthe lighthouse\n",
     );
     let out = dir.path().join("o.tsv");
-    baler_ok(&[
-        "prune",
-        s(&table),
-        "-o",
-        s(&out),
-        "-q",
-        "--annotate",
-        "--source",
-        s(&src),
-        "--target",
-        s(&tgt),
-    ]);
-    let text = std::fs::read_to_string(&out).unwrap();
+    let text = prune_annotated_with_corpus(&table, &src, &tgt, &out);
     let row = text.lines().last().unwrap();
     assert!(row.ends_with("\t2\t2\t2"), "{text}");
 }
@@ -390,6 +393,16 @@ fn defect_09_an_output_that_is_an_input_is_refused() {
     assert_eq!(std::fs::read(&table).unwrap(), before);
 }
 
+/// Asserts that the running `baler ARGS` `child` stops within 20 seconds, before reading
+/// `reading` (it is killed otherwise), with exit code 2 and an error naming `out.tsv`.
+fn assert_refused_at_once_naming_out_tsv(child: &mut Child, args: &[&str], reading: &str) {
+    let status = wait_at_most(child, Duration::from_secs(20))
+        .unwrap_or_else(|| panic!("it stops at once instead of reading {reading}"));
+    assert_eq!(status.code(), Some(2), "{args:?}");
+    let err = read_stderr(child);
+    assert!(err.contains("out.tsv"), "{err}");
+}
+
 #[test]
 fn defect_10_an_unwritable_output_is_found_before_the_work() {
     // The input never ends: only a check made before reading it can finish the run.
@@ -402,12 +415,8 @@ fn defect_10_an_unwritable_output_is_found_before_the_work() {
         let mut child = command(&args).stdin(Stdio::piped()).spawn().unwrap();
         let mut stdin = child.stdin.take().unwrap();
         let _ = stdin.write_all(b"source\ttarget\n"); // it may have stopped already
-        let status = wait_at_most(&mut child, Duration::from_secs(20));
+        assert_refused_at_once_naming_out_tsv(&mut child, &args, "the input");
         drop(stdin);
-        let status = status.expect("it stops at once instead of reading the input");
-        assert_eq!(status.code(), Some(2), "{args:?}");
-        let err = read_stderr(&mut child);
-        assert!(err.contains("out.tsv"), "{err}");
     }
 }
 
@@ -440,20 +449,11 @@ fn defect_11_messages_name_the_directories_and_files_the_user_gave() {
 
 #[test]
 fn defect_12_pack_repacks_a_packed_table() {
-    let dir = tempdir();
-    let tsv = write(dir.path(), "c.tsv", COUNTED);
+    let (dir, tsv) = counted_table();
     let first = dir.path().join("a.bale");
     let second = dir.path().join("b.bale");
     baler_ok(&["pack", s(&tsv), "-o", s(&first), "-q", "--bits", "f32"]);
-    baler_ok(&[
-        "pack",
-        s(&first),
-        "-o",
-        s(&second),
-        "-q",
-        "--block-sources",
-        "2",
-    ]);
+    run_quiet("pack", &first, &second, &["--block-sources", "2"]);
     assert_eq!(
         baler_ok(&["dump", s(&first)]),
         baler_ok(&["dump", s(&second)])
@@ -465,8 +465,7 @@ fn defect_12_pack_repacks_a_packed_table() {
 
 #[test]
 fn defect_14_lookup_header_best_misses_and_whitespace() {
-    let dir = tempdir();
-    let tsv = write(dir.path(), "c.tsv", COUNTED);
+    let (dir, tsv) = counted_table();
     let table = dir.path().join("t.bale");
     baler_ok(&["pack", s(&tsv), "-o", s(&table), "-q"]);
     let misses = dir.path().join("misses.txt");
@@ -574,9 +573,7 @@ fn peak_kib(args: &[&str]) -> u64 {
 
 #[test]
 fn defect_13_relative_entropy_pruning_respects_the_memory_budget() {
-    let dir = tempdir();
-    let table = dir.path().join("t.tsv");
-    baler_ok(&["synth", "--pairs", "200000", "-o", s(&table)]);
+    let (dir, table) = synthetic_table("t.tsv", 200_000);
     let roomy = dir.path().join("roomy.tsv");
     let tight = dir.path().join("tight.tsv");
     let common = ["--relative-entropy", "0", "-q"];
@@ -627,20 +624,12 @@ fn defect_09_extract_refuses_an_output_that_is_an_input() {
     let [src, tgt, align] = harbour_corpus(dir.path());
     let other_name = dir.path().join("links.txt");
     std::fs::hard_link(&align, &other_name).unwrap();
-    let corpus = [
-        "--source",
-        s(&src),
-        "--target",
-        s(&tgt),
-        "--alignment",
-        s(&align),
-        "-q",
-    ];
+    let corpus = [&corpus_options(&src, &tgt, &align)[..], &["-q"]].concat();
     for (step, output) in [(None, &other_name), (Some("shard"), &src)] {
         let before = std::fs::read(output).unwrap();
         let mut args = vec!["extract"];
         args.extend(step);
-        args.extend(corpus);
+        args.extend(&corpus);
         args.extend(["-o", s(output)]);
         let out = baler(&args, None);
         assert_eq!(out.status.code(), Some(2), "{args:?}");
@@ -650,7 +639,7 @@ fn defect_09_extract_refuses_an_output_that_is_an_input() {
     // the reduce steps: a merged table written over its own count run
     let run = dir.path().join("h.run");
     let mut args = vec!["extract", "shard"];
-    args.extend(corpus);
+    args.extend(&corpus);
     args.extend(["-o", s(&run)]);
     baler_ok(&args);
     let before = std::fs::read(&run).unwrap();
@@ -688,11 +677,7 @@ fn defect_10_extract_finds_an_unwritable_output_before_the_work() {
             "-q",
         ]);
         let mut child = command(&args).stdin(Stdio::null()).spawn().unwrap();
-        let status = wait_at_most(&mut child, Duration::from_secs(20))
-            .expect("it stops at once instead of reading the corpus");
-        assert_eq!(status.code(), Some(2), "{args:?}");
-        let err = read_stderr(&mut child);
-        assert!(err.contains("out.tsv"), "{err}");
+        assert_refused_at_once_naming_out_tsv(&mut child, &args, "the corpus");
     }
 }
 
@@ -707,10 +692,7 @@ fn defect_02_interrupted_extract_removes_its_temporary_files() {
     }
     .write(dir.path(), "harbour", "")
     .unwrap();
-    let temp = dir.path().join("temp");
-    let out_dir = dir.path().join("out");
-    std::fs::create_dir_all(&temp).unwrap();
-    std::fs::create_dir_all(&out_dir).unwrap();
+    let (temp, out_dir) = empty_temp_and_out_dirs(dir.path());
     let table = out_dir.join("table.tsv");
     let (code, err) = interrupt(
         &[
@@ -768,14 +750,7 @@ fn sentence_counts_of_extract_and_prune_agree() {
         "c.align",
         "0-0 1-1\n0-0 1-1\n\n0-0 1-1 2-2 3-3 4-4\n0-0 1-1\n",
     );
-    let corpus = [
-        "--source",
-        s(&src),
-        "--target",
-        s(&tgt),
-        "--alignment",
-        s(&align),
-    ];
+    let corpus = corpus_options(&src, &tgt, &align);
     let (full, run, merged, pruned) = (
         dir.path().join("full.tsv"),
         dir.path().join("c.run"),
@@ -827,14 +802,7 @@ fn sentence_counts_of_extract_and_prune_agree() {
 fn extract_takes_the_shared_resource_flags() {
     let dir = tempdir();
     let [src, tgt, align] = harbour_corpus(dir.path());
-    let corpus = [
-        "--source",
-        s(&src),
-        "--target",
-        s(&tgt),
-        "--alignment",
-        s(&align),
-    ];
+    let corpus = corpus_options(&src, &tgt, &align);
     let mut outputs = Vec::new();
     for threads in ["0", "1"] {
         let out = dir.path().join(format!("t{threads}.tsv"));

@@ -349,6 +349,19 @@ fn reference_reader_takes_a_source_list_in_byte_order() {
     );
 }
 
+/// Writes to `damaged` a copy of the packed fixture `good` with one bit flipped in the middle
+/// of section `kind`, and asserts that the reference reader refuses it with an error containing
+/// `message`.
+fn assert_reference_names_damaged_section(good: &[u8], kind: u32, message: &str, damaged: &Path) {
+    let (offset, length) = section(good, kind).expect("section present");
+    let mut bad = good.to_vec();
+    bad[offset + length / 2] ^= 0x10;
+    std::fs::write(damaged, &bad).unwrap();
+    let out = fails(&mut reference(damaged, &fixture()));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.contains(message), "{message}: {stderr}");
+}
+
 #[test]
 fn reference_reader_verifies_every_checksum() {
     if !require("python3", "reference_reader_verifies_every_checksum") {
@@ -373,13 +386,7 @@ fn reference_reader_verifies_every_checksum() {
     ];
     let damaged = dir.path().join("damaged.bale");
     for (kind, message) in names {
-        let (offset, length) = section(&good, kind).expect("section present");
-        let mut bad = good.clone();
-        bad[offset + length / 2] ^= 0x10;
-        std::fs::write(&damaged, &bad).unwrap();
-        let out = fails(&mut reference(&damaged, &fixture()));
-        let stderr = String::from_utf8_lossy(&out.stderr);
-        assert!(stderr.contains(message), "{message}: {stderr}");
+        assert_reference_names_damaged_section(&good, kind, message, &damaged);
     }
     let mut bad = good.clone();
     bad[24 + 8] ^= 0x01; // the first entry's offset
@@ -447,13 +454,7 @@ fn reference_reader_verifies_every_chunk_of_a_direct_table() {
     ];
     let damaged = dir.path().join("damaged.bale");
     for (kind, message) in names {
-        let (offset, length) = section(&good, kind).expect("section present");
-        let mut bad = good.clone();
-        bad[offset + length / 2] ^= 0x10;
-        std::fs::write(&damaged, &bad).unwrap();
-        let out = fails(&mut reference(&damaged, &fixture()));
-        let stderr = String::from_utf8_lossy(&out.stderr);
-        assert!(stderr.contains(message), "{message}: {stderr}");
+        assert_reference_names_damaged_section(&good, kind, message, &damaged);
         // baler's own reader names the same chunk on a plain dump (no --verify), or for the
         // hash, which a dump does not read, on a lookup.
         if [10, 11, 12].contains(&kind) {
@@ -476,29 +477,13 @@ fn reference_reader_verifies_every_chunk_of_a_direct_table() {
 /// still read the same, with baler's reader and with the reference reader.
 #[test]
 fn compatibility_files_of_format_2_1_still_read() {
-    let dir = manifest_path("tests/data/spec/compat/2.1");
-    let cases = [
-        ("harbour-8bit-direct", "harbour.tsv"),
-        ("generated-16bit-direct", "generated.tsv"),
-    ];
-    let python = require("python3", "the reference-reader part of this test");
-    for (name, input) in cases {
-        let table = dir.join(format!("{name}.bale"));
-        let expected = std::fs::read(dir.join(format!("{name}.dump.tsv"))).unwrap();
-        assert!(!expected.is_empty());
-        assert!(
-            dump(&table) == expected,
-            "{name}: baler dump no longer reproduces the frozen dump"
-        );
-        run(baler().args(["inspect", "--verify"]).arg(&table));
-        if python {
-            let got = run(&mut reference(&table, &dir.join(input)));
-            assert!(
-                got == expected,
-                "{name}: the reference reader differs from the frozen dump"
-            );
-        }
-    }
+    assert_frozen_files_still_read(
+        "tests/data/spec/compat/2.1",
+        &[
+            ("harbour-8bit-direct", "harbour.tsv"),
+            ("generated-16bit-direct", "generated.tsv"),
+        ],
+    );
 }
 
 /// The frozen files of format 1.0 (`tests/data/spec/compat/1.0/README.md`) are refused with a
@@ -526,14 +511,24 @@ fn compatibility_files_of_format_1_0_are_refused_with_how_to_repack() {
 /// with baler's reader and with the reference reader.
 #[test]
 fn compatibility_files_of_format_2_0_still_read() {
-    let dir = manifest_path("tests/data/spec/compat/2.0");
-    let cases = [
-        ("harbour-8bit-rans", "harbour.tsv"),
-        ("harbour-f32-none", "harbour.tsv"),
-        ("generated-16bit-rans", "generated.tsv"),
-    ];
+    assert_frozen_files_still_read(
+        "tests/data/spec/compat/2.0",
+        &[
+            ("harbour-8bit-rans", "harbour.tsv"),
+            ("harbour-f32-none", "harbour.tsv"),
+            ("generated-16bit-rans", "generated.tsv"),
+        ],
+    );
+}
+
+/// Checks each frozen table `(name, input)` of the compatibility folder `folder` (relative to the
+/// crate): `baler dump` of `name.bale` reproduces `name.dump.tsv` byte for byte, `inspect
+/// --verify` accepts it, and (where python3 is present) the reference reader, given the table
+/// and its source `input`, prints the same dump.
+fn assert_frozen_files_still_read(folder: &str, cases: &[(&str, &str)]) {
+    let dir = manifest_path(folder);
     let python = require("python3", "the reference-reader part of this test");
-    for (name, input) in cases {
+    for &(name, input) in cases {
         let table = dir.join(format!("{name}.bale"));
         let expected = std::fs::read(dir.join(format!("{name}.dump.tsv"))).unwrap();
         assert!(!expected.is_empty());

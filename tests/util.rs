@@ -89,6 +89,19 @@ pub fn s(p: &Path) -> &str {
     p.to_str().unwrap()
 }
 
+/// The options naming a word-aligned corpus: `--source SOURCE --target TARGET --alignment
+/// ALIGNMENT`.
+pub fn corpus_options<'a>(source: &'a Path, target: &'a Path, alignment: &'a Path) -> [&'a str; 6] {
+    [
+        "--source",
+        s(source),
+        "--target",
+        s(target),
+        "--alignment",
+        s(alignment),
+    ]
+}
+
 /// A file of the repository.
 pub fn repo(path: &str) -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join(path)
