@@ -133,6 +133,14 @@ impl Counts {
         self.df_source[s].load(Ordering::Relaxed)
     }
 
+    /// Replaces every `df_target` (by target id) with one counted elsewhere.
+    pub(crate) fn set_df_target(&mut self, df: &[u32]) {
+        debug_assert_eq!(df.len(), self.df_target.len());
+        for (a, &b) in self.df_target.iter_mut().zip(df) {
+            *a.get_mut() = b;
+        }
+    }
+
     /// `df_target` of target `t`.
     pub(crate) fn df_target(&self, t: usize) -> u32 {
         self.df_target[t].load(Ordering::Relaxed)

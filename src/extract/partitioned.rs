@@ -39,7 +39,7 @@ use super::report::Progress;
 use super::resident::{
     aggregate, alignment_links, alignment_ranks, count_sentences, count_word_links, rank_both,
     word_table, write_table, AlignmentNumbers, Extracted, PhraseTree, Ranks, ResidentSummary,
-    Vocabulary, Writing, ROOT,
+    Sentences, Vocabulary, Writing, ROOT,
 };
 use super::runs::RunInfo;
 use super::score::Discount;
@@ -460,13 +460,22 @@ fn length(path: &Path, len: u32, max: usize, rest: usize) -> Result<usize> {
     Ok(len)
 }
 
-/// Step 3: the occurrences of every target, in byte order of the targets, into `out` as
-/// `[length, ids, count low, count high]` records. Returns the number of targets.
+/// Step 3: the occurrences (`count_target`) and the sentence pairs holding it (`df_target`) of
+/// every target, in byte order of the targets, into `out` as `[length, big-endian word ranks,
+/// count (u64), df (u32)]` records. Returns the number of targets.
+///
+/// `df_target` is counted here, one group of targets at a time, so that the source ranges need
+/// not look for targets in sentence pairs that hold none of their sources: a group's tree only
+/// has the group's first words at its root, so across all groups each target-side position is
+/// walked about once.
+#[allow(clippy::too_many_arguments)]
 fn target_totals(
     buckets: &Buckets,
     groups: &[std::ops::Range<usize>],
     max: usize,
     word_rank: &[u32],
+    sentences: &Sentences,
+    threads: usize,
     out: &Path,
 ) -> Result<u64> {
     let werr = |e| Error::io(out, "writing", e);
@@ -490,6 +499,7 @@ fn target_totals(
                 k += 1 + len;
             }
         }
+        let df = sentence_frequencies(&tree, sentences, max, threads);
         let (_, by_rank) = tree.ranks(word_rank);
         for &node in &by_rank {
             tree.ids(node, &mut ids);
@@ -502,11 +512,57 @@ fn target_totals(
             }
             w.write_all(&counts[node as usize].to_le_bytes())
                 .map_err(werr)?;
+            w.write_all(&df[node as usize].to_le_bytes())
+                .map_err(werr)?;
         }
         targets += by_rank.len() as u64;
     }
     w.flush().map_err(werr)?;
     Ok(targets)
+}
+
+/// For each node of `tree` whose phrase was extracted, the number of sentences holding the
+/// phrase (each sentence once), by node; the sentences are split between `threads` threads.
+fn sentence_frequencies(
+    tree: &PhraseTree,
+    sentences: &Sentences,
+    max: usize,
+    threads: usize,
+) -> Vec<u32> {
+    let n = sentences.ends.len();
+    let per_thread = n.div_ceil(threads.max(1)).max(1);
+    let parts: Vec<Vec<u32>> = std::thread::scope(|scope| {
+        let handles: Vec<_> = (0..n)
+            .step_by(per_thread)
+            .map(|first| {
+                scope.spawn(move || {
+                    let mut df = vec![0u32; tree.len()];
+                    let mut found = Vec::new();
+                    for k in first..(first + per_thread).min(n) {
+                        tree.extracted_in(sentences.get(k), max, &mut found);
+                        found.sort_unstable();
+                        found.dedup();
+                        for &node in &found {
+                            df[node as usize] += 1;
+                        }
+                    }
+                    df
+                })
+            })
+            .collect();
+        handles
+            .into_iter()
+            .map(|h| h.join().expect("counting thread panicked"))
+            .collect()
+    });
+    let mut parts = parts.into_iter();
+    let mut df = parts.next().unwrap_or_else(|| vec![0; tree.len()]);
+    for part in parts {
+        for (a, b) in df.iter_mut().zip(part) {
+            *a += b;
+        }
+    }
+    df
 }
 
 /// Reads [`target_totals`]' file forward, a large buffer at a time: every source range reads
@@ -559,9 +615,9 @@ impl TotalsReader {
         Ok(true)
     }
 
-    /// The total of the target whose words' big-endian ranks are `key`, reading forward
-    /// (targets must be asked in byte order).
-    fn total(&mut self, key: &[u8], max: usize) -> Result<u64> {
+    /// `(count_target, df_target)` of the target whose words' big-endian ranks are `key`,
+    /// reading forward (targets must be asked in byte order).
+    fn total(&mut self, key: &[u8], max: usize) -> Result<(u64, u32)> {
         let missing = |path: &Path| damaged(path, "ends before a target the table holds");
         loop {
             if !self.fill(4)? {
@@ -573,15 +629,19 @@ impl TotalsReader {
             if len == 0 || len > max {
                 return Err(damaged(&self.path, "a phrase length is out of range"));
             }
-            let record = 4 + 4 * len + 8;
+            let record = 4 + 4 * len + 8 + 4;
             if !self.fill(record)? {
                 return Err(missing(&self.path));
             }
             let at = self.pos;
             match self.buf[at + 4..at + 4 + 4 * len].cmp(key) {
                 Order::Equal => {
-                    let count = &self.buf[at + 4 + 4 * len..at + record];
-                    return Ok(u64::from_le_bytes(count.try_into().expect("8 bytes")));
+                    let count = &self.buf[at + 4 + 4 * len..at + record - 4];
+                    let df = &self.buf[at + record - 4..at + record];
+                    return Ok((
+                        u64::from_le_bytes(count.try_into().expect("8 bytes")),
+                        u32::from_le_bytes(df.try_into().expect("4 bytes")),
+                    ));
                 }
                 Order::Greater => {
                     return Err(damaged(&self.path, "a target of the table is missing"))
@@ -703,6 +763,8 @@ pub(crate) fn extract_partitioned<W: Write>(
         &target_groups,
         max,
         &target_word_ranks,
+        &x.target.sentences,
+        threads,
         &totals_path,
     )?;
     let source_groups = groups(&buckets[0].counts, GROUP_BYTES_PER_OCCURRENCE, available);
@@ -744,6 +806,7 @@ pub(crate) fn extract_partitioned<W: Write>(
         // `count_target` sums over every source range: from the totals, in target order.
         let mut totals = TotalsReader::open(&totals_path)?;
         let mut key = Vec::new();
+        let mut df_target = vec![0u32; ranks.target_nodes.len()];
         for (t, &node) in ranks.target_nodes.iter().enumerate() {
             x.target.tree.ids(node, &mut ids);
             key.clear();
@@ -752,10 +815,10 @@ pub(crate) fn extract_partitioned<W: Write>(
                     &target_word_ranks[w.expect("a word") as usize].to_be_bytes(),
                 );
             }
-            table.target_totals[t] = totals.total(&key, max)?;
+            (table.target_totals[t], df_target[t]) = totals.total(&key, max)?;
         }
         next_lap(1);
-        let counts = count_sentences(&x, &ranks, &table, max, threads);
+        let counts = count_sentences(&x, &ranks, &table, max, threads, Some(&df_target));
         next_lap(2);
         write_table(
             &x,

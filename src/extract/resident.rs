@@ -232,6 +232,24 @@ impl PhraseTree {
         self.parent.len()
     }
 
+    /// The nodes of the extracted phrases of at most `max` words occurring in `words` (with
+    /// repeats), into `found`.
+    pub(super) fn extracted_in(&self, words: &[u32], max: usize, found: &mut Vec<u32>) {
+        found.clear();
+        for start in 0..words.len() {
+            let mut node = ROOT;
+            for &w in &words[start..words.len().min(start + max)] {
+                match self.find(node, w) {
+                    Some(n) => node = n,
+                    None => break,
+                }
+                if self.extracted[node as usize] {
+                    found.push(node);
+                }
+            }
+        }
+    }
+
     /// Bytes held per node, for the memory estimate.
     pub(super) const NODE_BYTES: usize = 4 + 4 + 1 + 2 * 16;
 
@@ -867,12 +885,17 @@ fn sum_range(mut keys: Vec<u128>, first: u32, end: u32, alignment_of_rank: &[u32
 
 /// Step 4: the sentence-level counts ([`Cooccurrence`]: pairs numbered as the ranges
 /// concatenated, sources and targets by rank), sentences split between the threads.
+///
+/// `df_target`, when given (by target rank), is taken as counted elsewhere over every sentence
+/// pair; then sentence pairs that hold none of the sources (most of them, when the sources are
+/// one range of many) are not searched for targets.
 pub(super) fn count_sentences(
     x: &Extracted,
     ranks: &Ranks,
     table: &Table,
     max: usize,
     threads: usize,
+    df_target: Option<&[u32]>,
 ) -> Counts {
     // Each source's options: its pairs' targets, sorted, and the index of its first pair.
     let mut pair_start = Vec::with_capacity(ranks.source_nodes.len() + 1);
@@ -895,14 +918,21 @@ pub(super) fn count_sentences(
             scope.spawn(move || {
                 let (mut s_found, mut t_found) = (Vec::new(), Vec::new());
                 for k in first..last {
-                    find_phrases(&x.target, &ranks.target_rank, k, max, &mut t_found);
                     find_phrases(&x.source, &ranks.source_rank, k, max, &mut s_found);
+                    if s_found.is_empty() && df_target.is_some() {
+                        continue;
+                    }
+                    find_phrases(&x.target, &ranks.target_rank, k, max, &mut t_found);
                     counts_ref.add_sentence(&mut s_found, &mut t_found);
                 }
             });
         }
     });
-    counts.into_counts()
+    let mut counts = counts.into_counts();
+    if let Some(df) = df_target {
+        counts.set_df_target(df);
+    }
+    counts
 }
 
 /// The ranks of the extracted phrases occurring in sentence `k` of `side` (with repeats).
@@ -1231,7 +1261,7 @@ pub(crate) fn extract_resident<W: Write>(
     let table = aggregate(occurrences, &ranks, threads);
     next_lap(1);
     let max = options.limits.max_length;
-    let counts = count_sentences(&x, &ranks, &table, max, threads);
+    let counts = count_sentences(&x, &ranks, &table, max, threads, None);
     next_lap(2);
     let words = word_table(&x);
     let links = alignment_links(&x.alignments)?;
