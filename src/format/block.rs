@@ -279,6 +279,9 @@ impl BlockRecords {
         src: &mut impl SymbolSource,
     ) -> Result<(), &'static str> {
         self.clear();
+        self.key_bytes.reserve(sources * (first_key.len() + 8));
+        self.key_ends.reserve_exact(sources);
+        self.option_ends.reserve_exact(sources);
         let mut total = 0u64;
         for r in 0..sources {
             if r == 0 {
@@ -334,7 +337,13 @@ impl BlockRecords {
         } else {
             self.option_ends[upto - 1] as usize
         };
-        self.codes.reserve(wanted * per);
+        self.targets.reserve_exact(wanted);
+        self.codes.reserve_exact(wanted * per);
+        self.counts.reserve_exact(wanted * shape.counts);
+        if shape.alignment {
+            self.link_ends.reserve_exact(wanted);
+            self.links.reserve(wanted * 4);
+        }
         for r in 0..upto {
             let range = self.options(r);
             let n = range.len();

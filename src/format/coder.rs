@@ -158,7 +158,17 @@ impl SymbolSink for Counter {
 pub struct Models {
     freq: Vec<[u16; 256]>,
     start: Vec<[u16; 256]>,
-    slots: Vec<Option<Box<[u8]>>>,
+    /// Per model, one decoding entry per slot ([`Entry`]); empty for a model no symbol used.
+    slots: Vec<Box<[Entry]>>,
+}
+
+/// What decoding needs of one slot, in one word: the symbol (bits 0..8), its frequency minus
+/// one (bits 8..20) and the slot's distance from the symbol's start (bits 20..32).
+type Entry = u32;
+
+#[inline]
+fn entry(sym: u8, freq: u32, offset: u32) -> Entry {
+    u32::from(sym) | ((freq - 1) << 8) | (offset << 20)
 }
 
 /// Bytes one model takes in the models section (256 little-endian `u16` frequencies).
@@ -179,7 +189,7 @@ impl Models {
             let mut s = [0u16; 256];
             if total == 0 {
                 start.push(s);
-                slots.push(None);
+                slots.push(Box::default());
                 continue;
             }
             if total != PROB_SCALE {
@@ -187,16 +197,21 @@ impl Models {
                     "model {m}'s frequencies sum to {total}, not {PROB_SCALE}"
                 ));
             }
-            let mut table = vec![0u8; PROB_SCALE as usize].into_boxed_slice();
+            let mut table = vec![0; PROB_SCALE as usize].into_boxed_slice();
             let mut acc = 0u32;
             for sym in 0..256 {
                 s[sym] = acc as u16;
                 let n = u32::from(f[sym]);
-                table[acc as usize..(acc + n) as usize].fill(sym as u8);
+                for (o, e) in table[acc as usize..(acc + n) as usize]
+                    .iter_mut()
+                    .enumerate()
+                {
+                    *e = entry(sym as u8, n, o as u32);
+                }
                 acc += n;
             }
             start.push(s);
-            slots.push(Some(table));
+            slots.push(table);
         }
         Ok(Models { freq, start, slots })
     }
@@ -379,24 +394,36 @@ impl<'a> RansSource<'a> {
 
     #[inline]
     fn renormalize(&mut self) -> Option<()> {
-        while self.x < RANS_L {
-            let b = *self.data.get(self.pos)?;
-            self.pos += 1;
-            self.x = (self.x << 8) | u32::from(b);
+        // A decoding step leaves the state at 2^11 or more, so two bytes always suffice.
+        if self.x < RANS_L {
+            if let Some(&[a, b]) = self.data.get(self.pos..self.pos + 2).map(|s| s as &[u8]) {
+                if self.x < RANS_L >> 8 {
+                    self.x = (self.x << 16) | (u32::from(a) << 8) | u32::from(b);
+                    self.pos += 2;
+                } else {
+                    self.x = (self.x << 8) | u32::from(a);
+                    self.pos += 1;
+                }
+            } else {
+                while self.x < RANS_L {
+                    let b = *self.data.get(self.pos)?;
+                    self.pos += 1;
+                    self.x = (self.x << 8) | u32::from(b);
+                }
+            }
         }
         Some(())
     }
 
     #[inline]
     fn symbol(&mut self, model: usize) -> Option<u8> {
-        let table = self.models.slots.get(model)?.as_deref()?;
+        let table = self.models.slots.get(model)?;
         let slot = self.x & (PROB_SCALE - 1);
-        let sym = table[slot as usize];
-        let f = u32::from(self.models.freq[model][usize::from(sym)]);
-        let s = u32::from(self.models.start[model][usize::from(sym)]);
-        self.x = f * (self.x >> PROB_BITS) + slot - s;
+        let e = *table.get(slot as usize)?;
+        let f = ((e >> 8) & (PROB_SCALE - 1)) + 1;
+        self.x = f * (self.x >> PROB_BITS) + (e >> 20);
         self.renormalize()?;
-        Some(sym)
+        Some(e as u8)
     }
 
     #[inline]
@@ -424,6 +451,9 @@ impl SymbolSource for RansSource<'_> {
     #[inline]
     fn number(&mut self, model: usize) -> Option<u64> {
         let class = self.symbol(model)?;
+        if class < 16 {
+            return Some(u64::from(class));
+        }
         let (base, bits) = class_base(class)?;
         Some(base | self.bits(bits)?)
     }

@@ -846,6 +846,12 @@ impl Table {
         out.id_ends.reserve_exact(n);
         out.scores.reserve_exact(n * self.codecs.len());
         out.counts.reserve_exact(n * self.shape.counts);
+        out.text.reserve(n * 16);
+        out.ids.reserve(n * 3);
+        if self.shape.alignment {
+            out.link_ends.reserve_exact(n);
+            out.links.reserve(n * 3);
+        }
         let per = self.meta.targets_per_group as usize;
         let code_bytes = self.shape.code_bytes();
         let mut cached: Option<(usize, Arc<Group>)> = None;
