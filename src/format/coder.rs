@@ -62,6 +62,8 @@ pub trait SymbolSink {
     fn byte(&mut self, model: usize, b: u8);
     /// A number under `model` (its class; extra bits are model-free).
     fn number(&mut self, model: usize, v: u64);
+    /// Marks the start of source `rank`'s options (a place decoding may resume at).
+    fn mark(&mut self, _rank: usize) {}
 }
 
 /// Where a reader takes symbols from; `None` means the stream is malformed.
@@ -72,6 +74,11 @@ pub trait SymbolSource {
     fn number(&mut self, model: usize) -> Option<u64>;
     /// Whether the stream ended exactly where it should.
     fn finished(&self) -> bool;
+    /// Continues decoding from a recorded resume point (decoder `state` at byte `pos`); false
+    /// when this coding has no such points or the point lies outside the stream.
+    fn resume(&mut self, _state: u32, _pos: usize) -> bool {
+        false
+    }
 }
 
 /// Plain coding: bytes as they are, numbers as varints.
@@ -306,6 +313,11 @@ pub struct RansSink<'m> {
     models: &'m Models,
     /// `(start, freq)` per coded symbol, in forward order.
     queue: Vec<(u16, u16)>,
+    /// Marked places: queue length and source rank.
+    marks: Vec<(usize, usize)>,
+    /// After [`RansSink::finish`]: per marked place, the source rank, the byte position in
+    /// the stream and the decoder state there.
+    pub resume_points: Vec<(usize, usize, u32)>,
 }
 
 impl<'m> RansSink<'m> {
@@ -314,6 +326,8 @@ impl<'m> RansSink<'m> {
         RansSink {
             models,
             queue: Vec::new(),
+            marks: Vec::new(),
+            resume_points: Vec::new(),
         }
     }
 
@@ -336,11 +350,25 @@ impl<'m> RansSink<'m> {
         }
     }
 
-    /// Codes the queued symbols into `out` (cleared first); the sink is empty afterwards.
+    /// Codes the queued symbols into `out` (cleared first), and the marked places into
+    /// [`RansSink::resume_points`]; the sink is empty afterwards.
+    ///
+    /// Symbols are coded last to first, so the state after coding symbol `q` is the decoder's
+    /// state before decoding it, and the bytes written so far are the ones the decoder has
+    /// still to read.
     pub fn finish(&mut self, out: &mut Vec<u8>) {
         out.clear();
+        self.resume_points.clear();
         let mut x: u32 = RANS_L;
-        for &(start, freq) in self.queue.iter().rev() {
+        let mut marks = self.marks.iter().rev().peekable();
+        while let Some(&&(q, rank)) = marks.peek() {
+            if q < self.queue.len() {
+                break;
+            }
+            self.resume_points.push((rank, 0, x));
+            marks.next();
+        }
+        for (q, &(start, freq)) in self.queue.iter().enumerate().rev() {
             let (start, freq) = (u32::from(start), u32::from(freq));
             let x_max = ((RANS_L >> PROB_BITS) << 8) * freq;
             while x >= x_max {
@@ -348,10 +376,23 @@ impl<'m> RansSink<'m> {
                 x >>= 8;
             }
             x = ((x / freq) << PROB_BITS) + (x % freq) + start;
+            while let Some(&&(m, rank)) = marks.peek() {
+                if m != q {
+                    break;
+                }
+                self.resume_points.push((rank, out.len(), x));
+                marks.next();
+            }
         }
+        let written = out.len();
+        for p in &mut self.resume_points {
+            p.1 = 4 + written - p.1;
+        }
+        self.resume_points.reverse();
         out.extend_from_slice(&x.to_le_bytes());
         out.reverse();
         self.queue.clear();
+        self.marks.clear();
     }
 }
 
@@ -365,6 +406,9 @@ impl SymbolSink for RansSink<'_> {
         let (class, extra, bits) = number_class(v);
         self.push(model, class);
         self.push_bits(bits, extra);
+    }
+    fn mark(&mut self, rank: usize) {
+        self.marks.push((self.queue.len(), rank));
     }
 }
 
@@ -459,6 +503,14 @@ impl SymbolSource for RansSource<'_> {
     }
     fn finished(&self) -> bool {
         self.pos == self.data.len() && self.x == RANS_L
+    }
+    fn resume(&mut self, state: u32, pos: usize) -> bool {
+        if state < RANS_L || pos < 4 || pos > self.data.len() {
+            return false;
+        }
+        self.x = state;
+        self.pos = pos;
+        true
     }
 }
 

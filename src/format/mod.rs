@@ -23,8 +23,9 @@ pub const MAGIC: [u8; 8] = *b"BALER\r\n\x1a";
 /// Major format version: readers refuse files with another major version.
 pub const VERSION_MAJOR: u16 = 2;
 
-/// Minor format version of files in the `compact` layout (what 2.0 readers read).
-pub const VERSION_MINOR: u16 = 0;
+/// Minor format version of files in the `compact` layout: 2.2 adds the optional block-skips
+/// section (resume points inside rANS blocks), which 2.0 readers skip as an unknown kind.
+pub const VERSION_MINOR: u16 = 2;
 
 /// Minor format version of files in the `direct` layout (2.1: new sections that 2.0 readers
 /// refuse, as they lack the compact layout's required sections).
@@ -149,17 +150,21 @@ pub enum SectionKind {
     DirectText = 12,
     /// `direct` layout: a CRC-32 per chunk of the three sections above.
     DirectChunks = 13,
+    /// `compact` layout, optional (2.2): rANS resume points inside source blocks, so a lookup
+    /// decodes the options of the source it wants without those of the sources before it.
+    BlockSkips = 14,
 }
 
 impl SectionKind {
     /// Every kind, in the order the writer lays them out.
-    pub const ALL: [SectionKind; 13] = [
+    pub const ALL: [SectionKind; 14] = [
         SectionKind::Metadata,
         SectionKind::Codebooks,
         SectionKind::Models,
         SectionKind::Vocabulary,
         SectionKind::BlockIndex,
         SectionKind::BlockKeys,
+        SectionKind::BlockSkips,
         SectionKind::TargetIndex,
         SectionKind::Targets,
         SectionKind::Blocks,
@@ -190,6 +195,7 @@ impl SectionKind {
             SectionKind::DirectRecords => "records",
             SectionKind::DirectText => "text",
             SectionKind::DirectChunks => "chunks",
+            SectionKind::BlockSkips => "block-skips",
         }
     }
 
@@ -211,7 +217,7 @@ impl SectionKind {
     pub fn required(self, layout: Layout) -> bool {
         match self {
             SectionKind::Metadata | SectionKind::Codebooks | SectionKind::Vocabulary => true,
-            SectionKind::Models => false,
+            SectionKind::Models | SectionKind::BlockSkips => false,
             SectionKind::TargetIndex
             | SectionKind::Targets
             | SectionKind::BlockIndex

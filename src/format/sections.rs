@@ -312,3 +312,126 @@ pub fn group_entry(index: &[u8], g: usize) -> (Range<usize>, u32) {
     let end = LE::read_u64(&e[GROUP_ENTRY_LEN..]) as usize;
     (start..end, LE::read_u32(&e[8..]))
 }
+
+// ---- block skips (2.2, optional): `blocks + 1` u32 counts (resume points before block b),
+// then per point 8 bytes: u32 rANS decoder state, u32 holding the byte position in the block's
+// stream (bits 0..24) and the source rank (bits 24..32) whose options start there ----
+
+/// Bytes of one resume point.
+pub const SKIP_POINT_LEN: usize = 8;
+
+/// Where decoding of a block can resume: before the options of source `rank`, with the rANS
+/// decoder in `state` at byte `pos` of the block's stream (keys decoded from the start).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct SkipPoint {
+    /// Source rank in the block (at least 1).
+    pub rank: usize,
+    /// Byte position in the stored block.
+    pub pos: usize,
+    /// Decoder state there.
+    pub state: u32,
+}
+
+/// Largest byte position a resume point can hold.
+pub const MAX_SKIP_POS: usize = (1 << 24) - 1;
+
+/// Builds the block-skips section from each block's resume points (ranks ascending, each
+/// position at most [`MAX_SKIP_POS`], rank below 256).
+pub fn encode_block_skips(points: &[Vec<SkipPoint>]) -> Vec<u8> {
+    let total: usize = points.iter().map(Vec::len).sum();
+    let mut out = Vec::with_capacity((points.len() + 1) * 4 + total * SKIP_POINT_LEN);
+    let mut before = 0u32;
+    for p in points {
+        out.extend_from_slice(&before.to_le_bytes());
+        before += p.len() as u32;
+    }
+    out.extend_from_slice(&before.to_le_bytes());
+    for p in points.iter().flatten() {
+        out.extend_from_slice(&p.state.to_le_bytes());
+        out.extend_from_slice(&((p.pos as u32) | ((p.rank as u32) << 24)).to_le_bytes());
+    }
+    out
+}
+
+/// Validates a block-skips section for `blocks` blocks of at most `per_block` sources: counts
+/// ascending to the number of points the section holds, ranks ascending within a block from 1
+/// and below `per_block`, states normalized. Later reads index without checks; positions are
+/// checked against the block when used.
+pub fn check_block_skips(b: &[u8], blocks: u64, per_block: u32) -> Result<(), String> {
+    let head = (blocks as usize + 1) * 4;
+    let bad = |what: &str| Err(format!("the block-skips section is malformed: {what}"));
+    if b.len() < head || (b.len() - head) % SKIP_POINT_LEN != 0 {
+        return bad("its length");
+    }
+    let total = (b.len() - head) / SKIP_POINT_LEN;
+    let mut prev = 0usize;
+    for i in 0..=blocks as usize {
+        let n = LE::read_u32(&b[i * 4..]) as usize;
+        if (i == 0 && n != 0) || n < prev || n > total {
+            return bad("its counts");
+        }
+        if i > 0 {
+            let mut rank = 0;
+            for p in prev..n {
+                let point = skip_point(b, head, p);
+                if point.rank <= rank || point.rank >= per_block as usize {
+                    return bad("a source rank");
+                }
+                if point.state < super::coder::RANS_L {
+                    return bad("a coder state");
+                }
+                rank = point.rank;
+            }
+        }
+        prev = n;
+    }
+    if prev != total {
+        return bad("its counts");
+    }
+    Ok(())
+}
+
+fn skip_point(b: &[u8], head: usize, p: usize) -> SkipPoint {
+    let e = &b[head + p * SKIP_POINT_LEN..];
+    let w = LE::read_u32(&e[4..]);
+    SkipPoint {
+        state: LE::read_u32(e),
+        pos: (w & 0x00ff_ffff) as usize,
+        rank: (w >> 24) as usize,
+    }
+}
+
+/// The resume points of one block of a validated block-skips section (none without one).
+#[derive(Clone, Copy, Debug, Default)]
+pub struct SkipPoints<'a> {
+    section: &'a [u8],
+    head: usize,
+    first: usize,
+    end: usize,
+}
+
+impl<'a> SkipPoints<'a> {
+    /// Block `b`'s points in a section validated for `blocks` blocks.
+    pub fn of_block(section: &'a [u8], blocks: usize, b: usize) -> SkipPoints<'a> {
+        if section.is_empty() {
+            return SkipPoints::default();
+        }
+        let at = |i: usize| LE::read_u32(&section[i * 4..]) as usize;
+        SkipPoints {
+            section,
+            head: (blocks + 1) * 4,
+            first: at(b),
+            end: at(b + 1),
+        }
+    }
+
+    /// Every point, ranks ascending.
+    pub fn iter(&self) -> impl Iterator<Item = SkipPoint> + '_ {
+        (self.first..self.end).map(|p| skip_point(self.section, self.head, p))
+    }
+
+    /// The last point at or before source `rank`.
+    pub fn before(&self, rank: usize) -> Option<SkipPoint> {
+        self.iter().take_while(|p| p.rank <= rank).last()
+    }
+}

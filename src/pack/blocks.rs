@@ -8,7 +8,12 @@ use std::path::Path;
 use crate::error::{Error, Result};
 use crate::format::block::{BlockRecords, BlockShape, ModelIds, Upto, COMPONENTS};
 use crate::format::coder::{Models, PlainSink, PlainSource, RansSink, SymbolSink};
-use crate::format::sections::push_block_entry;
+use crate::format::sections::{push_block_entry, SkipPoint, SkipPoints, MAX_SKIP_POS};
+
+/// A resume point is kept before a source once this many options precede it in its block
+/// since the last one: a lookup then decodes at most about this many options besides its own.
+/// Measured on the real en-fr table (20,000 lookups, 10 columns): see DEVELOPERS.md.
+pub(super) const SKIP_EVERY_OPTIONS: u32 = 16;
 
 /// One option as the packer holds it before encoding.
 #[derive(Default)]
@@ -94,6 +99,8 @@ impl SymbolSink for CostSink<'_> {
 /// What [`code_blocks`] wrote.
 pub(super) struct CodedBlocks {
     pub index: Vec<u8>,
+    /// Resume points per block (rANS coding only).
+    pub skips: Option<Vec<Vec<SkipPoint>>>,
     pub bytes: u64,
     pub crc: u32,
     pub max_block: usize,
@@ -124,6 +131,7 @@ pub(super) fn code_blocks(
     let mut coded = Vec::new();
     let mut records = BlockRecords::default();
     let mut key_start = 0u32;
+    let mut skips = models.map(|_| Vec::with_capacity(block_sources.len()));
     for (b, &n) in block_sources.iter().enumerate() {
         let mut len = [0u8; 4];
         input.read_exact(&mut len).map_err(rerr)?;
@@ -140,6 +148,7 @@ pub(super) fn code_blocks(
                 &ids,
                 u64::MAX,
                 &mut PlainSource::new(&raw),
+                SkipPoints::default(),
             )
             .expect("pass 2's plain block parses");
         records.encode(shape, &ids, costs);
@@ -148,6 +157,9 @@ pub(super) fn code_blocks(
                 let mut sink = RansSink::new(m);
                 records.encode(shape, &ids, &mut sink);
                 sink.finish(&mut coded);
+                if let Some(skips) = &mut skips {
+                    skips.push(keep_points(&records, &sink.resume_points));
+                }
                 &coded
             }
             None => &raw,
@@ -163,6 +175,7 @@ pub(super) fn code_blocks(
     output.flush().map_err(werr)?;
     Ok(CodedBlocks {
         index,
+        skips,
         bytes: offset,
         crc: crc_all.finalize(),
         max_block,
@@ -186,4 +199,19 @@ pub(super) fn write_plain_block(
     out.write_all(&(scratch.out.len() as u32).to_le_bytes())?;
     out.write_all(&scratch.out)?;
     Ok(scratch.out.len())
+}
+
+/// The resume points worth storing: one before a source once [`SKIP_EVERY_OPTIONS`] options
+/// precede it since the block's start or the last point.
+fn keep_points(records: &BlockRecords, all: &[(usize, usize, u32)]) -> Vec<SkipPoint> {
+    let mut kept = Vec::new();
+    let mut since = 0u32;
+    for &(rank, pos, state) in all {
+        since += records.options(rank - 1).len() as u32;
+        if since >= SKIP_EVERY_OPTIONS && pos <= MAX_SKIP_POS && rank < 256 {
+            kept.push(SkipPoint { rank, pos, state });
+            since = 0;
+        }
+    }
+    kept
 }

@@ -613,6 +613,8 @@ struct CodedSections {
     models: Option<Models>,
     block_index: Vec<u8>,
     first_keys: Vec<u8>,
+    /// The block-skips section (rANS coding only).
+    block_skips: Option<Vec<u8>>,
     target_index: Vec<u8>,
     target_data: Vec<u8>,
     blocks: Part,
@@ -678,6 +680,10 @@ fn code_sections(
         sources: written.sources,
         models,
         block_index: coded.index,
+        block_skips: coded
+            .skips
+            .as_deref()
+            .map(crate::format::sections::encode_block_skips),
         first_keys: written.first_keys,
         target_index,
         target_data,
@@ -713,6 +719,9 @@ fn compact_parts(
     parts.push((SectionKind::Vocabulary, Part::Memory(vocabulary_section)));
     parts.push((SectionKind::BlockIndex, Part::Memory(coded.block_index)));
     parts.push((SectionKind::BlockKeys, Part::Memory(coded.first_keys)));
+    if let Some(skips) = coded.block_skips {
+        parts.push((SectionKind::BlockSkips, Part::Memory(skips)));
+    }
     parts.push((SectionKind::TargetIndex, Part::Memory(coded.target_index)));
     parts.push((SectionKind::Targets, Part::Memory(coded.target_data)));
     parts.push((SectionKind::Blocks, coded.blocks));

@@ -24,7 +24,7 @@ use std::sync::Arc;
 use crate::error::{Error, Result};
 use crate::format::block::{decode_target, BlockRecords, BlockShape, ModelIds, Upto};
 use crate::format::coder::{Models, PlainSource, RansSource, SymbolSource};
-use crate::format::sections::{self as layout, Codec, Vocabulary};
+use crate::format::sections::{self as layout, Codec, SkipPoints, Vocabulary};
 use crate::format::{self, Compression, Layout, Meta, SectionEntry, SectionKind};
 use crate::mmap::{self, Storage};
 use crate::table::{CountColumn, Header, Metadata, PhrasePair, Schema};
@@ -69,6 +69,8 @@ pub struct Table {
     ids: ModelIds,
     block_index: Range<usize>,
     block_keys: Range<usize>,
+    /// The block-skips section (empty when the file has none).
+    block_skips: Range<usize>,
     blocks: Range<usize>,
     n_blocks: usize,
     target_index: Range<usize>,
@@ -323,6 +325,16 @@ impl Table {
             layout::check_target_index(&data[target_index.clone()], n_groups, targets.len())
                 .map_err(corrupt)?;
         }
+        let block_skips = section(SectionKind::BlockSkips);
+        if let Some(r) = get(SectionKind::BlockSkips) {
+            if layout != Layout::Compact || compression != Compression::Rans {
+                return Err(corrupt(
+                    "a block-skips section is present but blocks are not rANS coded".into(),
+                ));
+            }
+            layout::check_block_skips(&data[r], n_blocks, meta.sources_per_block)
+                .map_err(corrupt)?;
+        }
         let shape = BlockShape {
             widths: codecs.iter().map(Codec::width).collect(),
             alignment: meta.alignment,
@@ -347,6 +359,7 @@ impl Table {
             ids,
             block_index,
             block_keys,
+            block_skips,
             blocks,
             n_blocks: n_blocks as usize,
             target_index,
@@ -544,7 +557,7 @@ impl Table {
                     match self.options_cache.get(slot) {
                         Some(hit) if *hit.0 == *key => options.share(&hit.1),
                         _ => {
-                            let full = self.block_with(*b, at.rank + 1)?;
+                            let full = self.block_with_source(*b, at.rank)?;
                             self.fill(&full, at.rank, &mut options)?;
                             self.offer_options(slot, &key, &mut options);
                         }
@@ -669,18 +682,21 @@ impl Table {
 
     /// Block `b` with at least its keys decoded (from the cache, or decoded and offered to it).
     fn block(&self, b: usize) -> Result<Arc<BlockRecords>> {
-        self.block_with(b, 0)
+        if let Some(hit) = self.block_cache.get(b) {
+            return Ok(hit);
+        }
+        self.decode_and_offer(b, Upto::Sources(0))
     }
 
-    /// Block `b` with its keys and the options of its first `upto` sources decoded. A block
-    /// is decoded only as far as asked, and again further when more is asked of it.
-    fn block_with(&self, b: usize, upto: usize) -> Result<Arc<BlockRecords>> {
+    /// Block `b` with its keys and the options of source `r` decoded. A block is decoded only
+    /// as far as asked (from the last resume point before `r`), and again when more is asked.
+    fn block_with_source(&self, b: usize, r: usize) -> Result<Arc<BlockRecords>> {
         if let Some(hit) = self.block_cache.get(b) {
-            if hit.with_options >= upto {
+            if hit.has_options(r) {
                 return Ok(hit);
             }
         }
-        self.decode_and_offer(b, Upto::Sources(upto))
+        self.decode_and_offer(b, Upto::Source(r, false))
     }
 
     /// Block `b` decoded as far as `upto` asks, offered to the cache.
@@ -702,10 +718,10 @@ impl Table {
         };
         let r = block.lower_bound(key);
         if r < block.sources() && block.key(r) == key {
-            if block.with_options > r {
+            if block.has_options(r) {
                 return Ok((block, Some(r)));
             }
-            return Ok((self.block_with(b, r + 1)?, Some(r)));
+            return Ok((self.block_with_source(b, r)?, Some(r)));
         }
         Ok((block, None))
     }
@@ -736,6 +752,7 @@ impl Table {
                     &self.ids,
                     self.meta.pairs,
                     &mut src,
+                    self.skip_points(b),
                 ),
                 None => Err("its coder state"),
             },
@@ -747,9 +764,15 @@ impl Table {
                 &self.ids,
                 self.meta.pairs,
                 &mut PlainSource::new(stored),
+                SkipPoints::default(),
             ),
         };
         result.map_err(|what| self.corrupt(format!("block {b} is malformed: {what}")))
+    }
+
+    /// Block `b`'s resume points (none when the file has no block-skips section).
+    pub(crate) fn skip_points(&self, b: usize) -> SkipPoints<'_> {
+        SkipPoints::of_block(&self.data()[self.block_skips.clone()], self.n_blocks, b)
     }
 
     /// Target group `g` with at least its first `upto` targets decoded (from the cache, or
@@ -855,9 +878,9 @@ impl Table {
         let per = self.meta.targets_per_group as usize;
         let code_bytes = self.shape.code_bytes();
         let mut cached: Option<(usize, Arc<Group>)> = None;
-        debug_assert!(r < block.with_options, "the block's options were decoded");
+        debug_assert!(block.has_options(r), "the block's options were decoded");
         for k in block.options(r) {
-            let t = block.targets[k] as usize;
+            let t = block.target(k) as usize;
             if t as u64 >= self.meta.targets {
                 return Err(self.corrupt(format!(
                     "a target reference ({t}) is outside the {} targets",
@@ -884,28 +907,22 @@ impl Table {
             out.ends.push(out.text.len() as u32);
             out.ids.extend_from_slice(words);
             out.id_ends.push(out.ids.len() as u32);
-            let mut at = k * code_bytes;
+            let codes = block.codes_of(k, code_bytes);
+            let mut at = 0;
             for codec in &self.codecs {
                 let w = codec.width();
                 let v = codec
-                    .decode(&block.codes[at..at + w])
+                    .decode(&codes[at..at + w])
                     .ok_or_else(|| self.corrupt("a score code is outside its codebook"))?;
                 out.scores.push(v);
                 at += w;
             }
             if self.shape.alignment {
-                let start = if k == 0 {
-                    0
-                } else {
-                    block.link_ends[k - 1] as usize
-                };
-                out.links
-                    .extend_from_slice(&block.links[start..block.link_ends[k] as usize]);
+                out.links.extend_from_slice(block.links_of(k));
                 out.link_ends.push(out.links.len() as u32);
             }
-            let nc = self.shape.counts;
             out.counts
-                .extend_from_slice(&block.counts[k * nc..(k + 1) * nc]);
+                .extend_from_slice(block.counts_of(k, self.shape.counts));
         }
         Ok(())
     }

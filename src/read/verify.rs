@@ -1,7 +1,7 @@
 //! Full verification: every checksum, every record.
 
 use crate::error::Result;
-use crate::format::block::BlockRecords;
+use crate::format::block::{BlockRecords, Upto};
 
 use super::{Table, VerifyReport};
 
@@ -71,6 +71,23 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
                     table.corrupt(format!("block {b} holds a score code outside its codebook"))
                 })?;
                 at += w;
+            }
+        }
+        // Every resume point continues the stream as decoding from the start does.
+        for p in table.skip_points(b).iter() {
+            let mut part = BlockRecords::default();
+            table.decode_block_upto(b, Upto::Source(p.rank, true), &mut part)?;
+            let start = block.options(p.rank).start;
+            let same = part.options_from == p.rank
+                && part.targets[..] == block.targets[start..]
+                && part.codes[..] == block.codes[start * code_bytes..]
+                && part.counts[..] == block.counts[start * table.shape.counts..]
+                && (start..block.targets.len()).all(|k| part.links_of(k) == block.links_of(k));
+            if !same {
+                return Err(table.corrupt(format!(
+                    "block {b}'s resume point before source {} disagrees with its stream",
+                    p.rank
+                )));
             }
         }
         sources += block.sources() as u64;
