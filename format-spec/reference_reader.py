@@ -43,6 +43,7 @@ KINDS = {
     11: "records",
     12: "text",
     13: "chunks",
+    14: "block-skips",
 }
 REQUIRED = {
     "compact": {1, 2, 3, 5, 6, 7, 8, 9},
@@ -498,6 +499,25 @@ class Table:
             last = off
         if last != len(self.sections[6]):
             fail("the target index does not end at the end of the targets")
+        # section 6.4: resume points, checked against the streams in decode_block
+        self.skips = [[] for _ in range(self.blocks)]
+        if 14 in self.sections:
+            sk = self.sections[14]
+            if meta["block_compression"] != "rans":
+                fail("a block-skips section is present but blocks are not rANS coded")
+            head = 4 * (self.blocks + 1)
+            if len(sk) < head or (len(sk) - head) % 8:
+                fail("the block-skips section is malformed: its length")
+            before = [u32(sk, 4 * i) for i in range(self.blocks + 1)]
+            total = (len(sk) - head) // 8
+            if before[0] != 0 or before[-1] != total or before != sorted(before):
+                fail("the block-skips section is malformed: its counts")
+            for i in range(self.blocks):
+                for p in range(before[i], before[i + 1]):
+                    state, word = struct.unpack_from("<II", sk, head + 8 * p)
+                    if word >> 24 <= (self.skips[i][-1][0] if self.skips[i] else 0):
+                        fail("the block-skips section is malformed: a source rank")
+                    self.skips[i].append((word >> 24, word & 0xFFFFFF, state))
 
     # section 6.2
     def read_targets(self):
@@ -548,7 +568,12 @@ class Table:
                 sources.append(key)
             counts_of.append(src.number(OPTION_COUNT) + 1)
         out = []
+        points = list(self.skips[i])
         for r in range(n):
+            if points and points[0][0] == r:
+                rank, pos, state = points.pop(0)
+                if (src.pos, src.x) != (pos, state):
+                    fail(f"block {i}'s resume point before source {rank} disagrees with its stream")
             options, previous = [], None
             m = counts_of[r]
             for j in range(m):
@@ -572,6 +597,8 @@ class Table:
                 out.append((sources[r].decode("utf-8"), options))
             except UnicodeDecodeError:
                 fail(f"a source phrase in block {i} is not UTF-8")
+        if points:
+            fail(f"block {i} has a resume point at no source boundary")
         if not src.finished():
             fail(f"block {i} has unexplained trailing data")
         return out

@@ -23,9 +23,13 @@ pub const MAGIC: [u8; 8] = *b"BALER\r\n\x1a";
 /// Major format version: readers refuse files with another major version.
 pub const VERSION_MAJOR: u16 = 2;
 
-/// Minor format version of files in the `compact` layout: 2.2 adds the optional block-skips
-/// section (resume points inside rANS blocks), which 2.0 readers skip as an unknown kind.
-pub const VERSION_MINOR: u16 = 2;
+/// Minor format version of files in the `compact` layout without a block-skips section (what
+/// 2.0 readers read).
+pub const VERSION_MINOR: u16 = 0;
+
+/// Minor format version of `compact` files with the optional block-skips section (2.2: resume
+/// points inside rANS blocks, which 2.0 readers skip as an unknown kind).
+pub const VERSION_MINOR_SKIPS: u16 = 2;
 
 /// Minor format version of files in the `direct` layout (2.1: new sections that 2.0 readers
 /// refuse, as they lack the compact layout's required sections).

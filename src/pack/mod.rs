@@ -680,9 +680,11 @@ fn code_sections(
         sources: written.sources,
         models,
         block_index: coded.index,
+        // Without any resume point (small tables) the file stays 2.0.
         block_skips: coded
             .skips
             .as_deref()
+            .filter(|s| s.iter().any(|p| !p.is_empty()))
             .map(crate::format::sections::encode_block_skips),
         first_keys: written.first_keys,
         target_index,
@@ -887,7 +889,11 @@ fn write_file(
     }
     let mut header = format::FileHeader {
         major: format::VERSION_MAJOR,
-        minor: layout.minor_version(),
+        minor: if parts.iter().any(|(k, _)| *k == SectionKind::BlockSkips) {
+            format::VERSION_MINOR_SKIPS
+        } else {
+            layout.minor_version()
+        },
         section_count: parts.len() as u32,
         table_crc32: 0,
     };

@@ -55,6 +55,7 @@ use cache::Cache;
 /// ```
 pub struct Table {
     path: PathBuf,
+    minor: u16,
     storage: Arc<Storage>,
     meta: Meta,
     header: Header,
@@ -348,6 +349,7 @@ impl Table {
         let (options_bytes, block_bytes) = (budget / 2, budget / 4);
         Ok(Table {
             path,
+            minor: fh.minor,
             shared_schema,
             header,
             entries,
@@ -459,6 +461,11 @@ impl Table {
         } else {
             Layout::Compact
         }
+    }
+
+    /// The file's minor format version (its major version is [`format::VERSION_MAJOR`]).
+    pub fn minor_version(&self) -> u16 {
+        self.minor
     }
 
     /// Number of distinct target words; ids run from 0 to this, most frequent first.
