@@ -104,6 +104,10 @@ pub enum Upto<'k> {
     /// The options of source `r` (from the last resume point at or before it) and of every
     /// source after it when `to_end`.
     Source(usize, bool),
+    /// Like [`Upto::Key`], but keys are decoded only as far as needed: up to the first key not
+    /// below this one when it is missing, or when a resume point lets decoding jump to its
+    /// options; the records then hold only the keys up to it (for one lookup, not a cache).
+    Lookup(&'k [u8]),
 }
 
 /// The decoded form of a block, also what the writer fills before encoding.
@@ -343,6 +347,7 @@ impl BlockRecords {
         self.key_ends.reserve_exact(sources);
         self.option_ends.reserve_exact(sources);
         let mut total = 0u64;
+        let mut found = false;
         for r in 0..sources {
             if r == 0 {
                 self.key_bytes.extend_from_slice(first_key);
@@ -379,13 +384,23 @@ impl BlockRecords {
                 return Err("option counts beyond the table's pairs");
             }
             self.option_ends.push(total as u32);
+            if let (Upto::Lookup(want), false) = (upto, found) {
+                // Stop at the first key above the wanted one (it is missing), or at the wanted
+                // one when a resume point leads to its options; without one, the options are
+                // reached only past every key.
+                let key = self.key(r);
+                if key > want || (key == want && r > 0 && points.before(r).is_some()) {
+                    break;
+                }
+                found = key == want;
+            }
         }
         let per = shape.code_bytes();
         let (from, upto) = match upto {
             Upto::Sources(n) => (0, n.min(sources)),
-            Upto::Key(key) => {
+            Upto::Key(key) | Upto::Lookup(key) => {
                 let r = self.lower_bound(key);
-                if r < sources && self.key(r) == key {
+                if r < self.sources() && self.key(r) == key {
                     (r, r + 1)
                 } else {
                     (0, 0)
@@ -661,6 +676,26 @@ mod tests {
                         assert_eq!(part.codes_of(k, 4), b.codes_of(k, 4));
                         assert_eq!(part.links_of(k), b.links_of(k));
                         assert_eq!(part.counts_of(k, 1), b.counts_of(k, 1));
+                    }
+                }
+                if !to_end {
+                    let mut look = BlockRecords::default();
+                    let mut src = RansSource::new(&models, &coded).unwrap();
+                    look.decode(
+                        b.key(0),
+                        4,
+                        Upto::Lookup(b.key(r)),
+                        &shape,
+                        &ids,
+                        100,
+                        &mut src,
+                        skips,
+                    )
+                    .unwrap();
+                    assert!(look.has_options(r));
+                    for k in b.options(r) {
+                        assert_eq!(look.target(k), b.target(k), "lookup of source {r}");
+                        assert_eq!(look.counts_of(k, 1), b.counts_of(k, 1));
                     }
                 }
                 // Decoding to the end checks that the stream ends there.

@@ -497,13 +497,37 @@ impl Table {
         let Some(b) = self.find_block(key) else {
             return Ok(false);
         };
-        let (block, found) = self.block_for_key(b, key)?;
-        if let Some(r) = found {
-            self.fill(&block, r, options)?;
-            self.offer_options(slot, key, options);
-            return Ok(true);
+        if let Some(block) = self.block_cache.get(b) {
+            let (block, found) = self.block_for_key(b, key, block)?;
+            if let Some(r) = found {
+                self.fill(&block, r, options)?;
+                self.offer_options(slot, key, options);
+                return Ok(true);
+            }
+            return Ok(false);
         }
-        Ok(false)
+        // Not cached: decode just what this lookup needs (keys up to the phrase, options
+        // from the resume point before it) into this thread's scratch records, which keep
+        // their buffers from lookup to lookup.
+        thread_local! {
+            static SCRATCH: std::cell::RefCell<BlockRecords> = Default::default();
+        }
+        SCRATCH.with(|scratch| {
+            let mut own = BlockRecords::default();
+            let mut borrowed = scratch.try_borrow_mut();
+            let records = match &mut borrowed {
+                Ok(r) => &mut **r,
+                Err(_) => &mut own,
+            };
+            self.decode_block_upto(b, Upto::Lookup(key), records)?;
+            let r = records.lower_bound(key);
+            if r < records.sources() && records.key(r) == key {
+                self.fill(records, r, options)?;
+                self.offer_options(slot, key, options);
+                return Ok(true);
+            }
+            Ok(false)
+        })
     }
 
     /// The source ordinal (position in byte order) of a phrase, if present.
@@ -716,13 +740,14 @@ impl Table {
         Ok(records)
     }
 
-    /// Block `b` with the options of the source equal to `key` decoded, and that source's
-    /// rank, if the block holds it: one pass over the block's stream when it is not cached.
-    fn block_for_key(&self, b: usize, key: &[u8]) -> Result<(Arc<BlockRecords>, Option<usize>)> {
-        let block = match self.block_cache.get(b) {
-            Some(hit) => hit,
-            None => self.decode_and_offer(b, Upto::Key(key))?,
-        };
+    /// Cached block `b` with the options of the source equal to `key` decoded (decoded again
+    /// from its resume point when they are not), and that source's rank, if the block holds it.
+    fn block_for_key(
+        &self,
+        b: usize,
+        key: &[u8],
+        block: Arc<BlockRecords>,
+    ) -> Result<(Arc<BlockRecords>, Option<usize>)> {
         let r = block.lower_bound(key);
         if r < block.sources() && block.key(r) == key {
             if block.has_options(r) {
