@@ -165,17 +165,11 @@ impl SymbolSink for Counter {
 pub struct Models {
     freq: Vec<[u16; 256]>,
     start: Vec<[u16; 256]>,
-    /// Per model, one decoding entry per slot ([`Entry`]); empty for a model no symbol used.
-    slots: Vec<Box<[Entry]>>,
-}
-
-/// What decoding needs of one slot, in one word: the symbol (bits 0..8), its frequency minus
-/// one (bits 8..20) and the slot's distance from the symbol's start (bits 20..32).
-type Entry = u32;
-
-#[inline]
-fn entry(sym: u8, freq: u32, offset: u32) -> Entry {
-    u32::from(sym) | ((freq - 1) << 8) | (offset << 20)
+    /// Per model, the symbol of each slot (4 KiB); empty for a model no symbol used.
+    slots: Vec<Box<[u8]>>,
+    /// Per model, per symbol, its frequency (low 16 bits) and start (high 16 bits): one load
+    /// after the slot's, from a 1 KiB table.
+    pairs: Vec<Box<[u32]>>,
 }
 
 /// Bytes one model takes in the models section (256 little-endian `u16` frequencies).
@@ -191,12 +185,14 @@ impl Models {
     fn from_freq(freq: Vec<[u16; 256]>) -> Result<Models, String> {
         let mut start = Vec::with_capacity(freq.len());
         let mut slots = Vec::with_capacity(freq.len());
+        let mut pairs = Vec::with_capacity(freq.len());
         for (m, f) in freq.iter().enumerate() {
             let total: u32 = f.iter().map(|&x| u32::from(x)).sum();
             let mut s = [0u16; 256];
             if total == 0 {
                 start.push(s);
                 slots.push(Box::default());
+                pairs.push(Box::default());
                 continue;
             }
             if total != PROB_SCALE {
@@ -204,23 +200,26 @@ impl Models {
                     "model {m}'s frequencies sum to {total}, not {PROB_SCALE}"
                 ));
             }
-            let mut table = vec![0; PROB_SCALE as usize].into_boxed_slice();
+            let mut table = vec![0u8; PROB_SCALE as usize].into_boxed_slice();
+            let mut pair = vec![0u32; 256].into_boxed_slice();
             let mut acc = 0u32;
             for sym in 0..256 {
                 s[sym] = acc as u16;
                 let n = u32::from(f[sym]);
-                for (o, e) in table[acc as usize..(acc + n) as usize]
-                    .iter_mut()
-                    .enumerate()
-                {
-                    *e = entry(sym as u8, n, o as u32);
-                }
+                table[acc as usize..(acc + n) as usize].fill(sym as u8);
+                pair[sym] = n | (acc << 16);
                 acc += n;
             }
             start.push(s);
             slots.push(table);
+            pairs.push(pair);
         }
-        Ok(Models { freq, start, slots })
+        Ok(Models {
+            freq,
+            start,
+            slots,
+            pairs,
+        })
     }
 
     /// The models section.
@@ -463,11 +462,11 @@ impl<'a> RansSource<'a> {
     fn symbol(&mut self, model: usize) -> Option<u8> {
         let table = self.models.slots.get(model)?;
         let slot = self.x & (PROB_SCALE - 1);
-        let e = *table.get(slot as usize)?;
-        let f = ((e >> 8) & (PROB_SCALE - 1)) + 1;
-        self.x = f * (self.x >> PROB_BITS) + (e >> 20);
+        let sym = *table.get(slot as usize)?;
+        let e = self.models.pairs[model][usize::from(sym)];
+        self.x = (e & 0xffff) * (self.x >> PROB_BITS) + slot - (e >> 16);
         self.renormalize()?;
-        Some(e as u8)
+        Some(sym)
     }
 
     #[inline]
