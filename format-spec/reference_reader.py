@@ -44,6 +44,7 @@ KINDS = {
     12: "text",
     13: "chunks",
     14: "block-skips",
+    15: "group-skips",
 }
 REQUIRED = {
     "compact": {1, 2, 3, 5, 6, 7, 8, 9},
@@ -499,7 +500,21 @@ class Table:
             last = off
         if last != len(self.sections[6]):
             fail("the target index does not end at the end of the targets")
-        # section 6.4: resume points, checked against the streams in decode_block
+        # section 5.9: one resume point per target group, checked in read_targets
+        self.group_skips = None
+        if 15 in self.sections:
+            gs = self.sections[15]
+            if meta["block_compression"] != "rans":
+                fail("a group-skips section is present but groups are not rANS coded")
+            if len(gs) != 8 * self.groups:
+                fail(f"the group-skips section holds {len(gs)} bytes for {self.groups} groups")
+            self.group_skips = []
+            for g in range(self.groups):
+                state, pos = struct.unpack_from("<II", gs, 8 * g)
+                if (state == 0 and pos != 0) or (state != 0 and state < RANS_L):
+                    fail("the group-skips section is malformed: a coder state")
+                self.group_skips.append((state, pos) if state else None)
+        # section 5.8: resume points, checked against the streams in decode_block
         self.skips = [[] for _ in range(self.blocks)]
         if 14 in self.sections:
             sk = self.sections[14]
@@ -530,12 +545,19 @@ class Table:
             if zlib.crc32(stored) != crc:
                 fail(f"target group {g} fails its checksum")
             src = self.source(stored, f"target group {g}")
-            for _ in range(min(per, meta["targets"] - g * per)):
+            point = self.group_skips[g] if self.group_skips else None
+            for t in range(min(per, meta["targets"] - g * per)):
+                if point and t == per // 2:
+                    if (src.pos, src.x) != (point[1], point[0]):
+                        fail(f"target group {g}'s resume point disagrees with its stream")
+                    point = None
                 n = src.number(TARGET_LEN) + 1
                 ids = [src.number(TARGET_WORD) for _ in range(n)]
                 if any(w >= len(self.words) for w in ids):
                     fail(f"target group {g} uses a word outside the vocabulary")
                 self.targets.append((" ".join(self.words[w] for w in ids), n))
+            if point:
+                fail(f"target group {g} has a resume point past its targets")
             if not src.finished():
                 fail(f"target group {g} has unexplained trailing data")
 

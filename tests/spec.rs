@@ -553,9 +553,9 @@ fn compatibility_files_of_format_2_0_still_read() {
 }
 
 /// The frozen files of format 2.2 (`tests/data/spec/compat/2.2/README.md`, with resume points
-/// in the block-skips section) read the same with baler's reader and the reference reader,
-/// which checks every resume point against the block's stream; a lookup of every source, which
-/// resumes at those points, gives the frozen dump's options.
+/// in the block-skips and group-skips sections) read the same with baler's reader and the
+/// reference reader, which checks every resume point against its stream; a lookup of every
+/// source, which resumes at those points, gives the frozen dump's options.
 #[test]
 fn compatibility_files_of_format_2_2_still_read() {
     let dir = manifest_path("tests/data/spec/compat/2.2");

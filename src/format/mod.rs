@@ -27,8 +27,9 @@ pub const VERSION_MAJOR: u16 = 2;
 /// 2.0 readers read).
 pub const VERSION_MINOR: u16 = 0;
 
-/// Minor format version of `compact` files with the optional block-skips section (2.2: resume
-/// points inside rANS blocks, which 2.0 readers skip as an unknown kind).
+/// Minor format version of `compact` files with the optional block-skips or group-skips
+/// sections (2.2: resume points inside rANS blocks and target groups, which 2.0 readers skip as
+/// unknown kinds).
 pub const VERSION_MINOR_SKIPS: u16 = 2;
 
 /// Minor format version of files in the `direct` layout (2.1: new sections that 2.0 readers
@@ -157,11 +158,14 @@ pub enum SectionKind {
     /// `compact` layout, optional (2.2): rANS resume points inside source blocks, so a lookup
     /// decodes the options of the source it wants without those of the sources before it.
     BlockSkips = 14,
+    /// `compact` layout, optional (2.2): one rANS resume point per target group, before its
+    /// middle target, so a target in the second half is decoded without the first half.
+    GroupSkips = 15,
 }
 
 impl SectionKind {
     /// Every kind, in the order the writer lays them out.
-    pub const ALL: [SectionKind; 14] = [
+    pub const ALL: [SectionKind; 15] = [
         SectionKind::Metadata,
         SectionKind::Codebooks,
         SectionKind::Models,
@@ -170,6 +174,7 @@ impl SectionKind {
         SectionKind::BlockKeys,
         SectionKind::BlockSkips,
         SectionKind::TargetIndex,
+        SectionKind::GroupSkips,
         SectionKind::Targets,
         SectionKind::Blocks,
         SectionKind::DirectChunks,
@@ -200,6 +205,7 @@ impl SectionKind {
             SectionKind::DirectText => "text",
             SectionKind::DirectChunks => "chunks",
             SectionKind::BlockSkips => "block-skips",
+            SectionKind::GroupSkips => "group-skips",
         }
     }
 
@@ -221,7 +227,7 @@ impl SectionKind {
     pub fn required(self, layout: Layout) -> bool {
         match self {
             SectionKind::Metadata | SectionKind::Codebooks | SectionKind::Vocabulary => true,
-            SectionKind::Models | SectionKind::BlockSkips => false,
+            SectionKind::Models | SectionKind::BlockSkips | SectionKind::GroupSkips => false,
             SectionKind::TargetIndex
             | SectionKind::Targets
             | SectionKind::BlockIndex

@@ -435,3 +435,50 @@ impl<'a> SkipPoints<'a> {
         self.iter().take_while(|p| p.rank <= rank).last()
     }
 }
+
+// ---- group skips (2.2, optional): per target group 8 bytes, u32 rANS decoder state and u32
+// byte position in the stored group, of the decoder before target `targets_per_group / 2` of
+// the group; both 0 for a group without that many targets ----
+
+/// Bytes of one group's resume point.
+pub const GROUP_SKIP_LEN: usize = 8;
+
+/// The target (index in its group) a group's resume point is before.
+pub fn group_skip_target(targets_per_group: u32) -> usize {
+    (targets_per_group / 2) as usize
+}
+
+/// Appends one group's resume point (`None`: the group has none).
+pub fn push_group_skip(out: &mut Vec<u8>, point: Option<(u32, usize)>) {
+    let (state, pos) = point.unwrap_or((0, 0));
+    out.extend_from_slice(&state.to_le_bytes());
+    out.extend_from_slice(&(pos as u32).to_le_bytes());
+}
+
+/// Validates a group-skips section for `groups` groups: its length, and each state either 0
+/// (with position 0) or normalized. Positions are checked against the group when used.
+pub fn check_group_skips(b: &[u8], groups: u64) -> Result<(), String> {
+    if b.len() as u64 != groups * GROUP_SKIP_LEN as u64 {
+        return Err(format!(
+            "the group-skips section holds {} bytes; {groups} groups need {}",
+            b.len(),
+            groups * GROUP_SKIP_LEN as u64
+        ));
+    }
+    for e in b.chunks_exact(GROUP_SKIP_LEN) {
+        let (state, pos) = (LE::read_u32(e), LE::read_u32(&e[4..]));
+        if (state == 0 && pos != 0) || (state != 0 && state < super::coder::RANS_L) {
+            return Err("the group-skips section is malformed: a coder state".into());
+        }
+    }
+    Ok(())
+}
+
+/// Group `g`'s resume point `(state, position)` in a validated group-skips section (`None`
+/// without a section or a point).
+#[inline]
+pub fn group_skip(b: &[u8], g: usize) -> Option<(u32, usize)> {
+    let e = b.get(g * GROUP_SKIP_LEN..(g + 1) * GROUP_SKIP_LEN)?;
+    let state = LE::read_u32(e);
+    (state != 0).then(|| (state, LE::read_u32(&e[4..]) as usize))
+}

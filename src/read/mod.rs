@@ -72,6 +72,8 @@ pub struct Table {
     block_keys: Range<usize>,
     /// The block-skips section (empty when the file has none).
     block_skips: Range<usize>,
+    /// The group-skips section (empty when the file has none).
+    group_skips: Range<usize>,
     blocks: Range<usize>,
     n_blocks: usize,
     target_index: Range<usize>,
@@ -84,15 +86,23 @@ pub struct Table {
     seen_sources: Box<[std::sync::atomic::AtomicU32]>,
 }
 
-/// The decoded word ids of one target group.
+/// The decoded word ids of targets `first ..` of one target group (`first` is 0 unless
+/// decoding resumed at the group's resume point).
 #[derive(Default)]
 pub(crate) struct Group {
+    first: usize,
     ids: Vec<u32>,
     ends: Vec<u32>,
 }
 
 impl Group {
+    /// Whether target `i` of the group is decoded.
+    fn has(&self, i: usize) -> bool {
+        i >= self.first && i - self.first < self.ends.len()
+    }
+
     fn target(&self, i: usize) -> &[u32] {
+        let i = i - self.first;
         let start = if i == 0 { 0 } else { self.ends[i - 1] as usize };
         &self.ids[start..self.ends[i] as usize]
     }
@@ -338,6 +348,15 @@ impl Table {
             layout::check_block_skips(&data[r], n_blocks, meta.sources_per_block)
                 .map_err(corrupt)?;
         }
+        let group_skips = section(SectionKind::GroupSkips);
+        if let Some(r) = get(SectionKind::GroupSkips) {
+            if layout != Layout::Compact || compression != Compression::Rans {
+                return Err(corrupt(
+                    "a group-skips section is present but groups are not rANS coded".into(),
+                ));
+            }
+            layout::check_group_skips(&data[r], n_groups).map_err(corrupt)?;
+        }
         let shape = BlockShape {
             widths: codecs.iter().map(Codec::width).collect(),
             alignment: meta.alignment,
@@ -364,6 +383,7 @@ impl Table {
             block_index,
             block_keys,
             block_skips,
+            group_skips,
             blocks,
             n_blocks: n_blocks as usize,
             target_index,
@@ -816,23 +836,24 @@ impl Table {
         SkipPoints::of_block(&self.data()[self.block_skips.clone()], self.n_blocks, b)
     }
 
-    /// Target group `g` with at least its first `upto` targets decoded (from the cache, or
-    /// decoded and offered to it).
-    fn group(&self, g: usize, upto: usize) -> Result<Arc<Group>> {
+    /// Target group `g` with its target `i` decoded (from the cache, or decoded from the
+    /// group's start or its resume point, and offered to the cache).
+    fn group(&self, g: usize, i: usize) -> Result<Arc<Group>> {
         if let Some(hit) = self.group_cache.get(g) {
-            if hit.ends.len() >= upto {
+            if hit.has(i) {
                 return Ok(hit);
             }
         }
-        let group = Arc::new(self.decode_group(g, upto)?);
+        let group = Arc::new(self.decode_group(g, i, i + 1)?);
         let bytes = 4 * (group.ids.len() + group.ends.len()) + 64;
         self.group_cache.insert(g, group.clone(), bytes);
         Ok(group)
     }
 
-    /// Checks group `g`'s checksum and decodes its first `upto` targets (all of them, and a
-    /// check that the stream ends where it should, when `upto` covers the group).
-    fn decode_group(&self, g: usize, upto: usize) -> Result<Group> {
+    /// Checks group `g`'s checksum and decodes its targets up to `upto` (all of them, and a
+    /// check that the stream ends where it should, when `upto` covers the group), from its
+    /// resume point when that lies after the group's start and not after target `want`.
+    fn decode_group(&self, g: usize, want: usize, upto: usize) -> Result<Group> {
         if g >= self.n_groups {
             return Err(self.corrupt(format!(
                 "target group {g} is outside the {} groups",
@@ -847,8 +868,17 @@ impl Table {
         }
         let per = u64::from(self.meta.targets_per_group);
         let all = (self.meta.targets - g as u64 * per).min(per) as usize;
-        let n = all.min(upto);
+        let upto = all.min(upto);
+        let middle = layout::group_skip_target(self.meta.targets_per_group);
+        let skip = if middle > 0 && want >= middle && upto > middle {
+            layout::group_skip(&data[self.group_skips.clone()], g)
+        } else {
+            None
+        };
+        let first = if skip.is_some() { middle } else { 0 };
+        let n = upto - first;
         let mut group = Group {
+            first,
             ids: Vec::with_capacity(n * 4),
             ends: Vec::with_capacity(n),
         };
@@ -863,17 +893,20 @@ impl Table {
             Ok(())
         };
         let result = match &self.models {
-            Some(m) => match RansSource::new(m, stored) {
+            Some(m) => match RansSource::new(m, stored).and_then(|mut s| {
+                skip.is_none_or(|(state, pos)| s.resume(state, pos))
+                    .then_some(s)
+            }) {
                 Some(mut s) => run(
                     &mut |out| decode_target(&mut s, vocabulary, out),
                     &mut group,
                 )
                 .and_then(|()| {
-                    (n < all || s.finished())
+                    (upto < all || s.finished())
                         .then_some(())
                         .ok_or("the group's end")
                 }),
-                None => Err("its coder state"),
+                None => Err("its coder state or resume point"),
             },
             None => {
                 let mut s = PlainSource::new(stored);
@@ -941,9 +974,9 @@ impl Table {
             }
             let (g, i) = (t / per, t % per);
             let group = match &cached {
-                Some((cg, grp)) if *cg == g && grp.ends.len() > i => grp.clone(),
+                Some((cg, grp)) if *cg == g && grp.has(i) => grp.clone(),
                 _ => {
-                    let grp = self.group(g, i + 1)?;
+                    let grp = self.group(g, i)?;
                     cached = Some((g, grp.clone()));
                     grp
                 }

@@ -31,8 +31,25 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
     }
     // Target groups: each decodes completely (word ids checked against the vocabulary).
     for g in 0..table.n_groups {
-        let group = table.decode_group(g, usize::MAX)?;
+        let group = table.decode_group(g, 0, usize::MAX)?;
         report.targets += group.ends.len() as u64;
+        // Its resume point continues the stream as decoding from the start does.
+        let part = table.decode_group(g, usize::MAX, usize::MAX)?;
+        if part.first > 0 {
+            let skipped = group.ends[part.first - 1];
+            let same = part.ends.len() + part.first == group.ends.len()
+                && part.ids[..] == group.ids[skipped as usize..]
+                && part
+                    .ends
+                    .iter()
+                    .zip(&group.ends[part.first..])
+                    .all(|(a, b)| a + skipped == *b);
+            if !same {
+                return Err(table.corrupt(format!(
+                    "target group {g}'s resume point disagrees with its stream"
+                )));
+            }
+        }
     }
     if report.targets != table.meta.targets {
         return Err(table.corrupt(format!(
