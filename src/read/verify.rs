@@ -34,7 +34,14 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
         let group = table.decode_group(g, 0, usize::MAX)?;
         report.targets += group.ends.len() as u64;
         // Its resume point continues the stream as decoding from the start does.
-        let part = table.decode_group(g, usize::MAX, usize::MAX)?;
+        let disagrees = || {
+            table.corrupt(format!(
+                "target group {g}'s resume point disagrees with its stream"
+            ))
+        };
+        let part = table
+            .decode_group(g, usize::MAX, usize::MAX)
+            .map_err(|_| disagrees())?;
         if part.first > 0 {
             let skipped = group.ends[part.first - 1];
             let same = part.ends.len() + part.first == group.ends.len()
@@ -45,9 +52,7 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
                     .zip(&group.ends[part.first..])
                     .all(|(a, b)| a + skipped == *b);
             if !same {
-                return Err(table.corrupt(format!(
-                    "target group {g}'s resume point disagrees with its stream"
-                )));
+                return Err(disagrees());
             }
         }
     }
@@ -92,8 +97,16 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
         }
         // Every resume point continues the stream as decoding from the start does.
         for p in table.skip_points(b).iter() {
+            let disagrees = || {
+                table.corrupt(format!(
+                    "block {b}'s resume point before source {} disagrees with its stream",
+                    p.rank
+                ))
+            };
             let mut part = BlockRecords::default();
-            table.decode_block_upto(b, Upto::Source(p.rank, true), &mut part)?;
+            table
+                .decode_block_upto(b, Upto::Source(p.rank, true), &mut part)
+                .map_err(|_| disagrees())?;
             let start = block.options(p.rank).start;
             let same = part.options_from == p.rank
                 && part.targets[..] == block.targets[start..]
@@ -101,10 +114,7 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
                 && part.counts[..] == block.counts[start * table.shape.counts..]
                 && (start..block.targets.len()).all(|k| part.links_of(k) == block.links_of(k));
             if !same {
-                return Err(table.corrupt(format!(
-                    "block {b}'s resume point before source {} disagrees with its stream",
-                    p.rank
-                )));
+                return Err(disagrees());
             }
         }
         sources += block.sources() as u64;
