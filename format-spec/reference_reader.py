@@ -506,11 +506,11 @@ class Table:
             gs = self.sections[15]
             if meta["block_compression"] != "rans":
                 fail("a group-skips section is present but groups are not rANS coded")
-            if len(gs) != 8 * self.groups:
+            if len(gs) != 6 * self.groups:
                 fail(f"the group-skips section holds {len(gs)} bytes for {self.groups} groups")
             self.group_skips = []
             for g in range(self.groups):
-                state, pos = struct.unpack_from("<II", gs, 8 * g)
+                state, pos = struct.unpack_from("<IH", gs, 6 * g)
                 if (state == 0 and pos != 0) or (state != 0 and state < RANS_L):
                     fail("the group-skips section is malformed: a coder state")
                 self.group_skips.append((state, pos) if state else None)
@@ -520,19 +520,28 @@ class Table:
             sk = self.sections[14]
             if meta["block_compression"] != "rans":
                 fail("a block-skips section is present but blocks are not rANS coded")
-            head = 4 * (self.blocks + 1)
+            anchors = -(-self.blocks // 64) + 1
+            head = 4 * anchors + self.blocks
             if len(sk) < head or (len(sk) - head) % 8:
                 fail("the block-skips section is malformed: its length")
-            before = [u32(sk, 4 * i) for i in range(self.blocks + 1)]
+            counts = sk[4 * anchors:head]
             total = (len(sk) - head) // 8
-            if before[0] != 0 or before[-1] != total or before != sorted(before):
-                fail("the block-skips section is malformed: its counts")
+            at = 0
             for i in range(self.blocks):
-                for p in range(before[i], before[i + 1]):
+                if i % 64 == 0 and u32(sk, 4 * (i // 64)) != at:
+                    fail("the block-skips section is malformed: its counts")
+                for p in range(at, at + counts[i]):
+                    if p >= total:
+                        fail("the block-skips section is malformed: its counts")
                     state, word = struct.unpack_from("<II", sk, head + 8 * p)
                     if word >> 24 <= (self.skips[i][-1][0] if self.skips[i] else 0):
                         fail("the block-skips section is malformed: a source rank")
+                    if state < RANS_L:
+                        fail("the block-skips section is malformed: a coder state")
                     self.skips[i].append((word >> 24, word & 0xFFFFFF, state))
+                at += counts[i]
+            if u32(sk, 4 * (anchors - 1)) != at or at != total:
+                fail("the block-skips section is malformed: its counts")
 
     # section 6.2
     def read_targets(self):

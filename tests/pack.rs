@@ -642,7 +642,7 @@ fn forged_resume_points_fail_verify() {
     assert_eq!(table.minor_version(), 2);
     table.verify().unwrap();
     for (kind, first_point) in [
-        (SectionKind::BlockSkips, 4 * 4),
+        (SectionKind::BlockSkips, 2 * 4 + 3),
         (SectionKind::GroupSkips, 0),
     ] {
         let count = u32::from_le_bytes(bytes[12..16].try_into().unwrap()) as usize;

@@ -284,9 +284,7 @@ impl BlockRecords {
         }
         let per = shape.code_bytes();
         for r in 0..self.sources() {
-            if r > 0 {
-                sink.mark(r);
-            }
+            sink.mark(r);
             let range = self.options(r);
             let n = range.len();
             for (j, k) in range.enumerate() {
@@ -647,6 +645,7 @@ mod tests {
         let points: Vec<SkipPoint> = sink
             .resume_points
             .iter()
+            .filter(|p| p.0 > 0)
             .map(|&(rank, pos, state)| SkipPoint { rank, pos, state })
             .collect();
         assert_eq!(points.iter().map(|p| p.rank).collect::<Vec<_>>(), [1, 2, 3]);

@@ -10,10 +10,11 @@ use crate::format::block::{BlockRecords, BlockShape, ModelIds, Upto, COMPONENTS}
 use crate::format::coder::{Models, PlainSink, PlainSource, RansSink, SymbolSink};
 use crate::format::sections::{push_block_entry, SkipPoint, SkipPoints, MAX_SKIP_POS};
 
-/// A resume point is kept before a source once this many options precede it in its block
-/// since the last one: a lookup then decodes at most about this many options besides its own.
-/// Measured on the real en-fr table (20,000 lookups, 10 columns): see DEVELOPERS.md.
-pub(super) const SKIP_EVERY_OPTIONS: u32 = 16;
+/// A resume point is kept before a source once this many bytes of the block's stream precede
+/// it since the start of the options or the last point: a lookup then decodes about this much
+/// besides its own options, and the points (8 bytes each) cost at most 8 / this of the blocks.
+/// Measured on the real en-fr table (20,000 lookups; 4 and 10 columns): see DEVELOPERS.md.
+pub(super) const SKIP_EVERY_BYTES: usize = 160;
 
 /// One option as the packer holds it before encoding.
 #[derive(Default)]
@@ -158,7 +159,7 @@ pub(super) fn code_blocks(
                 records.encode(shape, &ids, &mut sink);
                 sink.finish(&mut coded);
                 if let Some(skips) = &mut skips {
-                    skips.push(keep_points(&records, &sink.resume_points));
+                    skips.push(keep_points(&sink.resume_points));
                 }
                 &coded
             }
@@ -203,14 +204,14 @@ pub(super) fn write_plain_block(
 
 /// The resume points worth storing: one before a source once [`SKIP_EVERY_OPTIONS`] options
 /// precede it since the block's start or the last point.
-fn keep_points(records: &BlockRecords, all: &[(usize, usize, u32)]) -> Vec<SkipPoint> {
+fn keep_points(all: &[(usize, usize, u32)]) -> Vec<SkipPoint> {
     let mut kept = Vec::new();
-    let mut since = 0u32;
-    for &(rank, pos, state) in all {
-        since += records.options(rank - 1).len() as u32;
-        if since >= SKIP_EVERY_OPTIONS && pos <= MAX_SKIP_POS && rank < 256 {
+    // The first mark is the start of source 0's options.
+    let mut last = all.first().map_or(0, |p| p.1);
+    for &(rank, pos, state) in all.iter().skip(1) {
+        if pos - last >= SKIP_EVERY_BYTES && pos <= MAX_SKIP_POS && rank < 256 {
             kept.push(SkipPoint { rank, pos, state });
-            since = 0;
+            last = pos;
         }
     }
     kept
