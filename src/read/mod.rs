@@ -83,7 +83,7 @@ pub struct Table {
     group_cache: Cache<Group>,
     options_cache: Cache<(Box<[u8]>, Options)>,
     /// Tags of sources decoded once (see `offer_options`).
-    seen_sources: Box<[std::sync::atomic::AtomicU32]>,
+    seen_sources: cache::Seen,
 }
 
 /// The decoded word ids of targets `first ..` of one target group (`first` is 0 unless
@@ -396,13 +396,7 @@ impl Table {
                 1 << 13,
             ),
             options_cache: Cache::new(options_bytes, meta.sources as usize, 1 << 14),
-            seen_sources: (0..if options_bytes == 0 {
-                0
-            } else {
-                (meta.sources as usize).clamp(1, 1 << 14)
-            })
-                .map(|_| std::sync::atomic::AtomicU32::new(0))
-                .collect(),
+            seen_sources: cache::Seen::new(options_bytes > 0),
             storage,
             meta,
         })
@@ -926,16 +920,11 @@ impl Table {
     }
 
     /// Offers a source's decoded options to the cache of recently used sources.
-    /// A source is admitted the second time it is decoded while its tag is remembered: a
+    /// A source is admitted from the second time it is decoded (see [`cache::Seen`]): a
     /// phrase looked up once (most of a batch of distinct lookups) then keeps the caller's
     /// buffers for the next lookup instead of handing them to the cache and allocating anew.
     fn offer_options(&self, slot: usize, key: &[u8], options: &mut Options) {
-        if self.seen_sources.is_empty() {
-            return;
-        }
-        let tag = ((slot as u64) >> 20) as u32 | 1;
-        let seen = &self.seen_sources[slot % self.seen_sources.len()];
-        if seen.swap(tag, std::sync::atomic::Ordering::Relaxed) != tag {
+        if !self.seen_sources.second_time(slot as u64) {
             return;
         }
         options.shrink();
