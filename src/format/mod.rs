@@ -211,12 +211,14 @@ impl SectionKind {
 
     /// Whether [`crate::Table::open`] checks this section's checksum (every section but the
     /// large ones, whose blocks, groups or chunks carry their own checksums, checked on first
-    /// read).
+    /// read, and the skips sections, checked with their structure on first use).
     pub fn checked_at_open(self) -> bool {
         !matches!(
             self,
             SectionKind::Targets
                 | SectionKind::Blocks
+                | SectionKind::BlockSkips
+                | SectionKind::GroupSkips
                 | SectionKind::DirectHash
                 | SectionKind::DirectRecords
                 | SectionKind::DirectText

@@ -10,7 +10,7 @@
 //! its slot array) and keeps taking new items once full.
 
 use std::sync::atomic::{AtomicU64, AtomicUsize, Ordering};
-use std::sync::{Arc, Mutex};
+use std::sync::{Arc, Mutex, OnceLock};
 
 /// Slots per set.
 const WAYS: usize = 4;
@@ -123,11 +123,13 @@ impl<T> Cache<T> {
     }
 }
 
-/// Which items were offered before: two bits per item in a 2^20-bit filter (128 KiB), so an
-/// item is known again from its second offer on (a false "seen" is rare while the filter is
-/// sparse). Cleared once half its bits are set, so it keeps telling new items apart.
+/// Which items were offered before: two bits per item in a 2^20-bit filter (128 KiB, allocated
+/// on first use), so an item is known again from its second offer on (a false "seen" is rare
+/// while the filter is sparse). Cleared once half its bits are set, so it keeps telling new
+/// items apart.
 pub(super) struct Seen {
-    bits: Box<[AtomicU64]>,
+    enabled: bool,
+    bits: OnceLock<Box<[AtomicU64]>>,
     set: AtomicUsize,
 }
 
@@ -136,28 +138,34 @@ const SEEN_BITS: u32 = 20;
 impl Seen {
     /// A filter (empty and always answering false when not `enabled`).
     pub(super) fn new(enabled: bool) -> Seen {
-        let words = if enabled { 1 << (SEEN_BITS - 6) } else { 0 };
         Seen {
-            bits: (0..words).map(|_| AtomicU64::new(0)).collect(),
+            enabled,
+            bits: OnceLock::new(),
             set: AtomicUsize::new(0),
         }
     }
 
     /// Whether the item with hash `h` was offered before; remembers it.
     pub(super) fn second_time(&self, h: u64) -> bool {
-        if self.bits.is_empty() {
+        if !self.enabled {
             return false;
         }
+        let bits = self.bits.get_or_init(|| {
+            (0..1 << (SEEN_BITS - 6))
+                .map(|_| AtomicU64::new(0))
+                .collect()
+        });
+        let h = h.wrapping_mul(0x9E37_79B9_7F4A_7C15);
         let mask = (1u64 << SEEN_BITS) - 1;
         let mut seen = true;
         for b in [h & mask, (h >> SEEN_BITS) & mask] {
             let bit = 1u64 << (b % 64);
-            let old = self.bits[(b / 64) as usize].fetch_or(bit, Ordering::Relaxed);
+            let old = bits[(b / 64) as usize].fetch_or(bit, Ordering::Relaxed);
             if old & bit == 0 {
                 seen = false;
                 if self.set.fetch_add(1, Ordering::Relaxed) + 1 >= 1 << (SEEN_BITS - 1) {
                     self.set.store(0, Ordering::Relaxed);
-                    for w in self.bits.iter() {
+                    for w in bits.iter() {
                         w.store(0, Ordering::Relaxed);
                     }
                 }

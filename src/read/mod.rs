@@ -74,6 +74,9 @@ pub struct Table {
     block_skips: Range<usize>,
     /// The group-skips section (empty when the file has none).
     group_skips: Range<usize>,
+    /// The outcome of checking both skips sections (checksums and structure), done on first
+    /// use rather than at open (they are a quarter of a MiB or more on a large table).
+    skips_checked: std::sync::OnceLock<std::result::Result<(), String>>,
     blocks: Range<usize>,
     n_blocks: usize,
     target_index: Range<usize>,
@@ -84,6 +87,8 @@ pub struct Table {
     options_cache: Cache<(Box<[u8]>, Options)>,
     /// Tags of sources decoded once (see `offer_options`).
     seen_sources: cache::Seen,
+    /// Blocks decoded once for a lookup (see `lookup_into`).
+    seen_blocks: cache::Seen,
 }
 
 /// The decoded word ids of targets `first ..` of one target group (`first` is 0 unless
@@ -339,23 +344,20 @@ impl Table {
                 .map_err(corrupt)?;
         }
         let block_skips = section(SectionKind::BlockSkips);
-        if let Some(r) = get(SectionKind::BlockSkips) {
+        if get(SectionKind::BlockSkips).is_some() {
             if layout != Layout::Compact || compression != Compression::Rans {
                 return Err(corrupt(
                     "a block-skips section is present but blocks are not rANS coded".into(),
                 ));
             }
-            layout::check_block_skips(&data[r], n_blocks, meta.sources_per_block)
-                .map_err(corrupt)?;
         }
         let group_skips = section(SectionKind::GroupSkips);
-        if let Some(r) = get(SectionKind::GroupSkips) {
+        if get(SectionKind::GroupSkips).is_some() {
             if layout != Layout::Compact || compression != Compression::Rans {
                 return Err(corrupt(
                     "a group-skips section is present but groups are not rANS coded".into(),
                 ));
             }
-            layout::check_group_skips(&data[r], n_groups).map_err(corrupt)?;
         }
         let shape = BlockShape {
             widths: codecs.iter().map(Codec::width).collect(),
@@ -384,6 +386,7 @@ impl Table {
             block_keys,
             block_skips,
             group_skips,
+            skips_checked: std::sync::OnceLock::new(),
             blocks,
             n_blocks: n_blocks as usize,
             target_index,
@@ -397,6 +400,7 @@ impl Table {
             ),
             options_cache: Cache::new(options_bytes, meta.sources as usize, 1 << 14),
             seen_sources: cache::Seen::new(options_bytes > 0),
+            seen_blocks: cache::Seen::new(block_bytes > 0),
             storage,
             meta,
         })
@@ -520,7 +524,16 @@ impl Table {
         let Some(b) = self.find_block(key) else {
             return Ok(false);
         };
-        if let Some(block) = self.block_cache.get(b) {
+        // A block looked up in before is decoded for the cache (its keys whole, its options
+        // from the resume point before the phrase), so lookups of its other phrases find it.
+        let cached = match self.block_cache.get(b) {
+            Some(hit) => Some(hit),
+            None if self.seen_blocks.second_time(b as u64) => {
+                Some(self.decode_and_offer(b, Upto::Key(key))?)
+            }
+            None => None,
+        };
+        if let Some(block) = cached {
             let (block, found) = self.block_for_key(b, key, block)?;
             if let Some(r) = found {
                 self.fill(&block, r, options)?;
@@ -529,7 +542,7 @@ impl Table {
             }
             return Ok(false);
         }
-        // Not cached: decode just what this lookup needs (keys up to the phrase, options
+        // First lookup in the block: decode just what this lookup needs (keys up to the phrase, options
         // from the resume point before it) into this thread's scratch records, which keep
         // their buffers from lookup to lookup.
         thread_local! {
@@ -807,7 +820,7 @@ impl Table {
                     &self.ids,
                     self.meta.pairs,
                     &mut src,
-                    self.skip_points(b),
+                    self.skip_points(b)?,
                 ),
                 None => Err("its coder state"),
             },
@@ -826,8 +839,55 @@ impl Table {
     }
 
     /// Block `b`'s resume points (none when the file has no block-skips section).
-    pub(crate) fn skip_points(&self, b: usize) -> SkipPoints<'_> {
-        SkipPoints::of_block(&self.data()[self.block_skips.clone()], self.n_blocks, b)
+    pub(crate) fn skip_points(&self, b: usize) -> Result<SkipPoints<'_>> {
+        if self.block_skips.is_empty() {
+            return Ok(SkipPoints::default());
+        }
+        self.check_skips()?;
+        Ok(SkipPoints::of_block(
+            &self.data()[self.block_skips.clone()],
+            self.n_blocks,
+            b,
+        ))
+    }
+
+    /// Checks the checksums and structure of the skips sections, once.
+    fn check_skips(&self) -> Result<()> {
+        self.skips_checked
+            .get_or_init(|| {
+                let data = self.data();
+                for e in &self.entries {
+                    let kind = SectionKind::from_id(e.kind);
+                    if matches!(
+                        kind,
+                        Some(SectionKind::BlockSkips | SectionKind::GroupSkips)
+                    ) && crc32fast::hash(
+                        &data[e.offset as usize..(e.offset + e.length) as usize],
+                    ) != e.crc32
+                    {
+                        return Err(format!(
+                            "the {} section fails its checksum",
+                            kind.expect("matched").name()
+                        ));
+                    }
+                }
+                if !self.block_skips.is_empty() {
+                    layout::check_block_skips(
+                        &data[self.block_skips.clone()],
+                        self.n_blocks as u64,
+                        self.meta.sources_per_block,
+                    )?;
+                }
+                if !self.group_skips.is_empty() {
+                    layout::check_group_skips(
+                        &data[self.group_skips.clone()],
+                        self.n_groups as u64,
+                    )?;
+                }
+                Ok(())
+            })
+            .clone()
+            .map_err(|reason| self.corrupt(reason))
     }
 
     /// Target group `g` with its target `i` decoded (from the cache, or decoded from the
@@ -864,7 +924,9 @@ impl Table {
         let all = (self.meta.targets - g as u64 * per).min(per) as usize;
         let upto = all.min(upto);
         let middle = layout::group_skip_target(self.meta.targets_per_group);
-        let skip = if middle > 0 && want >= middle && upto > middle {
+        let skip = if middle > 0 && want >= middle && upto > middle && !self.group_skips.is_empty()
+        {
+            self.check_skips()?;
             layout::group_skip(&data[self.group_skips.clone()], g)
         } else {
             None

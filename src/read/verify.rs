@@ -96,7 +96,7 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
             }
         }
         // Every resume point continues the stream as decoding from the start does.
-        for p in table.skip_points(b).iter() {
+        for p in table.skip_points(b)?.iter() {
             let disagrees = || {
                 table.corrupt(format!(
                     "block {b}'s resume point before source {} disagrees with its stream",
