@@ -344,20 +344,20 @@ impl Table {
                 .map_err(corrupt)?;
         }
         let block_skips = section(SectionKind::BlockSkips);
-        if get(SectionKind::BlockSkips).is_some() {
-            if layout != Layout::Compact || compression != Compression::Rans {
-                return Err(corrupt(
-                    "a block-skips section is present but blocks are not rANS coded".into(),
-                ));
-            }
+        if get(SectionKind::BlockSkips).is_some()
+            && (layout != Layout::Compact || compression != Compression::Rans)
+        {
+            return Err(corrupt(
+                "a block-skips section is present but blocks are not rANS coded".into(),
+            ));
         }
         let group_skips = section(SectionKind::GroupSkips);
-        if get(SectionKind::GroupSkips).is_some() {
-            if layout != Layout::Compact || compression != Compression::Rans {
-                return Err(corrupt(
-                    "a group-skips section is present but groups are not rANS coded".into(),
-                ));
-            }
+        if get(SectionKind::GroupSkips).is_some()
+            && (layout != Layout::Compact || compression != Compression::Rans)
+        {
+            return Err(corrupt(
+                "a group-skips section is present but groups are not rANS coded".into(),
+            ));
         }
         let shape = BlockShape {
             widths: codecs.iter().map(Codec::width).collect(),
