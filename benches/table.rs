@@ -1,7 +1,11 @@
 //! Criterion benches of the packed table, each beside the in-memory `HashMap` of the same table
 //! built in the same run: pack throughput (against building the map), single-phrase lookups of
-//! hits (random order, every option decoded) and misses, all spans of 25-token sentences, and
-//! open time. `BALER_BENCH_PAIRS` sets the table size (default 200 000).
+//! hits (random order, every option decoded) and misses, cold lookups (every 20th source in byte
+//! order, each once, on a freshly opened table: what `baler lookup` of a phrase list does), all
+//! spans of 25-token sentences, and open time. `BALER_BENCH_PAIRS` sets the table size (default
+//! 200 000); `BALER_BENCH_TABLE=t.bale` adds the cold lookups on that table (for instance the
+//! real en-fr table, where issue 8 measures them against the 1.0 reader; see
+//! `benches/lookup_vs_base.sh`).
 
 mod common;
 
@@ -72,6 +76,48 @@ fn benches(c: &mut Criterion) {
         g.finish();
     }
 
+    // Cold lookups: each phrase once, on a table opened for the iteration (its caches empty).
+    let cold: Vec<String> = sources.iter().step_by(20).cloned().collect();
+    let mut g = c.benchmark_group("lookup_cold");
+    g.throughput(Throughput::Elements(cold.len() as u64));
+    g.bench_function("baler", |b| {
+        b.iter_batched(
+            || Table::open(&path).unwrap(),
+            |table| cold_lookups(&table, &cold),
+            BatchSize::PerIteration,
+        )
+    });
+    g.bench_function("hashmap", |b| {
+        b.iter(|| {
+            let mut n = 0;
+            for q in cold.iter() {
+                if let Some(options) = map.get(q.as_str()) {
+                    n += common::touch_baseline(options);
+                }
+            }
+            black_box(n)
+        })
+    });
+    if let Some(file) = std::env::var_os("BALER_BENCH_TABLE") {
+        let file = std::path::PathBuf::from(file);
+        let phrases: Vec<String> = Table::open(&file)
+            .unwrap()
+            .source_phrases()
+            .step_by(20)
+            .take(20_000)
+            .map(Result::unwrap)
+            .collect();
+        g.throughput(Throughput::Elements(phrases.len() as u64));
+        g.bench_function("baler_file", |b| {
+            b.iter_batched(
+                || Table::open(&file).unwrap(),
+                |table| cold_lookups(&table, &phrases),
+                BatchSize::PerIteration,
+            )
+        });
+    }
+    g.finish();
+
     let sentences = common::sentences(&pairs, 200, 25);
     let sentences: Vec<Vec<&str>> = sentences
         .iter()
@@ -111,3 +157,14 @@ fn benches(c: &mut Criterion) {
 
 criterion_group!(table_benches, benches);
 criterion_main!(table_benches);
+
+/// Looks every phrase up once, touching every option.
+fn cold_lookups(table: &Table, phrases: &[String]) -> usize {
+    let mut options = Options::default();
+    let mut n = 0;
+    for q in phrases {
+        table.lookup_into(q, &mut options).unwrap();
+        n += common::touch_packed(&options);
+    }
+    black_box(n)
+}

@@ -43,6 +43,8 @@ KINDS = {
     11: "records",
     12: "text",
     13: "chunks",
+    14: "block-skips",
+    15: "group-skips",
 }
 REQUIRED = {
     "compact": {1, 2, 3, 5, 6, 7, 8, 9},
@@ -498,6 +500,48 @@ class Table:
             last = off
         if last != len(self.sections[6]):
             fail("the target index does not end at the end of the targets")
+        # section 5.9: one resume point per target group, checked in read_targets
+        self.group_skips = None
+        if 15 in self.sections:
+            gs = self.sections[15]
+            if meta["block_compression"] != "rans":
+                fail("a group-skips section is present but groups are not rANS coded")
+            if len(gs) != 6 * self.groups:
+                fail(f"the group-skips section holds {len(gs)} bytes for {self.groups} groups")
+            self.group_skips = []
+            for g in range(self.groups):
+                state, pos = struct.unpack_from("<IH", gs, 6 * g)
+                if (state == 0 and pos != 0) or (state != 0 and state < RANS_L):
+                    fail("the group-skips section is malformed: a coder state")
+                self.group_skips.append((state, pos) if state else None)
+        # section 5.8: resume points, checked against the streams in decode_block
+        self.skips = [[] for _ in range(self.blocks)]
+        if 14 in self.sections:
+            sk = self.sections[14]
+            if meta["block_compression"] != "rans":
+                fail("a block-skips section is present but blocks are not rANS coded")
+            anchors = -(-self.blocks // 64) + 1
+            head = 4 * anchors + self.blocks
+            if len(sk) < head or (len(sk) - head) % 8:
+                fail("the block-skips section is malformed: its length")
+            counts = sk[4 * anchors:head]
+            total = (len(sk) - head) // 8
+            at = 0
+            for i in range(self.blocks):
+                if i % 64 == 0 and u32(sk, 4 * (i // 64)) != at:
+                    fail("the block-skips section is malformed: its counts")
+                for p in range(at, at + counts[i]):
+                    if p >= total:
+                        fail("the block-skips section is malformed: its counts")
+                    state, word = struct.unpack_from("<II", sk, head + 8 * p)
+                    if word >> 24 <= (self.skips[i][-1][0] if self.skips[i] else 0):
+                        fail("the block-skips section is malformed: a source rank")
+                    if state < RANS_L:
+                        fail("the block-skips section is malformed: a coder state")
+                    self.skips[i].append((word >> 24, word & 0xFFFFFF, state))
+                at += counts[i]
+            if u32(sk, 4 * (anchors - 1)) != at or at != total:
+                fail("the block-skips section is malformed: its counts")
 
     # section 6.2
     def read_targets(self):
@@ -510,12 +554,19 @@ class Table:
             if zlib.crc32(stored) != crc:
                 fail(f"target group {g} fails its checksum")
             src = self.source(stored, f"target group {g}")
-            for _ in range(min(per, meta["targets"] - g * per)):
+            point = self.group_skips[g] if self.group_skips else None
+            for t in range(min(per, meta["targets"] - g * per)):
+                if point and t == per // 2:
+                    if (src.pos, src.x) != (point[1], point[0]):
+                        fail(f"target group {g}'s resume point disagrees with its stream")
+                    point = None
                 n = src.number(TARGET_LEN) + 1
                 ids = [src.number(TARGET_WORD) for _ in range(n)]
                 if any(w >= len(self.words) for w in ids):
                     fail(f"target group {g} uses a word outside the vocabulary")
                 self.targets.append((" ".join(self.words[w] for w in ids), n))
+            if point:
+                fail(f"target group {g} has a resume point past its targets")
             if not src.finished():
                 fail(f"target group {g} has unexplained trailing data")
 
@@ -548,7 +599,12 @@ class Table:
                 sources.append(key)
             counts_of.append(src.number(OPTION_COUNT) + 1)
         out = []
+        points = list(self.skips[i])
         for r in range(n):
+            if points and points[0][0] == r:
+                rank, pos, state = points.pop(0)
+                if (src.pos, src.x) != (pos, state):
+                    fail(f"block {i}'s resume point before source {rank} disagrees with its stream")
             options, previous = [], None
             m = counts_of[r]
             for j in range(m):
@@ -572,6 +628,8 @@ class Table:
                 out.append((sources[r].decode("utf-8"), options))
             except UnicodeDecodeError:
                 fail(f"a source phrase in block {i} is not UTF-8")
+        if points:
+            fail(f"block {i} has a resume point at no source boundary")
         if not src.finished():
             fail(f"block {i} has unexplained trailing data")
         return out

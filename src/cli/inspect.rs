@@ -39,7 +39,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
             .collect();
         let mut report = json!({
             "table": args.table.display().to_string(),
-            "version": format!("{}.{}", baler::format::VERSION_MAJOR, table.layout().minor_version()),
+            "version": format!("{}.{}", baler::format::VERSION_MAJOR, table.minor_version()),
             "layout": table.layout().name(),
             "file_bytes": table.file_bytes(),
             "meta": table.meta(),
@@ -71,7 +71,7 @@ pub fn run(args: Args) -> baler::Result<ExitCode> {
         "format     {} {}.{}",
         m.format,
         baler::format::VERSION_MAJOR,
-        table.layout().minor_version()
+        table.minor_version()
     )
     .unwrap();
     writeln!(out, "pairs      {}", m.pairs).unwrap();

@@ -15,6 +15,7 @@
 //! `j > 0`, and `16 + min(n, 8) - 1` for the first option of a source with `n` options.
 
 use super::coder::{SymbolSink, SymbolSource};
+use super::sections::SkipPoints;
 
 /// Score contexts per column.
 pub const SCORE_CONTEXTS: usize = 24;
@@ -97,9 +98,16 @@ pub const COMPONENTS: [&str; 7] = [
 pub enum Upto<'k> {
     /// The options of the first `n` sources.
     Sources(usize),
-    /// The options up to and including those of the source equal to this key, if the block
-    /// holds it (none otherwise).
+    /// The options of the source equal to this key, if the block holds it (none otherwise),
+    /// from the last resume point at or before it (else from the first source).
     Key(&'k [u8]),
+    /// The options of source `r` (from the last resume point at or before it) and of every
+    /// source after it when `to_end`.
+    Source(usize, bool),
+    /// Like [`Upto::Key`], but keys are decoded only as far as needed: up to the first key not
+    /// below this one when it is missing, or when a resume point lets decoding jump to its
+    /// options; the records then hold only the keys up to it (for one lookup, not a cache).
+    Lookup(&'k [u8]),
 }
 
 /// The decoded form of a block, also what the writer fills before encoding.
@@ -121,8 +129,11 @@ pub struct BlockRecords {
     pub link_ends: Vec<u32>,
     /// Counts, `n_counts` per option.
     pub counts: Vec<u64>,
-    /// Sources whose options are decoded (the first ones; all of them once fully decoded).
+    /// End of the sources whose options are decoded (all of them once fully decoded).
     pub with_options: usize,
+    /// First source whose options are decoded (0 unless decoding resumed inside the block):
+    /// the option columns above start with its options.
+    pub options_from: usize,
 }
 
 /// What a block's layout depends on.
@@ -155,6 +166,54 @@ impl BlockRecords {
         self.link_ends.clear();
         self.counts.clear();
         self.with_options = 0;
+        self.options_from = 0;
+    }
+
+    /// Whether source `r`'s options are decoded.
+    #[inline]
+    pub fn has_options(&self, r: usize) -> bool {
+        r >= self.options_from && r < self.with_options
+    }
+
+    /// Index of option `k` (numbered over the whole block) in the decoded option columns.
+    #[inline]
+    pub fn local(&self, k: usize) -> usize {
+        k - self.options(self.options_from).start
+    }
+
+    /// Target rank of option `k` (its source's options decoded).
+    #[inline]
+    pub fn target(&self, k: usize) -> u32 {
+        self.targets[self.local(k)]
+    }
+
+    /// Score codes of option `k`, `per` bytes.
+    #[inline]
+    pub fn codes_of(&self, k: usize, per: usize) -> &[u8] {
+        let i = self.local(k);
+        &self.codes[i * per..(i + 1) * per]
+    }
+
+    /// Links of option `k` (empty when alignments are not stored).
+    #[inline]
+    pub fn links_of(&self, k: usize) -> &[(u16, u16)] {
+        if self.link_ends.is_empty() {
+            return &[];
+        }
+        let i = self.local(k);
+        let start = if i == 0 {
+            0
+        } else {
+            self.link_ends[i - 1] as usize
+        };
+        &self.links[start..self.link_ends[i] as usize]
+    }
+
+    /// Counts of option `k`, `n` of them.
+    #[inline]
+    pub fn counts_of(&self, k: usize, n: usize) -> &[u64] {
+        let i = self.local(k);
+        &self.counts[i * n..(i + 1) * n]
     }
 
     /// Number of sources.
@@ -225,6 +284,7 @@ impl BlockRecords {
         }
         let per = shape.code_bytes();
         for r in 0..self.sources() {
+            sink.mark(r);
             let range = self.options(r);
             let n = range.len();
             for (j, k) in range.enumerate() {
@@ -263,7 +323,8 @@ impl BlockRecords {
 
     /// Decodes a block of `sources` sources whose first key is `first_key`: every key and
     /// option count, and the options `upto` asks for (the stream is read no further: keys
-    /// alone cost a fraction of the block); `Err` says what is malformed.
+    /// alone cost a fraction of the block), resuming at one of `points` when `upto` asks for
+    /// one source; `Err` says what is malformed.
     /// `max_options` bounds the option count (the metadata's pair count). Only a full decode
     /// (`upto >= sources`) checks that the stream ends where it should; the block's checksum,
     /// checked before decoding, guards the rest.
@@ -277,9 +338,14 @@ impl BlockRecords {
         ids: &ModelIds,
         max_options: u64,
         src: &mut impl SymbolSource,
+        points: SkipPoints<'_>,
     ) -> Result<(), &'static str> {
         self.clear();
+        self.key_bytes.reserve(sources * (first_key.len() + 8));
+        self.key_ends.reserve_exact(sources);
+        self.option_ends.reserve_exact(sources);
         let mut total = 0u64;
+        let mut found = false;
         for r in 0..sources {
             if r == 0 {
                 self.key_bytes.extend_from_slice(first_key);
@@ -316,29 +382,62 @@ impl BlockRecords {
                 return Err("option counts beyond the table's pairs");
             }
             self.option_ends.push(total as u32);
+            if let (Upto::Lookup(want), false) = (upto, found) {
+                // Stop at the first key above the wanted one (it is missing), or at the wanted
+                // one when a resume point leads to its options; without one, the options are
+                // reached only past every key.
+                let key = self.key(r);
+                if key > want || (key == want && r > 0 && points.before(r).is_some()) {
+                    break;
+                }
+                found = key == want;
+            }
         }
         let per = shape.code_bytes();
-        let upto = match upto {
-            Upto::Sources(n) => n.min(sources),
-            Upto::Key(key) => {
+        let (from, upto) = match upto {
+            Upto::Sources(n) => (0, n.min(sources)),
+            Upto::Key(key) | Upto::Lookup(key) => {
                 let r = self.lower_bound(key);
-                if r < sources && self.key(r) == key {
-                    r + 1
+                if r < self.sources() && self.key(r) == key {
+                    (r, r + 1)
                 } else {
-                    0
+                    (0, 0)
                 }
             }
+            Upto::Source(r, to_end) if r < sources => (r, if to_end { sources } else { r + 1 }),
+            Upto::Source(..) => (0, 0),
+        };
+        let from = match points.before(from) {
+            Some(p) if from > 0 => {
+                if !src.resume(p.state, p.pos) {
+                    return Err("a resume point");
+                }
+                p.rank
+            }
+            _ => 0,
+        };
+        let base = if from == 0 {
+            0
+        } else {
+            self.option_ends[from - 1] as usize
         };
         let wanted = if upto == 0 {
             0
         } else {
-            self.option_ends[upto - 1] as usize
+            self.option_ends[upto - 1] as usize - base
         };
-        self.codes.reserve(wanted * per);
-        for r in 0..upto {
+        self.targets.reserve_exact(wanted);
+        self.codes.reserve_exact(wanted * per);
+        self.counts.reserve_exact(wanted * shape.counts);
+        if shape.alignment {
+            self.link_ends.reserve_exact(wanted);
+            self.links.reserve(wanted * 4);
+        }
+        for r in from..upto {
             let range = self.options(r);
             let n = range.len();
             for (j, k) in range.enumerate() {
+                let k = k - base;
                 let t = src
                     .number(ModelIds::TARGET_REF + j.min(3))
                     .ok_or("a target reference")?;
@@ -380,6 +479,7 @@ impl BlockRecords {
             }
         }
         self.with_options = upto;
+        self.options_from = if upto == 0 { 0 } else { from };
         if upto == sources && !src.finished() {
             return Err("the block's end");
         }
@@ -472,6 +572,7 @@ mod tests {
             &ids,
             100,
             &mut PlainSource::new(&plain.out),
+            SkipPoints::default(),
         )
         .unwrap();
         assert_eq!(format!("{back:?}"), format!("{b:?}"));
@@ -484,8 +585,17 @@ mod tests {
         let mut coded = Vec::new();
         sink.finish(&mut coded);
         let mut src = RansSource::new(&models, &coded).unwrap();
-        back.decode(b.key(0), 4, Upto::Sources(4), &shape, &ids, 100, &mut src)
-            .unwrap();
+        back.decode(
+            b.key(0),
+            4,
+            Upto::Sources(4),
+            &shape,
+            &ids,
+            100,
+            &mut src,
+            SkipPoints::default(),
+        )
+        .unwrap();
         assert_eq!(format!("{back:?}"), format!("{b:?}"));
         // Keys alone, then the options of the first two sources: a prefix of the full decode.
         for (how, upto) in [
@@ -496,8 +606,17 @@ mod tests {
         ] {
             let mut part = BlockRecords::default();
             let mut src = RansSource::new(&models, &coded).unwrap();
-            part.decode(b.key(0), 4, how, &shape, &ids, 100, &mut src)
-                .unwrap();
+            part.decode(
+                b.key(0),
+                4,
+                how,
+                &shape,
+                &ids,
+                100,
+                &mut src,
+                SkipPoints::default(),
+            )
+            .unwrap();
             assert_eq!(part.key_bytes, b.key_bytes);
             assert_eq!(part.option_ends, b.option_ends);
             assert_eq!(part.with_options, upto);
@@ -508,6 +627,79 @@ mod tests {
             };
             assert_eq!(part.targets, b.targets[..n]);
             assert_eq!(part.codes, b.codes[..n * 4]);
+        }
+    }
+
+    #[test]
+    fn decoding_resumes_at_recorded_points() {
+        use super::super::sections::{encode_block_skips, SkipPoint};
+        let (b, shape) = sample();
+        let ids = ModelIds::new(3);
+        let mut counter = Counter::new(ids.count());
+        b.encode(&shape, &ids, &mut counter);
+        let models = Models::from_counts(&counter.counts);
+        let mut sink = RansSink::new(&models);
+        b.encode(&shape, &ids, &mut sink);
+        let mut coded = Vec::new();
+        sink.finish(&mut coded);
+        let points: Vec<SkipPoint> = sink
+            .resume_points
+            .iter()
+            .filter(|p| p.0 > 0)
+            .map(|&(rank, pos, state)| SkipPoint { rank, pos, state })
+            .collect();
+        assert_eq!(points.iter().map(|p| p.rank).collect::<Vec<_>>(), [1, 2, 3]);
+        let section = encode_block_skips(&[points]);
+        super::super::sections::check_block_skips(&section, 1, 16).unwrap();
+        let skips = SkipPoints::of_block(&section, 1, 0);
+        for r in 0..4 {
+            for to_end in [false, true] {
+                let mut part = BlockRecords::default();
+                let mut src = RansSource::new(&models, &coded).unwrap();
+                part.decode(
+                    b.key(0),
+                    4,
+                    Upto::Source(r, to_end),
+                    &shape,
+                    &ids,
+                    100,
+                    &mut src,
+                    skips,
+                )
+                .unwrap();
+                assert_eq!(part.options_from, r);
+                for q in r..if to_end { 4 } else { r + 1 } {
+                    assert!(part.has_options(q));
+                    for k in b.options(q) {
+                        assert_eq!(part.target(k), b.target(k));
+                        assert_eq!(part.codes_of(k, 4), b.codes_of(k, 4));
+                        assert_eq!(part.links_of(k), b.links_of(k));
+                        assert_eq!(part.counts_of(k, 1), b.counts_of(k, 1));
+                    }
+                }
+                if !to_end {
+                    let mut look = BlockRecords::default();
+                    let mut src = RansSource::new(&models, &coded).unwrap();
+                    look.decode(
+                        b.key(0),
+                        4,
+                        Upto::Lookup(b.key(r)),
+                        &shape,
+                        &ids,
+                        100,
+                        &mut src,
+                        skips,
+                    )
+                    .unwrap();
+                    assert!(look.has_options(r));
+                    for k in b.options(r) {
+                        assert_eq!(look.target(k), b.target(k), "lookup of source {r}");
+                        assert_eq!(look.counts_of(k, 1), b.counts_of(k, 1));
+                    }
+                }
+                // Decoding to the end checks that the stream ends there.
+                assert_eq!(part.with_options, if to_end { 4 } else { r + 1 });
+            }
         }
     }
 }

@@ -62,6 +62,8 @@ pub trait SymbolSink {
     fn byte(&mut self, model: usize, b: u8);
     /// A number under `model` (its class; extra bits are model-free).
     fn number(&mut self, model: usize, v: u64);
+    /// Marks the start of source `rank`'s options (a place decoding may resume at).
+    fn mark(&mut self, _rank: usize) {}
 }
 
 /// Where a reader takes symbols from; `None` means the stream is malformed.
@@ -72,6 +74,11 @@ pub trait SymbolSource {
     fn number(&mut self, model: usize) -> Option<u64>;
     /// Whether the stream ended exactly where it should.
     fn finished(&self) -> bool;
+    /// Continues decoding from a recorded resume point (decoder `state` at byte `pos`); false
+    /// when this coding has no such points or the point lies outside the stream.
+    fn resume(&mut self, _state: u32, _pos: usize) -> bool {
+        false
+    }
 }
 
 /// Plain coding: bytes as they are, numbers as varints.
@@ -158,7 +165,11 @@ impl SymbolSink for Counter {
 pub struct Models {
     freq: Vec<[u16; 256]>,
     start: Vec<[u16; 256]>,
-    slots: Vec<Option<Box<[u8]>>>,
+    /// Per model, the symbol of each slot (4 KiB); empty for a model no symbol used.
+    slots: Vec<Box<[u8]>>,
+    /// Per model, per symbol, its frequency (low 16 bits) and start (high 16 bits): one load
+    /// after the slot's, from a 1 KiB table.
+    pairs: Vec<Box<[u32]>>,
 }
 
 /// Bytes one model takes in the models section (256 little-endian `u16` frequencies).
@@ -174,12 +185,14 @@ impl Models {
     fn from_freq(freq: Vec<[u16; 256]>) -> Result<Models, String> {
         let mut start = Vec::with_capacity(freq.len());
         let mut slots = Vec::with_capacity(freq.len());
+        let mut pairs = Vec::with_capacity(freq.len());
         for (m, f) in freq.iter().enumerate() {
             let total: u32 = f.iter().map(|&x| u32::from(x)).sum();
             let mut s = [0u16; 256];
             if total == 0 {
                 start.push(s);
-                slots.push(None);
+                slots.push(Box::default());
+                pairs.push(Box::default());
                 continue;
             }
             if total != PROB_SCALE {
@@ -188,17 +201,25 @@ impl Models {
                 ));
             }
             let mut table = vec![0u8; PROB_SCALE as usize].into_boxed_slice();
+            let mut pair = vec![0u32; 256].into_boxed_slice();
             let mut acc = 0u32;
             for sym in 0..256 {
                 s[sym] = acc as u16;
                 let n = u32::from(f[sym]);
                 table[acc as usize..(acc + n) as usize].fill(sym as u8);
+                pair[sym] = n | (acc << 16);
                 acc += n;
             }
             start.push(s);
-            slots.push(Some(table));
+            slots.push(table);
+            pairs.push(pair);
         }
-        Ok(Models { freq, start, slots })
+        Ok(Models {
+            freq,
+            start,
+            slots,
+            pairs,
+        })
     }
 
     /// The models section.
@@ -291,6 +312,11 @@ pub struct RansSink<'m> {
     models: &'m Models,
     /// `(start, freq)` per coded symbol, in forward order.
     queue: Vec<(u16, u16)>,
+    /// Marked places: queue length and source rank.
+    marks: Vec<(usize, usize)>,
+    /// After [`RansSink::finish`]: per marked place, the source rank, the byte position in
+    /// the stream and the decoder state there.
+    pub resume_points: Vec<(usize, usize, u32)>,
 }
 
 impl<'m> RansSink<'m> {
@@ -299,6 +325,8 @@ impl<'m> RansSink<'m> {
         RansSink {
             models,
             queue: Vec::new(),
+            marks: Vec::new(),
+            resume_points: Vec::new(),
         }
     }
 
@@ -321,11 +349,25 @@ impl<'m> RansSink<'m> {
         }
     }
 
-    /// Codes the queued symbols into `out` (cleared first); the sink is empty afterwards.
+    /// Codes the queued symbols into `out` (cleared first), and the marked places into
+    /// [`RansSink::resume_points`]; the sink is empty afterwards.
+    ///
+    /// Symbols are coded last to first, so the state after coding symbol `q` is the decoder's
+    /// state before decoding it, and the bytes written so far are the ones the decoder has
+    /// still to read.
     pub fn finish(&mut self, out: &mut Vec<u8>) {
         out.clear();
+        self.resume_points.clear();
         let mut x: u32 = RANS_L;
-        for &(start, freq) in self.queue.iter().rev() {
+        let mut marks = self.marks.iter().rev().peekable();
+        while let Some(&&(q, rank)) = marks.peek() {
+            if q < self.queue.len() {
+                break;
+            }
+            self.resume_points.push((rank, 0, x));
+            marks.next();
+        }
+        for (q, &(start, freq)) in self.queue.iter().enumerate().rev() {
             let (start, freq) = (u32::from(start), u32::from(freq));
             let x_max = ((RANS_L >> PROB_BITS) << 8) * freq;
             while x >= x_max {
@@ -333,10 +375,23 @@ impl<'m> RansSink<'m> {
                 x >>= 8;
             }
             x = ((x / freq) << PROB_BITS) + (x % freq) + start;
+            while let Some(&&(m, rank)) = marks.peek() {
+                if m != q {
+                    break;
+                }
+                self.resume_points.push((rank, out.len(), x));
+                marks.next();
+            }
         }
+        let written = out.len();
+        for p in &mut self.resume_points {
+            p.1 = 4 + written - p.1;
+        }
+        self.resume_points.reverse();
         out.extend_from_slice(&x.to_le_bytes());
         out.reverse();
         self.queue.clear();
+        self.marks.clear();
     }
 }
 
@@ -350,6 +405,9 @@ impl SymbolSink for RansSink<'_> {
         let (class, extra, bits) = number_class(v);
         self.push(model, class);
         self.push_bits(bits, extra);
+    }
+    fn mark(&mut self, rank: usize) {
+        self.marks.push((self.queue.len(), rank));
     }
 }
 
@@ -379,22 +437,34 @@ impl<'a> RansSource<'a> {
 
     #[inline]
     fn renormalize(&mut self) -> Option<()> {
-        while self.x < RANS_L {
-            let b = *self.data.get(self.pos)?;
-            self.pos += 1;
-            self.x = (self.x << 8) | u32::from(b);
+        // A decoding step leaves the state at 2^11 or more, so two bytes always suffice.
+        if self.x < RANS_L {
+            if let Some(&[a, b]) = self.data.get(self.pos..self.pos + 2).map(|s| s as &[u8]) {
+                if self.x < RANS_L >> 8 {
+                    self.x = (self.x << 16) | (u32::from(a) << 8) | u32::from(b);
+                    self.pos += 2;
+                } else {
+                    self.x = (self.x << 8) | u32::from(a);
+                    self.pos += 1;
+                }
+            } else {
+                while self.x < RANS_L {
+                    let b = *self.data.get(self.pos)?;
+                    self.pos += 1;
+                    self.x = (self.x << 8) | u32::from(b);
+                }
+            }
         }
         Some(())
     }
 
     #[inline]
     fn symbol(&mut self, model: usize) -> Option<u8> {
-        let table = self.models.slots.get(model)?.as_deref()?;
+        let table = self.models.slots.get(model)?;
         let slot = self.x & (PROB_SCALE - 1);
-        let sym = table[slot as usize];
-        let f = u32::from(self.models.freq[model][usize::from(sym)]);
-        let s = u32::from(self.models.start[model][usize::from(sym)]);
-        self.x = f * (self.x >> PROB_BITS) + slot - s;
+        let sym = *table.get(slot as usize)?;
+        let e = self.models.pairs[model][usize::from(sym)];
+        self.x = (e & 0xffff) * (self.x >> PROB_BITS) + slot - (e >> 16);
         self.renormalize()?;
         Some(sym)
     }
@@ -424,11 +494,22 @@ impl SymbolSource for RansSource<'_> {
     #[inline]
     fn number(&mut self, model: usize) -> Option<u64> {
         let class = self.symbol(model)?;
+        if class < 16 {
+            return Some(u64::from(class));
+        }
         let (base, bits) = class_base(class)?;
         Some(base | self.bits(bits)?)
     }
     fn finished(&self) -> bool {
         self.pos == self.data.len() && self.x == RANS_L
+    }
+    fn resume(&mut self, state: u32, pos: usize) -> bool {
+        if state < RANS_L || pos < 4 || pos > self.data.len() {
+            return false;
+        }
+        self.x = state;
+        self.pos = pos;
+        true
     }
 }
 

@@ -23,8 +23,14 @@ pub const MAGIC: [u8; 8] = *b"BALER\r\n\x1a";
 /// Major format version: readers refuse files with another major version.
 pub const VERSION_MAJOR: u16 = 2;
 
-/// Minor format version of files in the `compact` layout (what 2.0 readers read).
+/// Minor format version of files in the `compact` layout without a block-skips section (what
+/// 2.0 readers read).
 pub const VERSION_MINOR: u16 = 0;
+
+/// Minor format version of `compact` files with the optional block-skips or group-skips
+/// sections (2.2: resume points inside rANS blocks and target groups, which 2.0 readers skip as
+/// unknown kinds).
+pub const VERSION_MINOR_SKIPS: u16 = 2;
 
 /// Minor format version of files in the `direct` layout (2.1: new sections that 2.0 readers
 /// refuse, as they lack the compact layout's required sections).
@@ -149,18 +155,26 @@ pub enum SectionKind {
     DirectText = 12,
     /// `direct` layout: a CRC-32 per chunk of the three sections above.
     DirectChunks = 13,
+    /// `compact` layout, optional (2.2): rANS resume points inside source blocks, so a lookup
+    /// decodes the options of the source it wants without those of the sources before it.
+    BlockSkips = 14,
+    /// `compact` layout, optional (2.2): one rANS resume point per target group, before its
+    /// middle target, so a target in the second half is decoded without the first half.
+    GroupSkips = 15,
 }
 
 impl SectionKind {
     /// Every kind, in the order the writer lays them out.
-    pub const ALL: [SectionKind; 13] = [
+    pub const ALL: [SectionKind; 15] = [
         SectionKind::Metadata,
         SectionKind::Codebooks,
         SectionKind::Models,
         SectionKind::Vocabulary,
         SectionKind::BlockIndex,
         SectionKind::BlockKeys,
+        SectionKind::BlockSkips,
         SectionKind::TargetIndex,
+        SectionKind::GroupSkips,
         SectionKind::Targets,
         SectionKind::Blocks,
         SectionKind::DirectChunks,
@@ -190,17 +204,21 @@ impl SectionKind {
             SectionKind::DirectRecords => "records",
             SectionKind::DirectText => "text",
             SectionKind::DirectChunks => "chunks",
+            SectionKind::BlockSkips => "block-skips",
+            SectionKind::GroupSkips => "group-skips",
         }
     }
 
     /// Whether [`crate::Table::open`] checks this section's checksum (every section but the
     /// large ones, whose blocks, groups or chunks carry their own checksums, checked on first
-    /// read).
+    /// read, and the skips sections, checked with their structure on first use).
     pub fn checked_at_open(self) -> bool {
         !matches!(
             self,
             SectionKind::Targets
                 | SectionKind::Blocks
+                | SectionKind::BlockSkips
+                | SectionKind::GroupSkips
                 | SectionKind::DirectHash
                 | SectionKind::DirectRecords
                 | SectionKind::DirectText
@@ -211,7 +229,7 @@ impl SectionKind {
     pub fn required(self, layout: Layout) -> bool {
         match self {
             SectionKind::Metadata | SectionKind::Codebooks | SectionKind::Vocabulary => true,
-            SectionKind::Models => false,
+            SectionKind::Models | SectionKind::BlockSkips | SectionKind::GroupSkips => false,
             SectionKind::TargetIndex
             | SectionKind::Targets
             | SectionKind::BlockIndex

@@ -312,3 +312,200 @@ pub fn group_entry(index: &[u8], g: usize) -> (Range<usize>, u32) {
     let end = LE::read_u64(&e[GROUP_ENTRY_LEN..]) as usize;
     (start..end, LE::read_u32(&e[8..]))
 }
+
+// ---- block skips (2.2, optional): `ceil(blocks / 64) + 1` u32 anchors (resume points before
+// block 64 i; the last is the total), then one u8 per block (its points, at most 255), then per
+// point 8 bytes: u32 rANS decoder state, u32 holding the byte position in the block's stream
+// (bits 0..24) and the source rank (bits 24..32) whose options start there ----
+
+/// Bytes of one resume point.
+pub const SKIP_POINT_LEN: usize = 8;
+
+/// Blocks per anchor of the block-skips section.
+pub const SKIP_ANCHOR_BLOCKS: usize = 64;
+
+/// Where decoding of a block can resume: before the options of source `rank`, with the rANS
+/// decoder in `state` at byte `pos` of the block's stream (keys decoded from the start).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct SkipPoint {
+    /// Source rank in the block (at least 1).
+    pub rank: usize,
+    /// Byte position in the stored block.
+    pub pos: usize,
+    /// Decoder state there.
+    pub state: u32,
+}
+
+/// Largest byte position a resume point can hold.
+pub const MAX_SKIP_POS: usize = (1 << 24) - 1;
+
+fn skip_head(blocks: usize) -> (usize, usize) {
+    let anchors = blocks.div_ceil(SKIP_ANCHOR_BLOCKS) + 1;
+    (anchors, anchors * 4 + blocks)
+}
+
+/// Builds the block-skips section from each block's resume points (at most 255 per block,
+/// ranks ascending, each position at most [`MAX_SKIP_POS`], rank below 256).
+pub fn encode_block_skips(points: &[Vec<SkipPoint>]) -> Vec<u8> {
+    let total: usize = points.iter().map(Vec::len).sum();
+    let (_, head) = skip_head(points.len());
+    let mut out = Vec::with_capacity(head + total * SKIP_POINT_LEN);
+    let mut before = 0u32;
+    for chunk in points.chunks(SKIP_ANCHOR_BLOCKS) {
+        out.extend_from_slice(&before.to_le_bytes());
+        before += chunk.iter().map(|p| p.len() as u32).sum::<u32>();
+    }
+    out.extend_from_slice(&before.to_le_bytes());
+    out.extend(points.iter().map(|p| p.len() as u8));
+    for p in points.iter().flatten() {
+        out.extend_from_slice(&p.state.to_le_bytes());
+        out.extend_from_slice(&((p.pos as u32) | ((p.rank as u32) << 24)).to_le_bytes());
+    }
+    out
+}
+
+/// Validates a block-skips section for `blocks` blocks of at most `per_block` sources: anchors
+/// agreeing with the per-block counts and with the number of points the section holds, ranks
+/// ascending within a block from 1 and below `per_block`, states normalized. Later reads index
+/// without checks; positions are checked against the block when used.
+pub fn check_block_skips(b: &[u8], blocks: u64, per_block: u32) -> Result<(), String> {
+    let blocks = blocks as usize;
+    let (anchors, head) = skip_head(blocks);
+    let bad = |what: &str| Err(format!("the block-skips section is malformed: {what}"));
+    if b.len() < head || (b.len() - head) % SKIP_POINT_LEN != 0 {
+        return bad("its length");
+    }
+    let total = (b.len() - head) / SKIP_POINT_LEN;
+    let counts = &b[anchors * 4..head];
+    let mut at = 0usize;
+    for i in 0..anchors {
+        if LE::read_u32(&b[i * 4..]) as usize != at {
+            return bad("its counts");
+        }
+        let chunk = counts
+            .get(i * SKIP_ANCHOR_BLOCKS..((i + 1) * SKIP_ANCHOR_BLOCKS).min(blocks))
+            .unwrap_or(&[]);
+        for &n in chunk {
+            let mut rank = 0;
+            for p in at..at + usize::from(n) {
+                if p >= total {
+                    return bad("its counts");
+                }
+                let point = skip_point(b, head, p);
+                if point.rank <= rank || point.rank >= per_block as usize {
+                    return bad("a source rank");
+                }
+                if point.state < super::coder::RANS_L {
+                    return bad("a coder state");
+                }
+                rank = point.rank;
+            }
+            at += usize::from(n);
+        }
+    }
+    if at != total {
+        return bad("its counts");
+    }
+    Ok(())
+}
+
+fn skip_point(b: &[u8], head: usize, p: usize) -> SkipPoint {
+    let e = &b[head + p * SKIP_POINT_LEN..];
+    let w = LE::read_u32(&e[4..]);
+    SkipPoint {
+        state: LE::read_u32(e),
+        pos: (w & 0x00ff_ffff) as usize,
+        rank: (w >> 24) as usize,
+    }
+}
+
+/// The resume points of one block of a validated block-skips section (none without one).
+#[derive(Clone, Copy, Debug, Default)]
+pub struct SkipPoints<'a> {
+    section: &'a [u8],
+    head: usize,
+    first: usize,
+    end: usize,
+}
+
+impl<'a> SkipPoints<'a> {
+    /// Block `b`'s points in a section validated for `blocks` blocks.
+    pub fn of_block(section: &'a [u8], blocks: usize, b: usize) -> SkipPoints<'a> {
+        if section.is_empty() {
+            return SkipPoints::default();
+        }
+        let (anchors, head) = skip_head(blocks);
+        let counts = &section[anchors * 4..head];
+        let anchor = b / SKIP_ANCHOR_BLOCKS;
+        let first = LE::read_u32(&section[anchor * 4..]) as usize
+            + counts[anchor * SKIP_ANCHOR_BLOCKS..b]
+                .iter()
+                .map(|&n| usize::from(n))
+                .sum::<usize>();
+        SkipPoints {
+            section,
+            head,
+            first,
+            end: first + usize::from(counts[b]),
+        }
+    }
+
+    /// Every point, ranks ascending.
+    pub fn iter(&self) -> impl Iterator<Item = SkipPoint> + '_ {
+        (self.first..self.end).map(|p| skip_point(self.section, self.head, p))
+    }
+
+    /// The last point at or before source `rank`.
+    pub fn before(&self, rank: usize) -> Option<SkipPoint> {
+        self.iter().take_while(|p| p.rank <= rank).last()
+    }
+}
+
+// ---- group skips (2.2, optional): per target group 6 bytes, u32 rANS decoder state and u16
+// byte position in the stored group, of the decoder before target `targets_per_group / 2` of
+// the group; both 0 for a group without a point (too few targets, or the position past 65535) ----
+
+/// Bytes of one group's resume point.
+pub const GROUP_SKIP_LEN: usize = 6;
+
+/// The target (index in its group) a group's resume point is before.
+pub fn group_skip_target(targets_per_group: u32) -> usize {
+    (targets_per_group / 2) as usize
+}
+
+/// Appends one group's resume point (`None`, or a position past 65535: the group has none).
+pub fn push_group_skip(out: &mut Vec<u8>, point: Option<(u32, usize)>) {
+    let (state, pos) = point
+        .filter(|&(_, pos)| pos <= usize::from(u16::MAX))
+        .unwrap_or((0, 0));
+    out.extend_from_slice(&state.to_le_bytes());
+    out.extend_from_slice(&(pos as u16).to_le_bytes());
+}
+
+/// Validates a group-skips section for `groups` groups: its length, and each state either 0
+/// (with position 0) or normalized. Positions are checked against the group when used.
+pub fn check_group_skips(b: &[u8], groups: u64) -> Result<(), String> {
+    if b.len() as u64 != groups * GROUP_SKIP_LEN as u64 {
+        return Err(format!(
+            "the group-skips section holds {} bytes; {groups} groups need {}",
+            b.len(),
+            groups * GROUP_SKIP_LEN as u64
+        ));
+    }
+    for e in b.chunks_exact(GROUP_SKIP_LEN) {
+        let (state, pos) = (LE::read_u32(e), LE::read_u16(&e[4..]));
+        if (state == 0 && pos != 0) || (state != 0 && state < super::coder::RANS_L) {
+            return Err("the group-skips section is malformed: a coder state".into());
+        }
+    }
+    Ok(())
+}
+
+/// Group `g`'s resume point `(state, position)` in a validated group-skips section (`None`
+/// without a section or a point).
+#[inline]
+pub fn group_skip(b: &[u8], g: usize) -> Option<(u32, usize)> {
+    let e = b.get(g * GROUP_SKIP_LEN..(g + 1) * GROUP_SKIP_LEN)?;
+    let state = LE::read_u32(e);
+    (state != 0).then(|| (state, usize::from(LE::read_u16(&e[4..]))))
+}

@@ -25,7 +25,7 @@ use std::path::{Path, PathBuf};
 use crate::error::{Error, Result};
 use crate::files::Output;
 use crate::format::block::{encode_target, BlockRecords, BlockShape, ModelIds, COMPONENTS};
-use crate::format::coder::{Counter, Models, PlainSink, PlainSource, RansSink};
+use crate::format::coder::{Counter, Models, PlainSink, PlainSource, RansSink, SymbolSink};
 use crate::format::sections::{encode_codebooks, encode_vocabulary, push_group_entry};
 use crate::format::{self, write_varint, Compression, Layout, Meta, SectionEntry, SectionKind};
 use crate::quantize::{Codebook, Reservoir, DEFAULT_SAMPLE_SIZE};
@@ -613,6 +613,10 @@ struct CodedSections {
     models: Option<Models>,
     block_index: Vec<u8>,
     first_keys: Vec<u8>,
+    /// The block-skips section (rANS coding only).
+    block_skips: Option<Vec<u8>>,
+    /// The group-skips section (rANS coding only).
+    group_skips: Option<Vec<u8>>,
     target_index: Vec<u8>,
     target_data: Vec<u8>,
     blocks: Part,
@@ -657,7 +661,7 @@ fn code_sections(
         Models::from_counts(&c.counts)
     });
     let mut costs = CostSink::new(ids, models.as_ref(), layout.codebooks.len());
-    let (target_index, target_data, max_group) =
+    let (target_index, target_data, max_group, group_skips) =
         target_groups.code(models.as_ref(), n_words, &mut costs);
     let blocks_path = temp.join("blocks.coded");
     let coded = blocks::code_blocks(
@@ -678,7 +682,14 @@ fn code_sections(
         sources: written.sources,
         models,
         block_index: coded.index,
+        // Without any resume point (small tables) the file stays 2.0.
+        block_skips: coded
+            .skips
+            .as_deref()
+            .filter(|s| s.iter().any(|p| !p.is_empty()))
+            .map(crate::format::sections::encode_block_skips),
         first_keys: written.first_keys,
+        group_skips,
         target_index,
         target_data,
         blocks: Part::File {
@@ -713,7 +724,13 @@ fn compact_parts(
     parts.push((SectionKind::Vocabulary, Part::Memory(vocabulary_section)));
     parts.push((SectionKind::BlockIndex, Part::Memory(coded.block_index)));
     parts.push((SectionKind::BlockKeys, Part::Memory(coded.first_keys)));
+    if let Some(skips) = coded.block_skips {
+        parts.push((SectionKind::BlockSkips, Part::Memory(skips)));
+    }
     parts.push((SectionKind::TargetIndex, Part::Memory(coded.target_index)));
+    if let Some(skips) = coded.group_skips {
+        parts.push((SectionKind::GroupSkips, Part::Memory(skips)));
+    }
     parts.push((SectionKind::Targets, Part::Memory(coded.target_data)));
     parts.push((SectionKind::Blocks, coded.blocks));
     parts
@@ -878,7 +895,14 @@ fn write_file(
     }
     let mut header = format::FileHeader {
         major: format::VERSION_MAJOR,
-        minor: layout.minor_version(),
+        minor: if parts
+            .iter()
+            .any(|(k, _)| matches!(k, SectionKind::BlockSkips | SectionKind::GroupSkips))
+        {
+            format::VERSION_MINOR_SKIPS
+        } else {
+            layout.minor_version()
+        },
         section_count: parts.len() as u32,
         table_crc32: 0,
     };
@@ -974,7 +998,7 @@ impl TargetGroups {
         models: Option<&Models>,
         vocabulary: u64,
         costs: &mut CostSink<'_>,
-    ) -> (Vec<u8>, Vec<u8>, usize) {
+    ) -> (Vec<u8>, Vec<u8>, usize, Option<Vec<u8>>) {
         if self.in_group > 0 {
             self.plain.push(std::mem::take(&mut self.current.out));
         }
@@ -983,6 +1007,9 @@ impl TargetGroups {
         let mut coded = Vec::new();
         let mut max = 0;
         let n_groups = self.plain.len();
+        let middle = crate::format::sections::group_skip_target(self.per);
+        let mut skips = Vec::with_capacity(n_groups * 8);
+        let mut any_skip = false;
         for (g, plain) in self.plain.iter().enumerate() {
             let n = if g + 1 == n_groups && self.pushed % u64::from(self.per) != 0 {
                 self.pushed % u64::from(self.per)
@@ -991,7 +1018,10 @@ impl TargetGroups {
             };
             let mut src = PlainSource::new(plain);
             let mut rans = models.map(RansSink::new);
-            for _ in 0..n {
+            for t in 0..n {
+                if let (Some(r), true) = (&mut rans, t as usize == middle && middle > 0) {
+                    r.mark(middle);
+                }
                 self.words.clear();
                 // The plain group was written by this process; a failure to parse it is a bug.
                 format::block::decode_target(&mut src, vocabulary, &mut self.words)
@@ -1004,6 +1034,9 @@ impl TargetGroups {
             let stored: &[u8] = match &mut rans {
                 Some(r) => {
                     r.finish(&mut coded);
+                    let point = r.resume_points.first().map(|&(_, pos, state)| (state, pos));
+                    any_skip |= point.is_some();
+                    crate::format::sections::push_group_skip(&mut skips, point);
                     &coded
                 }
                 None => plain,
@@ -1014,7 +1047,7 @@ impl TargetGroups {
         }
         index.extend_from_slice(&(data.len() as u64).to_le_bytes());
         let _ = self.ids;
-        (index, data, max)
+        (index, data, max, any_skip.then_some(skips))
     }
 }
 

@@ -9,8 +9,8 @@
 //! passed (at most two sweeps). So the cache never holds more than `budget` bytes of items (plus
 //! its slot array) and keeps taking new items once full.
 
-use std::sync::atomic::{AtomicUsize, Ordering};
-use std::sync::{Arc, Mutex};
+use std::sync::atomic::{AtomicU64, AtomicUsize, Ordering};
+use std::sync::{Arc, Mutex, OnceLock};
 
 /// Slots per set.
 const WAYS: usize = 4;
@@ -123,9 +123,75 @@ impl<T> Cache<T> {
     }
 }
 
+/// Which items were offered before: two bits per item in a 2^20-bit filter (128 KiB, allocated
+/// on first use), so an item is known again from its second offer on (a false "seen" is rare
+/// while the filter is sparse). Cleared once half its bits are set, so it keeps telling new
+/// items apart.
+pub(super) struct Seen {
+    enabled: bool,
+    bits: OnceLock<Box<[AtomicU64]>>,
+    set: AtomicUsize,
+}
+
+const SEEN_BITS: u32 = 20;
+
+impl Seen {
+    /// A filter (empty and always answering false when not `enabled`).
+    pub(super) fn new(enabled: bool) -> Seen {
+        Seen {
+            enabled,
+            bits: OnceLock::new(),
+            set: AtomicUsize::new(0),
+        }
+    }
+
+    /// Whether the item with hash `h` was offered before; remembers it.
+    pub(super) fn second_time(&self, h: u64) -> bool {
+        if !self.enabled {
+            return false;
+        }
+        let bits = self.bits.get_or_init(|| {
+            (0..1 << (SEEN_BITS - 6))
+                .map(|_| AtomicU64::new(0))
+                .collect()
+        });
+        let h = h.wrapping_mul(0x9E37_79B9_7F4A_7C15);
+        let mask = (1u64 << SEEN_BITS) - 1;
+        let mut seen = true;
+        for b in [h & mask, (h >> SEEN_BITS) & mask] {
+            let bit = 1u64 << (b % 64);
+            let old = bits[(b / 64) as usize].fetch_or(bit, Ordering::Relaxed);
+            if old & bit == 0 {
+                seen = false;
+                if self.set.fetch_add(1, Ordering::Relaxed) + 1 >= 1 << (SEEN_BITS - 1) {
+                    self.set.store(0, Ordering::Relaxed);
+                    for w in bits.iter() {
+                        w.store(0, Ordering::Relaxed);
+                    }
+                }
+            }
+        }
+        seen
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn seen_knows_items_from_their_second_offer() {
+        let seen = Seen::new(true);
+        let hash = |i: u64| i.wrapping_mul(0x9E37_79B9_7F4A_7C15);
+        assert!((0..10_000).all(|i| !seen.second_time(hash(i))));
+        assert!((0..10_000).all(|i| seen.second_time(hash(i))));
+        // Past half its bits it starts afresh and still tells new items apart.
+        let fresh = (10_000..2_000_000)
+            .filter(|&i| !seen.second_time(hash(i)))
+            .count();
+        assert!(fresh > 1_900_000, "{fresh}");
+        assert!(!Seen::new(false).second_time(1));
+    }
 
     #[test]
     fn stays_within_its_budget_and_keeps_taking_items() {

@@ -24,7 +24,7 @@ use std::sync::Arc;
 use crate::error::{Error, Result};
 use crate::format::block::{decode_target, BlockRecords, BlockShape, ModelIds, Upto};
 use crate::format::coder::{Models, PlainSource, RansSource, SymbolSource};
-use crate::format::sections::{self as layout, Codec, Vocabulary};
+use crate::format::sections::{self as layout, Codec, SkipPoints, Vocabulary};
 use crate::format::{self, Compression, Layout, Meta, SectionEntry, SectionKind};
 use crate::mmap::{self, Storage};
 use crate::table::{CountColumn, Header, Metadata, PhrasePair, Schema};
@@ -55,6 +55,7 @@ use cache::Cache;
 /// ```
 pub struct Table {
     path: PathBuf,
+    minor: u16,
     storage: Arc<Storage>,
     meta: Meta,
     header: Header,
@@ -69,6 +70,13 @@ pub struct Table {
     ids: ModelIds,
     block_index: Range<usize>,
     block_keys: Range<usize>,
+    /// The block-skips section (empty when the file has none).
+    block_skips: Range<usize>,
+    /// The group-skips section (empty when the file has none).
+    group_skips: Range<usize>,
+    /// The outcome of checking both skips sections (checksums and structure), done on first
+    /// use rather than at open (they are a quarter of a MiB or more on a large table).
+    skips_checked: std::sync::OnceLock<std::result::Result<(), String>>,
     blocks: Range<usize>,
     n_blocks: usize,
     target_index: Range<usize>,
@@ -77,17 +85,29 @@ pub struct Table {
     block_cache: Cache<BlockRecords>,
     group_cache: Cache<Group>,
     options_cache: Cache<(Box<[u8]>, Options)>,
+    /// Tags of sources decoded once (see `offer_options`).
+    seen_sources: cache::Seen,
+    /// Blocks decoded once for a lookup (see `lookup_into`).
+    seen_blocks: cache::Seen,
 }
 
-/// The decoded word ids of one target group.
+/// The decoded word ids of targets `first ..` of one target group (`first` is 0 unless
+/// decoding resumed at the group's resume point).
 #[derive(Default)]
 pub(crate) struct Group {
+    first: usize,
     ids: Vec<u32>,
     ends: Vec<u32>,
 }
 
 impl Group {
+    /// Whether target `i` of the group is decoded.
+    fn has(&self, i: usize) -> bool {
+        i >= self.first && i - self.first < self.ends.len()
+    }
+
     fn target(&self, i: usize) -> &[u32] {
+        let i = i - self.first;
         let start = if i == 0 { 0 } else { self.ends[i - 1] as usize };
         &self.ids[start..self.ends[i] as usize]
     }
@@ -323,6 +343,22 @@ impl Table {
             layout::check_target_index(&data[target_index.clone()], n_groups, targets.len())
                 .map_err(corrupt)?;
         }
+        let block_skips = section(SectionKind::BlockSkips);
+        if get(SectionKind::BlockSkips).is_some()
+            && (layout != Layout::Compact || compression != Compression::Rans)
+        {
+            return Err(corrupt(
+                "a block-skips section is present but blocks are not rANS coded".into(),
+            ));
+        }
+        let group_skips = section(SectionKind::GroupSkips);
+        if get(SectionKind::GroupSkips).is_some()
+            && (layout != Layout::Compact || compression != Compression::Rans)
+        {
+            return Err(corrupt(
+                "a group-skips section is present but groups are not rANS coded".into(),
+            ));
+        }
         let shape = BlockShape {
             widths: codecs.iter().map(Codec::width).collect(),
             alignment: meta.alignment,
@@ -336,6 +372,7 @@ impl Table {
         let (options_bytes, block_bytes) = (budget / 2, budget / 4);
         Ok(Table {
             path,
+            minor: fh.minor,
             shared_schema,
             header,
             entries,
@@ -347,6 +384,9 @@ impl Table {
             ids,
             block_index,
             block_keys,
+            block_skips,
+            group_skips,
+            skips_checked: std::sync::OnceLock::new(),
             blocks,
             n_blocks: n_blocks as usize,
             target_index,
@@ -359,6 +399,8 @@ impl Table {
                 1 << 13,
             ),
             options_cache: Cache::new(options_bytes, meta.sources as usize, 1 << 14),
+            seen_sources: cache::Seen::new(options_bytes > 0),
+            seen_blocks: cache::Seen::new(block_bytes > 0),
             storage,
             meta,
         })
@@ -448,6 +490,11 @@ impl Table {
         }
     }
 
+    /// The file's minor format version (its major version is [`format::VERSION_MAJOR`]).
+    pub fn minor_version(&self) -> u16 {
+        self.minor
+    }
+
     /// Number of distinct target words; ids run from 0 to this, most frequent first.
     pub fn vocabulary_size(&self) -> usize {
         self.vocabulary.len()
@@ -477,13 +524,46 @@ impl Table {
         let Some(b) = self.find_block(key) else {
             return Ok(false);
         };
-        let (block, found) = self.block_for_key(b, key)?;
-        if let Some(r) = found {
-            self.fill(&block, r, options)?;
-            self.offer_options(slot, key, options);
-            return Ok(true);
+        // A block looked up in before is decoded for the cache (its keys whole, its options
+        // from the resume point before the phrase), so lookups of its other phrases find it.
+        let cached = match self.block_cache.get(b) {
+            Some(hit) => Some(hit),
+            None if self.seen_blocks.second_time(b as u64) => {
+                Some(self.decode_and_offer(b, Upto::Key(key))?)
+            }
+            None => None,
+        };
+        if let Some(block) = cached {
+            let (block, found) = self.block_for_key(b, key, block)?;
+            if let Some(r) = found {
+                self.fill(&block, r, options)?;
+                self.offer_options(slot, key, options);
+                return Ok(true);
+            }
+            return Ok(false);
         }
-        Ok(false)
+        // First lookup in the block: decode just what this lookup needs (keys up to the phrase, options
+        // from the resume point before it) into this thread's scratch records, which keep
+        // their buffers from lookup to lookup.
+        thread_local! {
+            static SCRATCH: std::cell::RefCell<BlockRecords> = Default::default();
+        }
+        SCRATCH.with(|scratch| {
+            let mut own = BlockRecords::default();
+            let mut borrowed = scratch.try_borrow_mut();
+            let records = match &mut borrowed {
+                Ok(r) => &mut **r,
+                Err(_) => &mut own,
+            };
+            self.decode_block_upto(b, Upto::Lookup(key), records)?;
+            let r = records.lower_bound(key);
+            if r < records.sources() && records.key(r) == key {
+                self.fill(records, r, options)?;
+                self.offer_options(slot, key, options);
+                return Ok(true);
+            }
+            Ok(false)
+        })
     }
 
     /// The source ordinal (position in byte order) of a phrase, if present.
@@ -544,7 +624,7 @@ impl Table {
                     match self.options_cache.get(slot) {
                         Some(hit) if *hit.0 == *key => options.share(&hit.1),
                         _ => {
-                            let full = self.block_with(*b, at.rank + 1)?;
+                            let full = self.block_with_source(*b, at.rank)?;
                             self.fill(&full, at.rank, &mut options)?;
                             self.offer_options(slot, &key, &mut options);
                         }
@@ -669,18 +749,21 @@ impl Table {
 
     /// Block `b` with at least its keys decoded (from the cache, or decoded and offered to it).
     fn block(&self, b: usize) -> Result<Arc<BlockRecords>> {
-        self.block_with(b, 0)
+        if let Some(hit) = self.block_cache.get(b) {
+            return Ok(hit);
+        }
+        self.decode_and_offer(b, Upto::Sources(0))
     }
 
-    /// Block `b` with its keys and the options of its first `upto` sources decoded. A block
-    /// is decoded only as far as asked, and again further when more is asked of it.
-    fn block_with(&self, b: usize, upto: usize) -> Result<Arc<BlockRecords>> {
+    /// Block `b` with its keys and the options of source `r` decoded. A block is decoded only
+    /// as far as asked (from the last resume point before `r`), and again when more is asked.
+    fn block_with_source(&self, b: usize, r: usize) -> Result<Arc<BlockRecords>> {
         if let Some(hit) = self.block_cache.get(b) {
-            if hit.with_options >= upto {
+            if hit.has_options(r) {
                 return Ok(hit);
             }
         }
-        self.decode_and_offer(b, Upto::Sources(upto))
+        self.decode_and_offer(b, Upto::Source(r, false))
     }
 
     /// Block `b` decoded as far as `upto` asks, offered to the cache.
@@ -693,19 +776,20 @@ impl Table {
         Ok(records)
     }
 
-    /// Block `b` with the options of the source equal to `key` decoded, and that source's
-    /// rank, if the block holds it: one pass over the block's stream when it is not cached.
-    fn block_for_key(&self, b: usize, key: &[u8]) -> Result<(Arc<BlockRecords>, Option<usize>)> {
-        let block = match self.block_cache.get(b) {
-            Some(hit) => hit,
-            None => self.decode_and_offer(b, Upto::Key(key))?,
-        };
+    /// Cached block `b` with the options of the source equal to `key` decoded (decoded again
+    /// from its resume point when they are not), and that source's rank, if the block holds it.
+    fn block_for_key(
+        &self,
+        b: usize,
+        key: &[u8],
+        block: Arc<BlockRecords>,
+    ) -> Result<(Arc<BlockRecords>, Option<usize>)> {
         let r = block.lower_bound(key);
         if r < block.sources() && block.key(r) == key {
-            if block.with_options > r {
+            if block.has_options(r) {
                 return Ok((block, Some(r)));
             }
-            return Ok((self.block_with(b, r + 1)?, Some(r)));
+            return Ok((self.block_with_source(b, r)?, Some(r)));
         }
         Ok((block, None))
     }
@@ -736,6 +820,7 @@ impl Table {
                     &self.ids,
                     self.meta.pairs,
                     &mut src,
+                    self.skip_points(b)?,
                 ),
                 None => Err("its coder state"),
             },
@@ -747,28 +832,82 @@ impl Table {
                 &self.ids,
                 self.meta.pairs,
                 &mut PlainSource::new(stored),
+                SkipPoints::default(),
             ),
         };
         result.map_err(|what| self.corrupt(format!("block {b} is malformed: {what}")))
     }
 
-    /// Target group `g` with at least its first `upto` targets decoded (from the cache, or
-    /// decoded and offered to it).
-    fn group(&self, g: usize, upto: usize) -> Result<Arc<Group>> {
+    /// Block `b`'s resume points (none when the file has no block-skips section).
+    pub(crate) fn skip_points(&self, b: usize) -> Result<SkipPoints<'_>> {
+        if self.block_skips.is_empty() {
+            return Ok(SkipPoints::default());
+        }
+        self.check_skips()?;
+        Ok(SkipPoints::of_block(
+            &self.data()[self.block_skips.clone()],
+            self.n_blocks,
+            b,
+        ))
+    }
+
+    /// Checks the checksums and structure of the skips sections, once.
+    fn check_skips(&self) -> Result<()> {
+        self.skips_checked
+            .get_or_init(|| {
+                let data = self.data();
+                for e in &self.entries {
+                    let kind = SectionKind::from_id(e.kind);
+                    if matches!(
+                        kind,
+                        Some(SectionKind::BlockSkips | SectionKind::GroupSkips)
+                    ) && crc32fast::hash(
+                        &data[e.offset as usize..(e.offset + e.length) as usize],
+                    ) != e.crc32
+                    {
+                        return Err(format!(
+                            "the {} section fails its checksum",
+                            kind.expect("matched").name()
+                        ));
+                    }
+                }
+                if !self.block_skips.is_empty() {
+                    layout::check_block_skips(
+                        &data[self.block_skips.clone()],
+                        self.n_blocks as u64,
+                        self.meta.sources_per_block,
+                    )?;
+                }
+                if !self.group_skips.is_empty() {
+                    layout::check_group_skips(
+                        &data[self.group_skips.clone()],
+                        self.n_groups as u64,
+                    )?;
+                }
+                Ok(())
+            })
+            .clone()
+            .map_err(|reason| self.corrupt(reason))
+    }
+
+    /// Target group `g` with its target `i` decoded (from the cache, or decoded from the
+    /// group's start or its resume point, and offered to the cache).
+    fn group(&self, g: usize, i: usize) -> Result<Arc<Group>> {
         if let Some(hit) = self.group_cache.get(g) {
-            if hit.ends.len() >= upto {
+            if hit.has(i) {
                 return Ok(hit);
             }
         }
-        let group = Arc::new(self.decode_group(g, upto)?);
+        let group = Arc::new(self.decode_group(g, i, i + 1)?);
         let bytes = 4 * (group.ids.len() + group.ends.len()) + 64;
         self.group_cache.insert(g, group.clone(), bytes);
         Ok(group)
     }
 
-    /// Checks group `g`'s checksum and decodes its first `upto` targets (all of them, and a
-    /// check that the stream ends where it should, when `upto` covers the group).
-    fn decode_group(&self, g: usize, upto: usize) -> Result<Group> {
+    /// Checks group `g`'s checksum and decodes its targets up to `upto` (all of them, and a
+    /// check that the stream ends where it should, when `upto` covers the group), from its
+    /// resume point when that lies after the group's start and not after target `want`.
+    fn decode_group(&self, g: usize, want: usize, upto: usize) -> Result<Group> {
         if g >= self.n_groups {
             return Err(self.corrupt(format!(
                 "target group {g} is outside the {} groups",
@@ -783,8 +922,19 @@ impl Table {
         }
         let per = u64::from(self.meta.targets_per_group);
         let all = (self.meta.targets - g as u64 * per).min(per) as usize;
-        let n = all.min(upto);
+        let upto = all.min(upto);
+        let middle = layout::group_skip_target(self.meta.targets_per_group);
+        let skip = if middle > 0 && want >= middle && upto > middle && !self.group_skips.is_empty()
+        {
+            self.check_skips()?;
+            layout::group_skip(&data[self.group_skips.clone()], g)
+        } else {
+            None
+        };
+        let first = if skip.is_some() { middle } else { 0 };
+        let n = upto - first;
         let mut group = Group {
+            first,
             ids: Vec::with_capacity(n * 4),
             ends: Vec::with_capacity(n),
         };
@@ -799,17 +949,20 @@ impl Table {
             Ok(())
         };
         let result = match &self.models {
-            Some(m) => match RansSource::new(m, stored) {
+            Some(m) => match RansSource::new(m, stored).and_then(|mut s| {
+                skip.is_none_or(|(state, pos)| s.resume(state, pos))
+                    .then_some(s)
+            }) {
                 Some(mut s) => run(
                     &mut |out| decode_target(&mut s, vocabulary, out),
                     &mut group,
                 )
                 .and_then(|()| {
-                    (n < all || s.finished())
+                    (upto < all || s.finished())
                         .then_some(())
                         .ok_or("the group's end")
                 }),
-                None => Err("its coder state"),
+                None => Err("its coder state or resume point"),
             },
             None => {
                 let mut s = PlainSource::new(stored);
@@ -829,7 +982,13 @@ impl Table {
     }
 
     /// Offers a source's decoded options to the cache of recently used sources.
+    /// A source is admitted from the second time it is decoded (see [`cache::Seen`]): a
+    /// phrase looked up once (most of a batch of distinct lookups) then keeps the caller's
+    /// buffers for the next lookup instead of handing them to the cache and allocating anew.
     fn offer_options(&self, slot: usize, key: &[u8], options: &mut Options) {
+        if !self.seen_sources.second_time(slot as u64) {
+            return;
+        }
         options.shrink();
         let bytes = key.len() + options.heap_bytes();
         if self.options_cache.admits(bytes) {
@@ -846,12 +1005,18 @@ impl Table {
         out.id_ends.reserve_exact(n);
         out.scores.reserve_exact(n * self.codecs.len());
         out.counts.reserve_exact(n * self.shape.counts);
+        out.text.reserve(n * 16);
+        out.ids.reserve(n * 3);
+        if self.shape.alignment {
+            out.link_ends.reserve_exact(n);
+            out.links.reserve(n * 3);
+        }
         let per = self.meta.targets_per_group as usize;
         let code_bytes = self.shape.code_bytes();
         let mut cached: Option<(usize, Arc<Group>)> = None;
-        debug_assert!(r < block.with_options, "the block's options were decoded");
+        debug_assert!(block.has_options(r), "the block's options were decoded");
         for k in block.options(r) {
-            let t = block.targets[k] as usize;
+            let t = block.target(k) as usize;
             if t as u64 >= self.meta.targets {
                 return Err(self.corrupt(format!(
                     "a target reference ({t}) is outside the {} targets",
@@ -860,9 +1025,9 @@ impl Table {
             }
             let (g, i) = (t / per, t % per);
             let group = match &cached {
-                Some((cg, grp)) if *cg == g && grp.ends.len() > i => grp.clone(),
+                Some((cg, grp)) if *cg == g && grp.has(i) => grp.clone(),
                 _ => {
-                    let grp = self.group(g, i + 1)?;
+                    let grp = self.group(g, i)?;
                     cached = Some((g, grp.clone()));
                     grp
                 }
@@ -878,28 +1043,22 @@ impl Table {
             out.ends.push(out.text.len() as u32);
             out.ids.extend_from_slice(words);
             out.id_ends.push(out.ids.len() as u32);
-            let mut at = k * code_bytes;
+            let codes = block.codes_of(k, code_bytes);
+            let mut at = 0;
             for codec in &self.codecs {
                 let w = codec.width();
                 let v = codec
-                    .decode(&block.codes[at..at + w])
+                    .decode(&codes[at..at + w])
                     .ok_or_else(|| self.corrupt("a score code is outside its codebook"))?;
                 out.scores.push(v);
                 at += w;
             }
             if self.shape.alignment {
-                let start = if k == 0 {
-                    0
-                } else {
-                    block.link_ends[k - 1] as usize
-                };
-                out.links
-                    .extend_from_slice(&block.links[start..block.link_ends[k] as usize]);
+                out.links.extend_from_slice(block.links_of(k));
                 out.link_ends.push(out.links.len() as u32);
             }
-            let nc = self.shape.counts;
             out.counts
-                .extend_from_slice(&block.counts[k * nc..(k + 1) * nc]);
+                .extend_from_slice(block.counts_of(k, self.shape.counts));
         }
         Ok(())
     }

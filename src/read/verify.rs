@@ -1,7 +1,7 @@
 //! Full verification: every checksum, every record.
 
 use crate::error::Result;
-use crate::format::block::BlockRecords;
+use crate::format::block::{BlockRecords, Upto};
 
 use super::{Table, VerifyReport};
 
@@ -31,8 +31,30 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
     }
     // Target groups: each decodes completely (word ids checked against the vocabulary).
     for g in 0..table.n_groups {
-        let group = table.decode_group(g, usize::MAX)?;
+        let group = table.decode_group(g, 0, usize::MAX)?;
         report.targets += group.ends.len() as u64;
+        // Its resume point continues the stream as decoding from the start does.
+        let disagrees = || {
+            table.corrupt(format!(
+                "target group {g}'s resume point disagrees with its stream"
+            ))
+        };
+        let part = table
+            .decode_group(g, usize::MAX, usize::MAX)
+            .map_err(|_| disagrees())?;
+        if part.first > 0 {
+            let skipped = group.ends[part.first - 1];
+            let same = part.ends.len() + part.first == group.ends.len()
+                && part.ids[..] == group.ids[skipped as usize..]
+                && part
+                    .ends
+                    .iter()
+                    .zip(&group.ends[part.first..])
+                    .all(|(a, b)| a + skipped == *b);
+            if !same {
+                return Err(disagrees());
+            }
+        }
     }
     if report.targets != table.meta.targets {
         return Err(table.corrupt(format!(
@@ -71,6 +93,28 @@ pub(super) fn verify(table: &Table) -> Result<VerifyReport> {
                     table.corrupt(format!("block {b} holds a score code outside its codebook"))
                 })?;
                 at += w;
+            }
+        }
+        // Every resume point continues the stream as decoding from the start does.
+        for p in table.skip_points(b)?.iter() {
+            let disagrees = || {
+                table.corrupt(format!(
+                    "block {b}'s resume point before source {} disagrees with its stream",
+                    p.rank
+                ))
+            };
+            let mut part = BlockRecords::default();
+            table
+                .decode_block_upto(b, Upto::Source(p.rank, true), &mut part)
+                .map_err(|_| disagrees())?;
+            let start = block.options(p.rank).start;
+            let same = part.options_from == p.rank
+                && part.targets[..] == block.targets[start..]
+                && part.codes[..] == block.codes[start * code_bytes..]
+                && part.counts[..] == block.counts[start * table.shape.counts..]
+                && (start..block.targets.len()).all(|k| part.links_of(k) == block.links_of(k));
+            if !same {
+                return Err(disagrees());
             }
         }
         sources += block.sources() as u64;
