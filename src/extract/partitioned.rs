@@ -652,6 +652,31 @@ impl TotalsReader {
     }
 }
 
+/// `count_target` and `df_target` of a range's targets (by rank), from [`target_totals`]' file.
+fn range_target_totals(
+    path: &Path,
+    tree: &PhraseTree,
+    ranks: &Ranks,
+    word_ranks: &[u32],
+    max: usize,
+) -> Result<(Vec<u64>, Vec<u32>)> {
+    let mut totals = TotalsReader::open(path)?;
+    let n = ranks.target_nodes.len();
+    let (mut counts, mut df) = (Vec::with_capacity(n), Vec::with_capacity(n));
+    let (mut ids, mut key) = (Vec::new(), Vec::new());
+    for &node in &ranks.target_nodes {
+        tree.ids(node, &mut ids);
+        key.clear();
+        for w in &ids {
+            key.extend_from_slice(&word_ranks[w.expect("a word") as usize].to_be_bytes());
+        }
+        let (count, frequency) = totals.total(&key, max)?;
+        counts.push(count);
+        df.push(frequency);
+    }
+    Ok((counts, df))
+}
+
 /// Reads a source group's buckets: its sources' and targets' prefix trees and its
 /// occurrences `[source node, target node, alignment id]`.
 fn load_group(
@@ -780,7 +805,6 @@ pub(crate) fn extract_partitioned<W: Write>(
         shards: Vec::new(),
     };
     let (mut pairs, mut sources) = (0u64, 0u64);
-    let mut ids = Vec::new();
     next_lap(1);
     for (k, group) in source_groups.iter().enumerate() {
         let (source_tree, target_tree, occurrences) = load_group(
@@ -802,21 +826,24 @@ pub(crate) fn extract_partitioned<W: Write>(
             target_nodes,
             alignment_rank: alignment_rank.clone(),
         };
-        let mut table = aggregate(occurrences, &ranks, threads);
-        // `count_target` sums over every source range: from the totals, in target order.
-        let mut totals = TotalsReader::open(&totals_path)?;
-        let mut key = Vec::new();
-        let mut df_target = vec![0u32; ranks.target_nodes.len()];
-        for (t, &node) in ranks.target_nodes.iter().enumerate() {
-            x.target.tree.ids(node, &mut ids);
-            key.clear();
-            for w in &ids {
-                key.extend_from_slice(
-                    &target_word_ranks[w.expect("a word") as usize].to_be_bytes(),
-                );
-            }
-            (table.target_totals[t], df_target[t]) = totals.total(&key, max)?;
-        }
+        // `count_target` sums over every source range: from the totals, in target order. The
+        // scan of the totals file (one thread) runs while the pairs are summed.
+        let (table, totals) = std::thread::scope(|scope| {
+            let scan = scope.spawn(|| {
+                range_target_totals(
+                    &totals_path,
+                    &x.target.tree,
+                    &ranks,
+                    &target_word_ranks,
+                    max,
+                )
+            });
+            let table = aggregate(occurrences, &ranks, threads);
+            (table, scan.join().expect("totals thread panicked"))
+        });
+        let mut table = table;
+        let (target_totals, df_target) = totals?;
+        table.target_totals = target_totals;
         next_lap(1);
         let counts = count_sentences(&x, &ranks, &table, max, threads, Some(&df_target));
         next_lap(2);
