@@ -464,10 +464,10 @@ fn length(path: &Path, len: u32, max: usize, rest: usize) -> Result<usize> {
 /// every target, in byte order of the targets, into `out` as `[length, big-endian word ranks,
 /// count (u64), df (u32)]` records. Returns the number of targets.
 ///
-/// `df_target` is counted here, one group of targets at a time, so that the source ranges need
-/// not look for targets in sentence pairs that hold none of their sources: a group's tree only
-/// has the group's first words at its root, so across all groups each target-side position is
-/// walked about once.
+/// `df_target` is counted here, one target bucket at a time, so that the source ranges need
+/// not look for targets in sentence pairs that hold none of their sources: a bucket's tree only
+/// has the bucket's first words at its root, so across all buckets each target-side position is
+/// walked about once (the others stop at the root).
 #[allow(clippy::too_many_arguments)]
 fn target_totals(
     buckets: &Buckets,
@@ -484,41 +484,74 @@ fn target_totals(
     let mut targets = 0u64;
     let mut ids = Vec::new();
     for group in groups {
-        let mut tree = PhraseTree::new();
-        let mut counts: Vec<u64> = Vec::new();
-        for path in &buckets.paths[group.clone()] {
-            let values = read_values(path)?;
-            let mut k = 0;
-            while k < values.len() {
-                let len = length(path, values[k], max, values.len() - k - 1)?;
-                let node = intern(&mut tree, &values[k + 1..k + 1 + len]) as usize;
-                if counts.len() <= node {
-                    counts.resize(tree.len().max(node + 1), 0);
+        // Each bucket holds its own targets (a target is in exactly one bucket, buckets in
+        // byte order), so the group's buckets get a tree each, built `threads` at a time.
+        let paths = &buckets.paths[group.clone()];
+        let next = std::sync::atomic::AtomicUsize::new(0);
+        let mut built: Vec<(usize, Result<BucketTree>)> = std::thread::scope(|scope| {
+            let workers: Vec<_> = (0..threads.max(1).min(paths.len()))
+                .map(|_| {
+                    scope.spawn(|| {
+                        let mut done = Vec::new();
+                        loop {
+                            let b = next.fetch_add(1, Ordering::Relaxed);
+                            let Some(path) = paths.get(b) else { break };
+                            done.push((b, bucket_target_tree(path, max)));
+                        }
+                        done
+                    })
+                })
+                .collect();
+            workers
+                .into_iter()
+                .flat_map(|h| h.join().expect("tree thread panicked"))
+                .collect()
+        });
+        built.sort_by_key(|(b, _)| *b);
+        for (_, bucket) in built {
+            let (tree, counts) = bucket?;
+            let df = sentence_frequencies(&tree, sentences, max, threads);
+            let (_, by_rank) = tree.ranks(word_rank);
+            for &node in &by_rank {
+                tree.ids(node, &mut ids);
+                w.write_all(&(ids.len() as u32).to_le_bytes())
+                    .map_err(werr)?;
+                // Words as big-endian ranks: the bytes of two targets compare as the targets do.
+                for id in &ids {
+                    w.write_all(&word_rank[id.expect("a word") as usize].to_be_bytes())
+                        .map_err(werr)?;
                 }
-                counts[node] += 1;
-                k += 1 + len;
-            }
-        }
-        let df = sentence_frequencies(&tree, sentences, max, threads);
-        let (_, by_rank) = tree.ranks(word_rank);
-        for &node in &by_rank {
-            tree.ids(node, &mut ids);
-            w.write_all(&(ids.len() as u32).to_le_bytes())
-                .map_err(werr)?;
-            // Words as big-endian ranks: the bytes of two targets compare as the targets do.
-            for id in &ids {
-                w.write_all(&word_rank[id.expect("a word") as usize].to_be_bytes())
+                w.write_all(&counts[node as usize].to_le_bytes())
+                    .map_err(werr)?;
+                w.write_all(&df[node as usize].to_le_bytes())
                     .map_err(werr)?;
             }
-            w.write_all(&counts[node as usize].to_le_bytes())
-                .map_err(werr)?;
-            w.write_all(&df[node as usize].to_le_bytes())
-                .map_err(werr)?;
+            targets += by_rank.len() as u64;
         }
-        targets += by_rank.len() as u64;
     }
     w.flush().map_err(werr)?;
     Ok(targets)
+}
+
+/// The tree of one target bucket's phrases and each node's number of occurrences.
+type BucketTree = (PhraseTree, Vec<u64>);
+
+/// Reads one target bucket into its [`BucketTree`].
+fn bucket_target_tree(path: &Path, max: usize) -> Result<BucketTree> {
+    let mut tree = PhraseTree::new();
+    let mut counts: Vec<u64> = Vec::new();
+    let values = read_values(path)?;
+    let mut k = 0;
+    while k < values.len() {
+        let len = length(path, values[k], max, values.len() - k - 1)?;
+        let node = intern(&mut tree, &values[k + 1..k + 1 + len]) as usize;
+        if counts.len() <= node {
+            counts.resize(tree.len().max(node + 1), 0);
+        }
+        counts[node] += 1;
+        k += 1 + len;
+    }
+    Ok((tree, counts))
 }
 
 /// For each node of `tree` whose phrase was extracted, the number of sentences holding the
