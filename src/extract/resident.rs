@@ -232,10 +232,10 @@ impl PhraseTree {
         self.parent.len()
     }
 
-    /// The nodes of the extracted phrases of at most `max` words occurring in `words` (with
-    /// repeats), into `found`.
-    pub(super) fn extracted_in(&self, words: &[u32], max: usize, found: &mut Vec<u32>) {
-        found.clear();
+    /// Calls `reached` with the node of every phrase of at most `max` words occurring in
+    /// `words` that the tree holds (extracted or only a prefix), with repeats.
+    #[inline]
+    pub(super) fn each_in(&self, words: &[u32], max: usize, mut reached: impl FnMut(u32)) {
         for start in 0..words.len() {
             let mut node = ROOT;
             for &w in &words[start..words.len().min(start + max)] {
@@ -243,11 +243,20 @@ impl PhraseTree {
                     Some(n) => node = n,
                     None => break,
                 }
-                if self.extracted[node as usize] {
-                    found.push(node);
-                }
+                reached(node);
             }
         }
+    }
+
+    /// The nodes of the extracted phrases of at most `max` words occurring in `words` (with
+    /// repeats), into `found`.
+    pub(super) fn extracted_in(&self, words: &[u32], max: usize, found: &mut Vec<u32>) {
+        found.clear();
+        self.each_in(words, max, |node| {
+            if self.extracted[node as usize] {
+                found.push(node);
+            }
+        });
     }
 
     /// Bytes held per node, for the memory estimate.
@@ -938,19 +947,11 @@ pub(super) fn count_sentences(
 /// The ranks of the extracted phrases occurring in sentence `k` of `side` (with repeats).
 fn find_phrases(side: &Side, rank: &[u32], k: usize, max: usize, found: &mut Vec<u32>) {
     found.clear();
-    let words = side.sentences.get(k);
-    for start in 0..words.len() {
-        let mut node = ROOT;
-        for &w in &words[start..words.len().min(start + max)] {
-            match side.tree.find(node, w) {
-                Some(n) => node = n,
-                None => break,
-            }
-            if rank[node as usize] != NO_NODE {
-                found.push(rank[node as usize]);
-            }
+    side.tree.each_in(side.sentences.get(k), max, |node| {
+        if rank[node as usize] != NO_NODE {
+            found.push(rank[node as usize]);
         }
-    }
+    });
 }
 
 /// Rows scored and formatted per block by each thread.
